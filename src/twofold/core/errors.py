@@ -90,14 +90,14 @@ WARNING_CLASSES = {
 class Notice:
     """One warning attached to a result: a stable code and a plain message.
 
-    ``subject`` names what the warning is about (a column name, or ``None`` for
-    the model as a whole), so a display can put it beside the number it
+    ``subjects`` names the predictor columns the warning is about (empty for
+    the model as a whole), so a display can put it beside the numbers it
     affects.
     """
 
     code: str
     message: str
-    subject: str | None = None
+    subjects: tuple = ()
 
     @property
     def category(self) -> type[TwofoldWarning]:

@@ -1,0 +1,165 @@
+"""The ``twofold`` command.
+
+``twofold`` opens the window, ``twofold DATA`` opens it on a file, and
+``twofold fit ...`` runs a model headless.  The fit path imports neither Qt
+nor matplotlib.  Errors print one sentence on stderr and exit non-zero; no
+traceback reaches the user.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+EXIT_USAGE = 2
+EXIT_INTERNAL = 3
+
+SUBCOMMANDS = ("fit", "snapshot")
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage mistakes in one sentence and exits 2."""
+
+    def error(self, message):
+        self.exit(EXIT_USAGE, f"twofold: {message} (see 'twofold {self.prog.split()[-1]} --help').\n")
+
+
+def _fit_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="twofold fit", description="Fit a logistic model to a data file and report its tests.")
+    p.add_argument("data", metavar="DATA", help="CSV, TSV or XLSX file (read only, never written)")
+    p.add_argument("--outcome", required=True, metavar="COLUMN", help="the yes/no outcome column")
+    p.add_argument("--event", metavar="VALUE", help="which outcome value is the event (may be left out for 0/1)")
+    p.add_argument("--predictor", action="extend", nargs="+", required=True, metavar="COLUMN",
+                   dest="predictors", help="a predictor column (repeat for more)")
+    p.add_argument("--smaller", action="extend", nargs="*", metavar="COLUMN", default=None,
+                   help="predictors of a smaller model for the nested likelihood-ratio test")
+    p.add_argument("--reference", action="append", default=[], metavar="COLUMN=LEVEL",
+                   help="reference level of a categorical predictor")
+    p.add_argument("--sheet", metavar="NAME", help="the sheet of a workbook (default: the first)")
+    p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    return p
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def run_fit(argv: list[str]) -> int:
+    """``twofold fit``: returns the exit code."""
+    args = _fit_parser().parse_args(argv)
+    from twofold.core.errors import TwofoldError
+
+    try:
+        record, source = _fit(args)
+    except TwofoldError as exc:
+        print(f"twofold: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    if args.json:
+        text = json.dumps(record, indent=2, ensure_ascii=False, allow_nan=False)
+        if args.json == "-":
+            sys.stdout.write(text + "\n")
+        else:
+            out = Path(args.json)
+            if _same_file(out, Path(args.data)):
+                print(f"twofold: --json {out} is the data file itself; Twofold never writes to the data, "
+                      "so choose another file name.", file=sys.stderr)
+                return EXIT_USAGE
+            try:
+                out.write_text(text + "\n", encoding="utf-8")
+            except OSError as exc:
+                print(f"twofold: could not write {out} ({exc.strerror}); choose a folder you can write to.",
+                      file=sys.stderr)
+                return EXIT_USAGE
+    else:
+        from twofold.core.text import describe
+
+        sys.stdout.write(describe(record, source))
+    return 0
+
+
+def _fit(args):
+    from twofold.core.errors import ColumnError
+    from twofold.core.study import Study
+    from twofold.core.summary import fit_record
+
+    study = Study.from_file(args.data, sheet=args.sheet)
+    event = study.set_outcome(args.outcome, args.event, guess=False)
+    for item in args.reference:
+        if "=" not in item:
+            raise ColumnError(f"--reference {item!r} should look like COLUMN=LEVEL, for example discharge_destination=home.")
+        column, level = item.split("=", 1)
+        study.set_reference(column.strip(), level.strip())
+    predictors = [study.column(p) for p in args.predictors]
+    nested = None
+    smaller = None
+    if args.smaller is not None:
+        smaller = [study.column(p) for p in args.smaller]
+        _, fit, nested = study.compare(smaller, predictors)
+    else:
+        fit = study.fit(predictors)
+    for n in study.table.notices:
+        fit.notices.insert(0, n)
+    return fit_record(fit, study.outcome, event, nested, smaller), study.source
+
+
+def run_gui(argv: list[str]) -> int:
+    """Open the window (optionally on a data file)."""
+    try:
+        from twofold.gui.app import main as gui_main
+    except ImportError as exc:
+        print(f"twofold: the window cannot start here ({exc}); the command 'twofold fit' works without it.",
+              file=sys.stderr)
+        return EXIT_INTERNAL
+    return gui_main(argv)
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``twofold`` console script."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    try:
+        if argv and argv[0] == "fit":
+            return run_fit(argv[1:])
+        if argv and argv[0] == "snapshot":
+            from twofold.gui.snapshot import run_snapshot
+
+            return run_snapshot(argv[1:])
+        if argv and argv[0] in ("-h", "--help"):
+            print("usage: twofold [DATA] | twofold fit DATA --outcome COLUMN --predictor COLUMN ... | "
+                  "twofold snapshot DATA ... --out PNG")
+            return 0
+        return run_gui(argv)
+    except KeyboardInterrupt:
+        return 130
+    except SystemExit:
+        raise
+    except Exception as exc:  # the last guard: a message, never a traceback
+        log = _log_exception()
+        print(f"twofold: an unexpected problem stopped the command ({type(exc).__name__}: {exc}); "
+              f"details were written to {log}. Please report it with that file.", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+def _log_exception() -> str:
+    import tempfile
+    import traceback
+
+    from twofold.paths import log_dir
+
+    try:
+        folder = log_dir()
+    except OSError:
+        folder = Path(tempfile.gettempdir())
+    path = folder / "twofold-error.log"
+    with open(path, "a", encoding="utf-8") as fh:
+        traceback.print_exc(file=fh)
+    return str(path)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,652 @@
+"""How well predicted risks agree with observed outcomes.
+
+Everything here works on plain numpy arrays: ``y`` is a 0/1 outcome (1 =
+event), ``p`` the predicted probabilities and ``lp`` the linear predictor
+(logit of ``p``).
+
+References
+----------
+Van Calster B, Nieboer D, Vergouwe Y, De Cock B, Pencina MJ, Steyerberg EW
+(2016). A calibration hierarchy for risk models was defined: from utopia to
+empirical data. Journal of Clinical Epidemiology 74:167-176.
+
+Hosmer DW, Lemeshow S (1980). Goodness of fit tests for the multiple logistic
+regression model. Communications in Statistics - Theory and Methods
+9:1043-1069.
+
+Tjur T (2009). Coefficients of determination in logistic regression models -
+a new proposal: the coefficient of discrimination. The American Statistician
+63:366-372.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from twofold.core.discrimination import (
+    _both_classes,
+    _check_level,
+    _outcome,
+    _probabilities,
+    _readonly,
+    _values,
+)
+from twofold.core.errors import Notice, TwofoldError
+
+__all__ = [
+    "CalibrationFit",
+    "HosmerLemeshowResult",
+    "CalibrationGroups",
+    "SmoothedCalibration",
+    "PseudoR2",
+    "brier",
+    "scaled_brier",
+    "calibration_slope_intercept",
+    "hosmer_lemeshow",
+    "calibration_groups",
+    "smoothed_calibration",
+    "pseudo_r2",
+]
+
+# Van Calster et al. (2016) suggest at least this many events and non-events
+# before a flexible calibration curve is trusted.
+_SMOOTH_MIN_EACH = 200
+# Above this many rows the smoothed curve is drawn from an evenly spaced
+# subsample of the rows sorted by predicted risk.
+_SMOOTH_MAX_POINTS = 5000
+
+
+# ---------------------------------------------------------------------------
+# results
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CalibrationFit:
+    """Calibration slope and calibration-in-the-large, with SEs and CIs.
+
+    Attributes
+    ----------
+    slope, slope_se, slope_ci_low, slope_ci_high : float
+        Coefficient of ``lp`` in a logistic regression of ``y`` on an
+        intercept and ``lp``; 1 is ideal, below 1 means predictions are too
+        extreme (typical of over-fitting).
+    intercept, intercept_se, intercept_ci_low, intercept_ci_high : float
+        Calibration-in-the-large: intercept of a logistic regression of ``y``
+        with ``lp`` as an offset; 0 is ideal, above 0 means risks are
+        predicted too low on average.
+    level : float
+    notices : tuple of Notice
+        Separation or convergence problems met while fitting.
+    """
+
+    slope: float
+    slope_se: float
+    slope_ci_low: float
+    slope_ci_high: float
+    intercept: float
+    intercept_se: float
+    intercept_ci_low: float
+    intercept_ci_high: float
+    level: float
+    notices: tuple[Notice, ...] = field(default=())
+
+    def as_dict(self) -> dict:
+        out = {
+            k: float(v) for k, v in self.__dict__.items() if k != "notices"
+        }
+        out["notices"] = [n.as_dict() for n in self.notices]
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class HosmerLemeshowResult:
+    """Hosmer-Lemeshow statistic with its per-group table (arrays read-only)."""
+
+    statistic: float
+    df: int
+    p_value: float
+    groups_requested: int
+    groups_used: int
+    n: np.ndarray
+    observed_events: np.ndarray
+    expected_events: np.ndarray
+    mean_predicted: np.ndarray
+
+    def as_dict(self) -> dict:
+        return {
+            "statistic": float(self.statistic),
+            "df": int(self.df),
+            "p_value": float(self.p_value),
+            "groups_requested": int(self.groups_requested),
+            "groups_used": int(self.groups_used),
+            "n": self.n.tolist(),
+            "observed_events": self.observed_events.tolist(),
+            "expected_events": self.expected_events.tolist(),
+            "mean_predicted": self.mean_predicted.tolist(),
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class CalibrationGroups:
+    """Observed against predicted risk in groups of predicted risk.
+
+    One entry per non-empty group, from lowest to highest predicted risk;
+    ``ci_low``/``ci_high`` are Wilson intervals of the observed proportion.
+    Arrays are read-only.
+    """
+
+    n: np.ndarray
+    mean_predicted: np.ndarray
+    observed: np.ndarray
+    ci_low: np.ndarray
+    ci_high: np.ndarray
+    level: float
+    groups_requested: int
+    groups_used: int
+
+    def as_dict(self) -> dict:
+        return {
+            "n": self.n.tolist(),
+            "mean_predicted": self.mean_predicted.tolist(),
+            "observed": self.observed.tolist(),
+            "ci_low": self.ci_low.tolist(),
+            "ci_high": self.ci_high.tolist(),
+            "level": float(self.level),
+            "groups_requested": int(self.groups_requested),
+            "groups_used": int(self.groups_used),
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class SmoothedCalibration:
+    """Lowess-smoothed observed risk against sorted predicted risk.
+
+    Attributes
+    ----------
+    predicted : ndarray
+        Predicted risks, sorted ascending (read-only).
+    observed : ndarray
+        Smoothed observed risk at each predicted risk (read-only); not
+        clipped, so it may stray slightly outside 0-1 at the ends.
+    frac : float
+        Share of the points used for each local fit.
+    n_used, n_total : int
+        Points smoothed, and rows supplied (they differ when subsampled).
+    n_events, n_nonevents : int
+    unreliable : bool
+        True when there are fewer than 200 events or fewer than 200
+        non-events (Van Calster et al. 2016).
+    """
+
+    predicted: np.ndarray
+    observed: np.ndarray
+    frac: float
+    n_used: int
+    n_total: int
+    n_events: int
+    n_nonevents: int
+    unreliable: bool
+
+    def as_dict(self) -> dict:
+        return {
+            "predicted": self.predicted.tolist(),
+            "observed": self.observed.tolist(),
+            "frac": float(self.frac),
+            "n_used": int(self.n_used),
+            "n_total": int(self.n_total),
+            "n_events": int(self.n_events),
+            "n_nonevents": int(self.n_nonevents),
+            "unreliable": bool(self.unreliable),
+        }
+
+
+@dataclass(frozen=True)
+class PseudoR2:
+    """Four pseudo-R-squared measures for a logistic model."""
+
+    mcfadden: float
+    cox_snell: float
+    nagelkerke: float
+    tjur: float
+
+    def as_dict(self) -> dict:
+        return {k: float(v) for k, v in self.__dict__.items()}
+
+
+# ---------------------------------------------------------------------------
+# overall accuracy
+# ---------------------------------------------------------------------------
+
+
+def brier(y, p) -> float:
+    """Brier score, the mean squared difference between risk and outcome.
+
+    Brier = (1/n) * sum (p_i - y_i)^2.
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities.
+
+    Returns
+    -------
+    float
+        0 is perfect; predicting the overall event rate for everyone gives
+        mean(y) (1 - mean(y)).
+    """
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    return float(np.mean((pp - yy) ** 2))
+
+
+def scaled_brier(y, p) -> float:
+    """Brier score scaled by that of a model without predictors.
+
+    Scaled Brier = 1 - Brier / Brier_max, Brier_max = mean(y) (1 - mean(y))
+    (Van Calster et al. 2016).
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities.
+
+    Returns
+    -------
+    float
+        1 is perfect, 0 is no better than giving everyone the event rate,
+        negative is worse than that.
+    """
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    _both_classes(yy)
+    ybar = yy.mean()
+    return float(1.0 - np.mean((pp - yy) ** 2) / (ybar * (1.0 - ybar)))
+
+
+# ---------------------------------------------------------------------------
+# logistic recalibration
+# ---------------------------------------------------------------------------
+
+
+def _fit_binomial(y, exog, offset=None):
+    """Fit a binomial GLM, turning statsmodels warnings into notices."""
+    import statsmodels.api as sm
+    from statsmodels.tools.sm_exceptions import (
+        ConvergenceWarning,
+        PerfectSeparationWarning,
+    )
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        res = sm.GLM(y, exog, family=sm.families.Binomial(), offset=offset).fit()
+    notices = []
+    for w in caught:
+        if issubclass(w.category, PerfectSeparationWarning):
+            notices.append(
+                Notice(
+                    "separation",
+                    "The linear predictor separates events from non-events "
+                    "completely, so the calibration estimates are unreliable.",
+                )
+            )
+        elif issubclass(w.category, ConvergenceWarning):
+            notices.append(
+                Notice(
+                    "not_converged",
+                    "The recalibration model did not converge, so the "
+                    "calibration estimates are unreliable.",
+                )
+            )
+    return res, notices
+
+
+def calibration_slope_intercept(y, lp, level: float = 0.95) -> CalibrationFit:
+    """Calibration slope and calibration-in-the-large of a linear predictor.
+
+    Slope: b in logit P(y = 1) = a + b * lp;
+    calibration-in-the-large: a in logit P(y = 1) = a + lp (lp as offset).
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    lp : array_like
+        Linear predictor (logit of the predicted risk).
+    level : float, optional
+        Confidence level of the Wald intervals, default 0.95.
+
+    Returns
+    -------
+    CalibrationFit
+
+    Notes
+    -----
+    On the very data a logistic model with an intercept was fitted to, the
+    slope is exactly 1 and the calibration-in-the-large exactly 0 (they are
+    the score equations of that fit); the measures are informative on new
+    data or after internal validation.
+    """
+    _check_level(level)
+    yy = _outcome(y)
+    x = _values(lp, yy.size, "linear predictor")
+    _both_classes(yy)
+    alpha = 1.0 - level
+    ones = np.ones((yy.size, 1))
+
+    res_slope, notes_slope = _fit_binomial(yy, np.column_stack([ones, x]))
+    ci_slope = np.asarray(res_slope.conf_int(alpha=alpha))
+    res_int, notes_int = _fit_binomial(yy, ones, offset=x)
+    ci_int = np.asarray(res_int.conf_int(alpha=alpha))
+
+    # Same problem reported once even if both fits met it.
+    seen: dict[str, Notice] = {}
+    for n in notes_slope + notes_int:
+        seen.setdefault(n.code, n)
+
+    return CalibrationFit(
+        slope=float(res_slope.params[1]),
+        slope_se=float(res_slope.bse[1]),
+        slope_ci_low=float(ci_slope[1, 0]),
+        slope_ci_high=float(ci_slope[1, 1]),
+        intercept=float(res_int.params[0]),
+        intercept_se=float(res_int.bse[0]),
+        intercept_ci_low=float(ci_int[0, 0]),
+        intercept_ci_high=float(ci_int[0, 1]),
+        level=float(level),
+        notices=tuple(seen.values()),
+    )
+
+
+# ---------------------------------------------------------------------------
+# grouped calibration
+# ---------------------------------------------------------------------------
+
+
+def _risk_groups(p: np.ndarray, groups: int):
+    """Group rows by quantiles of predicted risk.
+
+    Cut points are the ``groups``-quantiles of ``p`` (linear interpolation);
+    repeated cut points, caused by tied risks, are merged, and intervals are
+    closed on the right with the lowest value in the first group (the same
+    rule as ``pandas.qcut(..., duplicates="drop")``).  Groups left empty are
+    dropped.
+
+    Returns
+    -------
+    codes : (n,) int array
+        Group of each row, 0 .. k-1 for the k non-empty groups.
+    k : int
+    """
+    groups = int(groups)
+    edges = np.unique(np.quantile(p, np.linspace(0.0, 1.0, groups + 1)))
+    if edges.size < 2:
+        # Every row has the same risk: a single group.
+        return np.zeros(p.size, dtype=np.intp), 1
+    raw = np.searchsorted(edges[1:-1], p, side="left")
+    counts = np.bincount(raw, minlength=edges.size - 1)
+    # Renumber so that empty groups disappear.
+    keep = counts > 0
+    new_index = np.cumsum(keep) - 1
+    return new_index[raw], int(keep.sum())
+
+
+def _check_groups(groups, minimum: int) -> int:
+    g = int(groups)
+    if g != groups or g < minimum:
+        raise TwofoldError(
+            f"The number of risk groups {groups!r} is not a whole number of at "
+            f"least {minimum}; use for example 10."
+        )
+    return g
+
+
+def hosmer_lemeshow(y, p, groups: int = 10) -> HosmerLemeshowResult:
+    """Hosmer-Lemeshow goodness-of-fit test over groups of predicted risk.
+
+    C = sum_g (O_g - E_g)^2 / (E_g (1 - E_g / n_g)), E_g = sum of p in
+    group g; compared with a chi-square on (groups used - 2) degrees of
+    freedom.
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities.
+    groups : int, optional
+        Number of groups of predicted risk (deciles by default).
+
+    Returns
+    -------
+    HosmerLemeshowResult
+        Includes the number of groups actually used: tied risks can merge
+        groups, and the degrees of freedom follow the groups used.
+
+    Raises
+    ------
+    TwofoldError
+        When fewer than three groups remain (no degrees of freedom).
+
+    Notes
+    -----
+    Known limits: the result depends on how the rows are grouped (a different
+    number of groups, or a different rule for ties, can change the verdict);
+    in small samples the test has little power to find poor calibration; in
+    large samples it flags departures too small to matter clinically.  Read
+    it beside the calibration plot, not instead of it.
+
+    A group whose predicted risks are all exactly 0 or all exactly 1 adds 0
+    when its observed count matches, and makes the statistic infinite when
+    it does not.
+    """
+    from scipy.stats import chi2
+
+    g = _check_groups(groups, 3)
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    codes, k = _risk_groups(pp, g)
+    if k < 3:
+        raise TwofoldError(
+            f"Only {k} distinct group(s) of predicted risk could be formed, too "
+            "few for the Hosmer-Lemeshow test; it needs more distinct "
+            "predicted risks."
+        )
+    n = np.bincount(codes, minlength=k).astype(float)
+    obs = np.bincount(codes, weights=yy, minlength=k)
+    exp = np.bincount(codes, weights=pp, minlength=k)
+    mean_p = exp / n
+    denom = exp * (1.0 - mean_p)
+    diff2 = (obs - exp) ** 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        terms = np.where(denom > 0.0, diff2 / np.where(denom > 0.0, denom, 1.0),
+                         np.where(diff2 > 0.0, np.inf, 0.0))
+    stat = float(terms.sum())
+    df = k - 2
+    return HosmerLemeshowResult(
+        statistic=stat,
+        df=df,
+        p_value=float(chi2.sf(stat, df)),
+        groups_requested=g,
+        groups_used=k,
+        n=_readonly(n.astype(np.int64)),
+        observed_events=_readonly(obs),
+        expected_events=_readonly(exp),
+        mean_predicted=_readonly(mean_p),
+    )
+
+
+def calibration_groups(y, p, groups: int = 10, level: float = 0.95) -> CalibrationGroups:
+    """Observed event proportion in groups of predicted risk, with Wilson CIs.
+
+    Per group g: mean predicted = mean(p_g), observed = O_g / n_g, with a
+    Wilson score interval for O_g / n_g.
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities.
+    groups : int, optional
+        Number of groups by quantiles of predicted risk (deciles by default);
+        tied risks may merge groups, see ``groups_used``.
+    level : float, optional
+        Confidence level of the Wilson intervals.
+
+    Returns
+    -------
+    CalibrationGroups
+    """
+    from statsmodels.stats.proportion import proportion_confint
+
+    _check_level(level)
+    g = _check_groups(groups, 1)
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    codes, k = _risk_groups(pp, g)
+    n = np.bincount(codes, minlength=k).astype(float)
+    obs = np.bincount(codes, weights=yy, minlength=k)
+    mean_p = np.bincount(codes, weights=pp, minlength=k) / n
+    lo, hi = proportion_confint(obs, n, alpha=1.0 - level, method="wilson")
+    return CalibrationGroups(
+        n=_readonly(n.astype(np.int64)),
+        mean_predicted=_readonly(mean_p),
+        observed=_readonly(obs / n),
+        ci_low=_readonly(np.asarray(lo, dtype=float)),
+        ci_high=_readonly(np.asarray(hi, dtype=float)),
+        level=float(level),
+        groups_requested=g,
+        groups_used=k,
+    )
+
+
+def smoothed_calibration(y, p, frac: float = 2.0 / 3.0) -> SmoothedCalibration:
+    """Flexible calibration curve: lowess of the outcome on predicted risk.
+
+    observed(p) = lowess fit of y on p (local linear, tricube weights, no
+    robustness iterations since y is 0/1).
+
+    Parameters
+    ----------
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities.
+    frac : float, optional
+        Share of the points used in each local fit, between 0 and 1 (2/3 by
+        default, the usual lowess default).
+
+    Returns
+    -------
+    SmoothedCalibration
+
+    Notes
+    -----
+    With more than 5,000 rows the curve is computed on 5,000 rows taken at
+    evenly spaced positions in the order of predicted risk, so the result is
+    the same on every run and the spread of risks is kept.  Points closer
+    than 1% of the risk range are interpolated rather than fitted
+    (``delta``), which changes the curve by far less than its uncertainty.
+    The curve is flagged ``unreliable`` below 200 events or 200 non-events
+    (Van Calster et al. 2016).
+    """
+    from statsmodels.nonparametric.smoothers_lowess import lowess
+
+    f = float(frac)
+    if not (0.0 < f <= 1.0):
+        raise TwofoldError(
+            f"The smoothing fraction {frac!r} is not between 0 and 1; use for "
+            "example 2/3."
+        )
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    n1, n0 = _both_classes(yy)
+    order = np.argsort(pp, kind="stable")
+    if pp.size > _SMOOTH_MAX_POINTS:
+        pick = np.round(np.linspace(0, pp.size - 1, _SMOOTH_MAX_POINTS)).astype(np.intp)
+        order = order[pick]
+    xs = pp[order]
+    ys = yy[order]
+    delta = 0.01 * float(xs[-1] - xs[0])
+    fitted = lowess(ys, xs, frac=f, it=0, delta=delta, is_sorted=True,
+                    return_sorted=False)
+    return SmoothedCalibration(
+        predicted=_readonly(xs),
+        observed=_readonly(np.asarray(fitted, dtype=float)),
+        frac=f,
+        n_used=int(xs.size),
+        n_total=int(pp.size),
+        n_events=n1,
+        n_nonevents=n0,
+        unreliable=bool(n1 < _SMOOTH_MIN_EACH or n0 < _SMOOTH_MIN_EACH),
+    )
+
+
+# ---------------------------------------------------------------------------
+# pseudo R-squared
+# ---------------------------------------------------------------------------
+
+
+def pseudo_r2(llf: float, llnull: float, n: int, y, p) -> PseudoR2:
+    """McFadden, Cox-Snell, Nagelkerke and Tjur pseudo-R-squared.
+
+    McFadden = 1 - llf / llnull; Cox-Snell = 1 - exp(2 (llnull - llf) / n);
+    Nagelkerke = Cox-Snell / (1 - exp(2 llnull / n));
+    Tjur = mean(p | y = 1) - mean(p | y = 0).
+
+    Parameters
+    ----------
+    llf : float
+        Log-likelihood of the fitted model.
+    llnull : float
+        Log-likelihood of the intercept-only model on the same rows.
+    n : int
+        Number of rows the model was fitted to.
+    y : array_like
+        Outcome, 1 = event, 0 = non-event.
+    p : array_like
+        Predicted probabilities of the fitted model.
+
+    Returns
+    -------
+    PseudoR2
+
+    Notes
+    -----
+    None of these is a share of explained variance; Tjur's coefficient of
+    discrimination is the easiest to explain (how much higher the average
+    predicted risk is among events than among non-events).
+    """
+    llf = float(llf)
+    llnull = float(llnull)
+    nn = int(n)
+    if not (np.isfinite(llf) and np.isfinite(llnull)) or llnull >= 0.0 or llf > 0.0:
+        raise TwofoldError(
+            "The log-likelihoods must be finite and negative (the null one "
+            "strictly); pass the values from the fitted model."
+        )
+    if nn < 1:
+        raise TwofoldError(
+            f"The number of rows {n!r} is not positive; pass the number of rows "
+            "the model was fitted to."
+        )
+    yy = _outcome(y)
+    pp = _probabilities(p, yy.size)
+    _both_classes(yy)
+    cox_snell = 1.0 - np.exp(2.0 * (llnull - llf) / nn)
+    max_cs = 1.0 - np.exp(2.0 * llnull / nn)
+    events = yy == 1.0
+    return PseudoR2(
+        mcfadden=float(1.0 - llf / llnull),
+        cox_snell=float(cox_snell),
+        nagelkerke=float(cox_snell / max_cs),
+        tjur=float(pp[events].mean() - pp[~events].mean()),
+    )

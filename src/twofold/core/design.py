@@ -1,0 +1,214 @@
+"""Turning columns into the numbers a model uses.
+
+Each predictor column is encoded once into a :class:`TermBlock`: one column of
+numbers for a numeric predictor, or indicator (0/1) columns against a
+reference level for a categorical or two-valued text predictor (a k-level
+factor gives k-1 columns).  A design matrix is the intercept plus the blocks
+of the chosen predictors, restricted to the rows complete for all of them.
+
+The design is built directly in numpy: a formula engine costs far more than
+the fit at the sizes Twofold is meant for.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from twofold.core.errors import ColumnError
+from twofold.core.roles import ColumnInfo, Role, default_reference
+
+
+@dataclass(frozen=True)
+class TermBlock:
+    """The encoded columns of one predictor over all rows of the file.
+
+    Attributes
+    ----------
+    column : str
+        The predictor's column name.
+    kind : str
+        ``"numeric"`` or ``"factor"`` (indicators against a reference level).
+    levels : tuple
+        For a factor, the non-reference levels in column order; else ``()``.
+    reference : object
+        For a factor, the reference level; else ``None``.
+    values : numpy.ndarray
+        Shape (n_rows, width), float64; rows with a missing cell hold 0.
+    missing : numpy.ndarray
+        Shape (n_rows,), bool: the cell is missing.
+    """
+
+    column: str
+    kind: str
+    levels: tuple
+    reference: object
+    values: np.ndarray
+    missing: np.ndarray
+
+    @property
+    def width(self) -> int:
+        return self.values.shape[1]
+
+    @property
+    def names(self) -> list[str]:
+        """Parameter names: the column, or ``column[level]`` for factor indicators."""
+        if self.kind == "numeric":
+            return [self.column]
+        return [f"{self.column}[{lvl}]" for lvl in self.levels]
+
+
+def encode(series, info: ColumnInfo, reference=None) -> TermBlock:
+    """Encode one predictor column.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        The column's cells.
+    info : ColumnInfo
+        Its description; ``info.role`` decides the encoding.  A binary column
+        of numbers stays numeric (its coefficient is per unit), a binary or
+        categorical column of text becomes indicators.
+    reference : optional
+        The reference level for a factor; default :func:`default_reference`.
+    """
+    import pandas as pd
+
+    role = info.role
+    if not role.is_predictor:
+        raise ColumnError(
+            f"The column '{info.name}' is marked as {role.value} ({info.reason}), so it cannot be a predictor; "
+            "change its role first if you really mean to use it."
+        )
+    missing = series.isna().to_numpy()
+    as_factor = role == Role.CATEGORICAL or (role == Role.BINARY and not info.is_number)
+    if not as_factor:
+        try:
+            values = pd.to_numeric(series, errors="raise").to_numpy(dtype=float, na_value=np.nan)
+        except (ValueError, TypeError):
+            raise ColumnError(
+                f"The column '{info.name}' holds text, so it cannot be used as a number; "
+                "use it as groups (categorical) instead."
+            ) from None
+        values = np.where(missing, 0.0, values).reshape(-1, 1)
+        return TermBlock(info.name, "numeric", (), None, values, missing)
+
+    levels = list(info.levels)
+    if not levels:
+        levels = series.dropna().value_counts().index.tolist()
+    if reference is None:
+        reference = default_reference(info)
+    else:
+        reference = _match_level(levels, reference, info.name)
+    others = [lvl for lvl in levels if lvl != reference]
+    codes = pd.Categorical(series, categories=[reference, *others]).codes
+    width = len(others)
+    values = np.zeros((len(series), width), dtype=float)
+    rows = np.nonzero(codes > 0)[0]
+    values[rows, codes[rows] - 1] = 1.0
+    return TermBlock(info.name, "factor", tuple(others), reference, values, missing)
+
+
+def _match_level(levels, reference, column):
+    for lvl in levels:
+        if lvl == reference or str(lvl) == str(reference):
+            return lvl
+    for lvl in levels:
+        try:
+            if float(lvl) == float(reference):
+                return lvl
+        except (TypeError, ValueError):
+            pass
+    shown = ", ".join(repr(v) for v in levels[:12])
+    raise ColumnError(
+        f"The reference level {reference!r} does not occur in the column '{column}'; its levels are {shown}."
+    )
+
+
+@dataclass(frozen=True)
+class Design:
+    """An intercept plus predictor blocks, on a fixed set of rows.
+
+    Attributes
+    ----------
+    X : numpy.ndarray
+        Shape (n_used, n_params), intercept first, float64, C order.
+    y : numpy.ndarray
+        Shape (n_used,), 1.0 for the event.
+    rows : numpy.ndarray
+        0-based positions of the used rows in the file's data rows.
+    blocks : tuple of TermBlock
+        The predictors, in column order of ``X``.
+    slices : tuple of slice
+        Where each block's parameters sit in ``X``.
+    """
+
+    X: np.ndarray
+    y: np.ndarray
+    rows: np.ndarray
+    blocks: tuple
+    slices: tuple
+
+    @property
+    def names(self) -> list[str]:
+        out = ["intercept"]
+        for block in self.blocks:
+            out.extend(block.names)
+        return out
+
+    @property
+    def predictors(self) -> tuple[str, ...]:
+        return tuple(b.column for b in self.blocks)
+
+    @property
+    def n_params(self) -> int:
+        return self.X.shape[1]
+
+
+def assemble(blocks, y_all: np.ndarray, rows: np.ndarray) -> Design:
+    """Stack the intercept and the blocks on the given rows."""
+    blocks = tuple(blocks)
+    width = 1 + sum(b.width for b in blocks)
+    X = np.empty((len(rows), width), dtype=float)
+    X[:, 0] = 1.0
+    slices = []
+    at = 1
+    for block in blocks:
+        X[:, at:at + block.width] = block.values[rows]
+        slices.append(slice(at, at + block.width))
+        at += block.width
+    return Design(X, y_all[rows].astype(float), rows, blocks, tuple(slices))
+
+
+def aliased_columns(X: np.ndarray, tol: float = 1e-9) -> list[int]:
+    """Columns of ``X`` that are constant or a linear combination of earlier ones.
+
+    Works on the small cross-product matrix, so it costs one pass over the
+    data: each column is kept when the share of its variance not explained by
+    the columns kept before it exceeds ``tol``.  The intercept (column 0) is
+    always kept.  Formula: residual variance of x_j on the kept columns, from
+    the Cholesky factor of X'X.
+    """
+    n, p = X.shape
+    gram = X.T @ X / n
+    keep: list[int] = [0]
+    dropped: list[int] = []
+    for j in range(1, p):
+        # Variance of x_j about its mean, the scale against which "explained" is judged.
+        var_j = gram[j, j] - gram[0, j] ** 2
+        if var_j <= tol * max(gram[j, j], 1e-300):
+            dropped.append(j)
+            continue
+        sub = gram[np.ix_(keep, keep)]
+        cross = gram[keep, j]
+        try:
+            coef = np.linalg.solve(sub, cross)
+        except np.linalg.LinAlgError:
+            coef = np.linalg.lstsq(sub, cross, rcond=None)[0]
+        resid = gram[j, j] - cross @ coef
+        if resid <= tol * var_j:
+            dropped.append(j)
+        else:
+            keep.append(j)
+    return dropped

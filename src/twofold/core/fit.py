@@ -1,0 +1,525 @@
+"""Maximum-likelihood logistic fits and the tests built on them.
+
+The fit itself is statsmodels' ``Logit`` (Newton's method).  What this module
+adds is what an interactive, careful analysis needs around it:
+
+* a rank check done once per design on the small cross-product matrix (so
+  statsmodels' own, costlier check is switched off), with aliased columns
+  dropped and named;
+* the constant-only log-likelihood in closed form from the event rate;
+* warm starts from a previous fit;
+* detection of complete and quasi-complete separation, named by predictor;
+* Wald tests per coefficient and joint Wald tests per multi-level factor, the
+  overall likelihood-ratio (G) test, and the nested likelihood-ratio test.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from twofold.core.design import Design, aliased_columns
+from twofold.core.errors import ModelError, Notice
+
+#: z for a two-sided 95% interval; NIST/SEMATECH e-Handbook normal table gives 1.960.
+Z95 = 1.959963984540054
+
+#: Events per parameter below this draw a warning (Peduzzi et al. 1996, J Clin
+#: Epidemiol 49:1373).  A rule of thumb that later work found weakly supported,
+#: so it warns and never refuses.
+EVENTS_PER_PARAMETER_WARNING = 10
+
+_controller = None
+
+
+def _one_blas_thread():
+    """A context limiting BLAS to one thread: two threads made small fits several times slower."""
+    global _controller
+    try:
+        if _controller is None:
+            from threadpoolctl import ThreadpoolController
+
+            _controller = ThreadpoolController()
+        return _controller.limit(limits=1, user_api="blas")
+    except Exception:  # threadpoolctl missing or unable to inspect: run as is
+        import contextlib
+
+        return contextlib.nullcontext()
+
+
+def null_log_likelihood(y: np.ndarray) -> float:
+    """Log-likelihood of the constant-only model: n1 ln(n1/n) + n0 ln(n0/n)."""
+    n = len(y)
+    n1 = float(y.sum())
+    n0 = n - n1
+    out = 0.0
+    if n1 > 0:
+        out += n1 * math.log(n1 / n)
+    if n0 > 0:
+        out += n0 * math.log(n0 / n)
+    return out
+
+
+@dataclass(frozen=True)
+class TermTest:
+    """A joint Wald test that all of one predictor's coefficients are zero.
+
+    statistic = b' V^-1 b over the predictor's coefficients; chi-square on df.
+    """
+
+    column: str
+    statistic: float
+    df: int
+    p_value: float
+
+
+@dataclass(frozen=True)
+class LikelihoodRatioTest:
+    """G = 2 (lnL_larger - lnL_smaller), chi-square on the difference in parameters."""
+
+    g: float
+    df: int
+    p_value: float
+    added: tuple = ()
+    removed: tuple = ()
+    n_rows: int = 0
+
+    def as_dict(self) -> dict:
+        return {"g": self.g, "df": self.df, "p_value": self.p_value}
+
+
+def chi2_sf(x: float, df: int) -> float:
+    """Upper tail of the chi-square distribution on df degrees of freedom: P(X >= x)."""
+    from scipy.stats import chi2
+
+    return float(chi2.sf(x, df))
+
+
+def wald_p(z):
+    """Two-sided p-value of a Wald z from the standard normal: 2 (1 - Phi(|z|))."""
+    from scipy.stats import norm
+
+    return 2.0 * norm.sf(np.abs(z))
+
+
+class LogisticFit:
+    """A fitted logistic model with its tests, computed once and read-only.
+
+    Build it with :func:`fit_logistic`.  Every statistic is a cached property;
+    nothing is recomputed when it is read again.
+    """
+
+    def __init__(self, design: Design, params, cov, llf, converged, iterations,
+                 kept, dropped_names, notices):
+        self.design = design
+        self._params = np.asarray(params, dtype=float)
+        self._cov = np.asarray(cov, dtype=float)
+        self.llf = float(llf)
+        self.converged = bool(converged)
+        self.iterations = int(iterations)
+        self.kept = np.asarray(kept, dtype=int)
+        self.dropped = tuple(dropped_names)
+        self.notices = list(notices)
+        self._params.setflags(write=False)
+        self._cov.setflags(write=False)
+
+    # ---- parameters -------------------------------------------------
+    @property
+    def params(self) -> np.ndarray:
+        """Estimated coefficients (log odds), intercept first; aliased columns left out."""
+        return self._params
+
+    @property
+    def cov(self) -> np.ndarray:
+        """Estimated covariance of the coefficients: inverse of the observed information."""
+        return self._cov
+
+    @cached_property
+    def names(self) -> list[str]:
+        """Parameter names of the kept columns."""
+        all_names = self.design.names
+        return [all_names[i] for i in self.kept]
+
+    @cached_property
+    def std_errors(self) -> np.ndarray:
+        """Standard errors: sqrt(diag(cov))."""
+        return np.sqrt(np.clip(np.diag(self._cov), 0, None))
+
+    @cached_property
+    def z(self) -> np.ndarray:
+        """Wald z = estimate / standard error."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return self._params / self.std_errors
+
+    @cached_property
+    def p_values(self) -> np.ndarray:
+        """Two-sided p from the standard normal: 2 * (1 - Phi(|z|))."""
+        return wald_p(self.z)
+
+    @cached_property
+    def odds_ratios(self) -> np.ndarray:
+        """exp(estimate)."""
+        with np.errstate(over="ignore"):
+            return np.exp(self._params)
+
+    @cached_property
+    def odds_ratio_ci(self) -> tuple[np.ndarray, np.ndarray]:
+        """95% Wald interval for the odds ratio: exp(b -/+ 1.96 SE)."""
+        with np.errstate(over="ignore"):
+            return (np.exp(self._params - Z95 * self.std_errors),
+                    np.exp(self._params + Z95 * self.std_errors))
+
+    # ---- model ------------------------------------------------------
+    @property
+    def n_used(self) -> int:
+        return len(self.design.y)
+
+    @cached_property
+    def events(self) -> int:
+        return int(self.design.y.sum())
+
+    @property
+    def n_params(self) -> int:
+        """Number of estimated coefficients, intercept included."""
+        return len(self._params)
+
+    @cached_property
+    def null_llf(self) -> float:
+        """Log-likelihood of the constant-only model on the same rows (closed form)."""
+        return null_log_likelihood(self.design.y)
+
+    @property
+    def deviance(self) -> float:
+        """-2 lnL (for 0/1 records the saturated log-likelihood is 0)."""
+        return -2.0 * self.llf
+
+    @property
+    def null_deviance(self) -> float:
+        """-2 lnL of the constant-only model."""
+        return -2.0 * self.null_llf
+
+    @cached_property
+    def overall(self) -> LikelihoodRatioTest:
+        """The G test against the constant model: G = null deviance - deviance on k - 1 df."""
+        g = max(self.null_deviance - self.deviance, 0.0)
+        df = self.n_params - 1
+        p = chi2_sf(g, df) if df > 0 else float("nan")
+        return LikelihoodRatioTest(g, df, p, n_rows=self.n_used)
+
+    @property
+    def aic(self) -> float:
+        """AIC = -2 lnL + 2k."""
+        return self.deviance + 2 * self.n_params
+
+    @property
+    def bic(self) -> float:
+        """BIC = -2 lnL + k ln(n)."""
+        return self.deviance + self.n_params * math.log(self.n_used)
+
+    @property
+    def mcfadden_r2(self) -> float:
+        """McFadden's R-squared: 1 - lnL / lnL0."""
+        return 1.0 - self.llf / self.null_llf if self.null_llf != 0 else float("nan")
+
+    @cached_property
+    def events_per_parameter(self) -> float:
+        """min(events, non-events) / number of non-intercept parameters."""
+        rarer = min(self.events, self.n_used - self.events)
+        k = self.n_params - 1
+        return rarer / k if k > 0 else float("inf")
+
+    @cached_property
+    def linear_predictor(self) -> np.ndarray:
+        """X b on the used rows."""
+        return self.design.X[:, self.kept] @ self._params
+
+    @cached_property
+    def fitted(self) -> np.ndarray:
+        """Predicted probabilities on the used rows: 1 / (1 + exp(-X b))."""
+        from scipy.special import expit
+
+        return expit(self.linear_predictor)
+
+    # ---- terms ------------------------------------------------------
+    @cached_property
+    def term_index(self) -> dict[str, np.ndarray]:
+        """For each predictor column, the positions of its kept parameters."""
+        where = {int(c): i for i, c in enumerate(self.kept)}
+        out = {}
+        for block, sl in zip(self.design.blocks, self.design.slices):
+            out[block.column] = np.array([where[c] for c in range(sl.start, sl.stop) if c in where], dtype=int)
+        return out
+
+    @cached_property
+    def term_tests(self) -> dict[str, TermTest]:
+        """Joint Wald chi-square for each predictor with two or more kept coefficients."""
+        out = {}
+        for column, idx in self.term_index.items():
+            if len(idx) < 2:
+                continue
+            b = self._params[idx]
+            v = self._cov[np.ix_(idx, idx)]
+            try:
+                stat = float(b @ np.linalg.solve(v, b))
+            except np.linalg.LinAlgError:
+                stat = float("nan")
+            out[column] = TermTest(column, stat, len(idx), chi2_sf(stat, len(idx)))
+        return out
+
+    @cached_property
+    def coefficient_rows(self) -> list[dict]:
+        """One record per kept coefficient (intercept first) with all its figures."""
+        lo, hi = self.odds_ratio_ci
+        level_of = {}
+        for block, sl in zip(self.design.blocks, self.design.slices):
+            for j, c in enumerate(range(sl.start, sl.stop)):
+                level_of[c] = (block.column, block.levels[j] if block.kind == "factor" else None,
+                               block.reference if block.kind == "factor" else None)
+        rows = []
+        for i, c in enumerate(self.kept):
+            column, level, reference = level_of.get(int(c), (None, None, None))
+            rows.append({
+                "name": self.names[i], "column": column, "level": level, "reference": reference,
+                "estimate": float(self._params[i]), "std_error": float(self.std_errors[i]),
+                "z": float(self.z[i]), "p_value": float(self.p_values[i]),
+                "odds_ratio": float(self.odds_ratios[i]),
+                "or_ci_low": float(lo[i]), "or_ci_high": float(hi[i]),
+            })
+        return rows
+
+    def start_for(self, design: Design) -> np.ndarray:
+        """Starting values for fitting ``design`` from this fit.
+
+        Shared parameters keep their estimates, new ones start at 0, and the
+        mean effect of each removed column is folded into the intercept
+        (without that, Newton can diverge on unscaled columns).
+        """
+        mine = dict(zip(self.names, self._params))
+        names = design.names
+        start = np.array([mine.get(n, 0.0) for n in names])
+        target = set(names)
+        shift = 0.0
+        for name, value in mine.items():
+            if name != "intercept" and name not in target:
+                j = self.design.names.index(name)
+                shift += value * float(self.design.X[:, j].mean())
+        start[0] += shift
+        return start
+
+
+def _separation_suspects(design: Design, X: np.ndarray, y: np.ndarray, params, kept_names,
+                         converged: bool, fitted: np.ndarray) -> tuple[list[str], list[str]]:
+    """Predictors involved in separation: (from empty cells, from diverging estimates)."""
+    empty_cells = []
+    for block in design.blocks:
+        if block.kind != "factor":
+            continue
+        # Events and non-events in the reference level and each indicator level.
+        values = block.values[design.rows]
+        in_ref = values.sum(axis=1) == 0
+        groups = [in_ref] + [values[:, j] == 1 for j in range(block.width)]
+        for g in groups:
+            n_g = int(g.sum())
+            ev = float(y[g].sum())
+            if n_g > 0 and (ev == 0 or ev == n_g):
+                empty_cells.append(block.column)
+                break
+    diverging = []
+    extreme = (fitted < 1e-8) | (fitted > 1 - 1e-8)
+    if not converged or extreme.any():
+        # Take a few more Newton steps: under separation the estimates keep growing
+        # along the separating direction while the likelihood barely moves.
+        b = np.array(params, dtype=float)
+        from scipy.special import expit
+
+        for _ in range(8):
+            p = expit(X @ b)
+            w = p * (1 - p)
+            h = (X * w[:, None]).T @ X
+            g = X.T @ (y - p)
+            try:
+                step = np.linalg.lstsq(h, g, rcond=None)[0]
+            except np.linalg.LinAlgError:
+                break
+            b = b + step
+        moved = np.abs(b - params) > 0.5
+        column_of = {}
+        for block, sl in zip(design.blocks, design.slices):
+            for nm in design.names[sl]:
+                column_of[nm] = block.column
+        for i, nm in enumerate(kept_names):
+            if i > 0 and moved[i]:
+                col = column_of.get(nm)
+                if col and col not in diverging:
+                    diverging.append(col)
+    return empty_cells, diverging
+
+
+def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None) -> LogisticFit:
+    """Fit a logistic model by maximum likelihood (statsmodels ``Logit``, Newton).
+
+    Parameters
+    ----------
+    design : Design
+        Intercept and predictors on the rows to use.
+    start : array_like, optional
+        Starting values for all columns of ``design.X`` (e.g. from
+        :meth:`LogisticFit.start_for`); default: the intercept at the logit of
+        the event rate, slopes at 0.
+    maxiter : int
+        Newton iterations at most.
+    dropped : list of int, optional
+        Aliased columns when already known for this design (skips the rank
+        check); default: found by :func:`~twofold.core.design.aliased_columns`.
+
+    Returns
+    -------
+    LogisticFit
+
+    Raises
+    ------
+    ModelError
+        No rows, or only one outcome value among the rows used.
+    """
+    X_all, y = design.X, design.y
+    n = len(y)
+    if n == 0:
+        raise ModelError("No rows are complete for the chosen outcome and predictors; "
+                         "untick predictors with many missing values or check the data.")
+    events = float(y.sum())
+    if events == 0 or events == n:
+        which = "events" if events == 0 else "non-events"
+        raise ModelError(f"The {n} rows used contain no {which}, so no model can be fitted; "
+                         "check the outcome, the event value and the rows used.")
+    notices: list[Notice] = []
+    if dropped is None:
+        dropped = aliased_columns(X_all)
+    names = design.names
+    kept = [j for j in range(X_all.shape[1]) if j not in set(dropped)]
+    if dropped:
+        shown = ", ".join(names[j] for j in dropped)
+        notices.append(Notice(
+            "collinear",
+            f"Left out {shown}: it is constant on the rows used or exactly determined by the other predictors, "
+            "so its effect cannot be separated from theirs.",
+            subjects=tuple(dict.fromkeys(_column_of(design, j) for j in dropped)),
+        ))
+    X = X_all if not dropped else np.ascontiguousarray(X_all[:, kept])
+    if start is None:
+        b0 = np.zeros(len(kept))
+        rate = events / n
+        b0[0] = math.log(rate / (1 - rate))
+    else:
+        b0 = np.asarray(start, dtype=float)
+        if len(b0) == X_all.shape[1]:
+            b0 = b0[kept]
+
+    from statsmodels.discrete.discrete_model import Logit
+
+    with _one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
+        warnings.simplefilter("always")
+        model = Logit(y, X, check_rank=False)
+        try:
+            res = model.fit(method="newton", start_params=b0, maxiter=maxiter, disp=0,
+                            warn_convergence=False)
+            params = np.asarray(res.params, dtype=float)
+            cov = np.asarray(res.normalized_cov_params, dtype=float)
+            converged = bool(res.mle_retvals.get("converged", False))
+            iterations = int(res.mle_retvals.get("iterations", 0))
+            llf = float(res.llf)
+        except np.linalg.LinAlgError:
+            # A singular information matrix at some step: typical of separation.
+            params, converged, iterations = b0, False, 0
+            from scipy.special import expit
+
+            p = expit(X @ params)
+            llf = float(np.sum(y * np.log(np.clip(p, 1e-300, 1)) + (1 - y) * np.log(np.clip(1 - p, 1e-300, 1))))
+            h = (X * (p * (1 - p))[:, None]).T @ X
+            cov = np.linalg.pinv(h)
+    complete_sep = any("separation" in str(w.message).lower() for w in caught)
+    bad_cov = not np.all(np.isfinite(cov)) or np.any(np.diag(cov) < 0)
+    if bad_cov:
+        cov = np.where(np.isfinite(cov), cov, np.nan)
+
+    from scipy.special import expit
+
+    fitted = expit(X @ params)
+    empty, diverging = _separation_suspects(design, X, y, params, [names[j] for j in kept], converged, fitted)
+    suspects = list(dict.fromkeys(empty + diverging))
+    if complete_sep or suspects:
+        kind = "completely" if complete_sep else "almost completely"
+        who = ", ".join(f"'{c}'" for c in suspects) if suspects else "the predictors together"
+        notices.append(Notice(
+            "separation",
+            f"{who} {'separates' if len(suspects) == 1 else 'separate'} the outcome {kind} "
+            "(some group has only events or only non-events), so its odds ratio runs off towards 0 or "
+            "infinity and its Wald test and interval cannot be trusted; a penalised (Firth) fit or merging "
+            "groups is the usual remedy.",
+            subjects=tuple(suspects),
+        ))
+    if not converged:
+        notices.append(Notice(
+            "not_converged",
+            f"The fit did not settle after {iterations} iterations, so the estimates may be off; "
+            "this usually comes with separation or with predictors on very different scales.",
+        ))
+    fit = LogisticFit(design, params, cov, llf, converged, iterations, kept,
+                      [names[j] for j in dropped], notices)
+    epp = fit.events_per_parameter
+    if fit.n_params > 1 and epp < EVENTS_PER_PARAMETER_WARNING:
+        fit.notices.append(Notice(
+            "few_events",
+            f"Only {epp:.1f} of the rarer outcome per estimated coefficient (fewer than 10, a rule of thumb "
+            "from Peduzzi et al. 1996): estimates may be unstable and odds ratios exaggerated; "
+            "consider fewer predictors.",
+        ))
+    return fit
+
+
+def _column_of(design: Design, j: int) -> str | None:
+    for block, sl in zip(design.blocks, design.slices):
+        if sl.start <= j < sl.stop:
+            return block.column
+    return None
+
+
+def nested_test(smaller: LogisticFit, larger: LogisticFit) -> LikelihoodRatioTest:
+    """The likelihood-ratio test of a smaller model nested in a larger one.
+
+    G = 2 (lnL_larger - lnL_smaller) on df = difference in the number of
+    coefficients (a k-level factor counts k - 1).  Both must be fitted on the
+    same rows.
+
+    Raises
+    ------
+    ModelError
+        When the smaller model is not nested in the larger, or the rows differ.
+    """
+    small_cols = set(smaller.design.predictors)
+    large_cols = set(larger.design.predictors)
+    if not small_cols <= large_cols:
+        extra = ", ".join(sorted(small_cols - large_cols))
+        raise ModelError(
+            f"The smaller model is not nested in the larger one: it has {extra}, which the larger model lacks; "
+            "compare them by AIC instead, or add those predictors to the larger model."
+        )
+    for col in small_cols:
+        a = smaller.design.blocks[smaller.design.predictors.index(col)]
+        b = larger.design.blocks[larger.design.predictors.index(col)]
+        if a.kind != b.kind:
+            raise ModelError(f"'{col}' is coded differently in the two models, so they are not nested; "
+                             "use the same role for it in both.")
+    if len(smaller.design.rows) != len(larger.design.rows) or not np.array_equal(smaller.design.rows, larger.design.rows):
+        raise ModelError("The two models were fitted on different rows, so the likelihood-ratio test is not valid; "
+                         "refit the smaller model on the rows of the larger one.")
+    df = larger.n_params - smaller.n_params
+    g = 2.0 * (larger.llf - smaller.llf)
+    # Rounding can leave a tiny negative G when nothing was added.
+    g = max(g, 0.0) if g > -1e-6 else g
+    p = chi2_sf(g, df) if df > 0 else float("nan")
+    added = tuple(c for c in larger.design.predictors if c not in small_cols)
+    return LikelihoodRatioTest(g, df, p, added=added, n_rows=larger.n_used)

@@ -1,0 +1,103 @@
+"""The figures of a fit as plain data: the one structure behind JSON, text and the window."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from twofold.core.fit import LikelihoodRatioTest, LogisticFit
+
+#: Shown with every set of results.
+CAUTION = (
+    "These figures describe statistical associations in the loaded records, not causes. "
+    "Decisions about any patient's care rest with licensed clinicians and local policy."
+)
+
+
+def clean_number(x):
+    """A float for JSON: NaN and infinities become None; whole-number floats stay floats."""
+    if x is None:
+        return None
+    if isinstance(x, (bool, np.bool_)):
+        return bool(x)
+    if isinstance(x, (int, np.integer)):
+        return int(x)
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def plain_value(v):
+    """An outcome or level value for JSON: 1.0 -> 1, numpy scalars -> Python."""
+    if isinstance(v, (np.generic,)):
+        v = v.item()
+    if isinstance(v, float) and v.is_integer():
+        return int(v)
+    return v
+
+
+def _test(t: LikelihoodRatioTest | None):
+    if t is None:
+        return None
+    return {"g": clean_number(t.g), "df": int(t.df), "p_value": clean_number(t.p_value)}
+
+
+def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTest | None = None,
+               smaller: list | None = None) -> dict:
+    """Everything about a fit, as the JSON contract of ``twofold fit`` lays it out.
+
+    Fields: rows_read, rows_used, events, outcome, event, intercept, terms,
+    log_likelihood, null_log_likelihood, deviance, aic, bic, overall, nested,
+    warnings, plus extra context (predictors, term_tests, events_per_parameter,
+    mcfadden_r2, missing counts, caution).
+    """
+    rows = fit.coefficient_rows
+    intercept = rows[0]
+    account = getattr(fit, "account", None)
+    terms = []
+    for r in rows[1:]:
+        terms.append({
+            "column": r["column"],
+            "level": plain_value(r["level"]) if r["level"] is not None else None,
+            "reference": plain_value(r["reference"]) if r["reference"] is not None else None,
+            **{k: clean_number(r[k]) for k in ("estimate", "std_error", "z", "p_value",
+                                                "odds_ratio", "or_ci_low", "or_ci_high")},
+        })
+    return {
+        "method": "maximum likelihood",
+        "outcome": outcome,
+        "event": plain_value(event),
+        "predictors": list(fit.design.predictors),
+        "rows_read": account.rows_read if account else fit.n_used,
+        "rows_missing_outcome": account.missing_outcome if account else 0,
+        "missing_by_column": dict(account.missing_by_column) if account else {},
+        "rows_used": fit.n_used,
+        "events": fit.events,
+        "nonevents": fit.n_used - fit.events,
+        "parameters": fit.n_params,
+        "events_per_parameter": clean_number(fit.events_per_parameter),
+        "converged": fit.converged,
+        "iterations": fit.iterations,
+        "dropped_columns": list(fit.dropped),
+        "intercept": {k: clean_number(intercept[k]) for k in ("estimate", "std_error", "z", "p_value")},
+        "terms": terms,
+        "term_tests": [
+            {"column": t.column, "statistic": clean_number(t.statistic), "df": t.df,
+             "p_value": clean_number(t.p_value)}
+            for t in fit.term_tests.values()
+        ],
+        "log_likelihood": clean_number(fit.llf),
+        "null_log_likelihood": clean_number(fit.null_llf),
+        "deviance": clean_number(fit.deviance),
+        "null_deviance": clean_number(fit.null_deviance),
+        "aic": clean_number(fit.aic),
+        "bic": clean_number(fit.bic),
+        "mcfadden_r2": clean_number(fit.mcfadden_r2),
+        "overall": _test(fit.overall),
+        "nested": None if nested is None else {
+            **_test(nested), "smaller_predictors": list(smaller or []),
+            "added": list(nested.added), "rows": nested.n_rows,
+        },
+        "warnings": [n.as_dict() for n in fit.notices],
+        "caution": CAUTION,
+    }

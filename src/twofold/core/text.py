@@ -1,0 +1,142 @@
+"""A readable plain-text account of a fit, in Twofold's own layout and words.
+
+It reads the record made by :func:`twofold.core.summary.fit_record`, so the
+text shows exactly the figures the JSON carries.
+"""
+
+from __future__ import annotations
+
+import math
+
+
+def fmt_p(p) -> str:
+    """A p-value as people report it: 'below 0.001' or three decimals."""
+    if p is None or (isinstance(p, float) and math.isnan(p)):
+        return "not available"
+    if p < 0.001:
+        return "below 0.001"
+    return f"{p:.3f}"
+
+
+def fmt_num(x, digits: int = 3) -> str:
+    """A number with the given decimals; huge or missing values spelled out."""
+    if x is None:
+        return "n/a"
+    if isinstance(x, float) and math.isinf(x):
+        return "infinite"
+    if abs(x) >= 1e6:
+        return f"{x:.3g}"
+    return f"{x:,.{digits}f}"
+
+
+def fmt_or(x) -> str:
+    """An odds ratio with sensible precision (three significant figures)."""
+    if x is None:
+        return "n/a"
+    if x == 0:
+        return "0"
+    if x >= 1000 or x < 0.001:
+        return f"{x:.2g}"
+    if 0.1 <= x < 10:
+        return f"{x:.3f}"
+    return f"{x:.3g}" if x < 10 else f"{x:.1f}"
+
+
+def reading_overall(p) -> str:
+    """A one-line plain reading of the test against the constant-only model."""
+    if p is None:
+        return "No test is possible without predictors."
+    if p < 0.05:
+        return ("Together, the predictors are associated with the outcome more strongly than chance alone "
+                "would easily explain (an association, not proof of cause).")
+    return ("Together, the predictors do not clearly improve on simply using the overall event rate; "
+            "the data are compatible with no association.")
+
+
+def reading_nested(p, added) -> str:
+    """A one-line plain reading of the nested likelihood-ratio test."""
+    what = ", ".join(added) if added else "the extra predictors"
+    if p is None:
+        return "No test: the two models have the same number of coefficients."
+    if p < 0.05:
+        return f"Adding {what} improves the fit more than chance alone would easily explain."
+    return f"Adding {what} does not clearly improve the fit; the simpler model may serve as well."
+
+
+def _term_label(t: dict) -> str:
+    if t["level"] is None:
+        return f"{t['column']} (per 1 unit)"
+    return f"{t['column']}: {t['level']} vs {t['reference']}"
+
+
+def describe(record: dict, source: str = "") -> str:
+    """The plain-text account of a fit record."""
+    out: list[str] = []
+    add = out.append
+    event = record["event"]
+    add(f"Logistic model for '{record['outcome']}' (event: {event})" + (f", data: {source}" if source else ""))
+    add("")
+    add("Records")
+    ev, non = record["events"], record["nonevents"]
+    add(f"  {record['rows_read']:,} read, {record['rows_used']:,} used: "
+        f"{ev:,} with the event ({100 * ev / max(record['rows_used'], 1):.1f}%), {non:,} without.")
+    lost = []
+    if record["rows_missing_outcome"]:
+        lost.append(f"{record['rows_missing_outcome']:,} had no outcome")
+    for col, n in record["missing_by_column"].items():
+        if n:
+            lost.append(f"{n:,} missing '{col}'")
+    if lost:
+        add("  Left out: " + "; ".join(lost) + ".")
+    epp = record["events_per_parameter"]
+    add(f"  {fmt_num(epp, 1)} of the rarer outcome per estimated coefficient ({record['parameters'] - 1} besides the intercept).")
+    add("")
+    overall = record["overall"]
+    add("Does the model as a whole carry information?")
+    if overall["df"] > 0:
+        add(f"  Likelihood-ratio (G) test against the constant-only model: G = {fmt_num(overall['g'], 2)} "
+            f"on {overall['df']} degrees of freedom, p-value {fmt_p(overall['p_value'])}.")
+    add("  " + reading_overall(overall["p_value"] if overall["df"] > 0 else None))
+    add(f"  Log-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only {fmt_num(record['null_log_likelihood'], 2)}); "
+        f"deviance {fmt_num(record['deviance'], 2)}; AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
+        f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
+    add("")
+    add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)")
+    labels = [_term_label(t) for t in record["terms"]] + ["baseline odds (intercept)"]
+    width = max([len(s) for s in labels] + [20])
+    head = f"  {'predictor':<{width}}  {'odds ratio':>10}  {'95% CI':>17}  {'p-value':>11}  {'Wald z':>7}  {'coefficient':>11}  {'std. error':>10}"
+    add(head)
+    add("  " + "-" * (len(head) - 2))
+    joint = {t["column"]: t for t in record["term_tests"]}
+    shown_joint = set()
+    for t, label in zip(record["terms"], labels):
+        col = t["column"]
+        if col in joint and col not in shown_joint:
+            j = joint[col]
+            add(f"  {col} as a whole: joint Wald chi-square {fmt_num(j['statistic'], 2)} on {j['df']} degrees of freedom, "
+                f"p-value {fmt_p(j['p_value'])}")
+            shown_joint.add(col)
+        ci = f"{fmt_or(t['or_ci_low'])} to {fmt_or(t['or_ci_high'])}"
+        add(f"  {label:<{width}}  {fmt_or(t['odds_ratio']):>10}  {ci:>17}  {fmt_p(t['p_value']):>11}  "
+            f"{fmt_num(t['z'], 2):>7}  {fmt_num(t['estimate'], 4):>11}  {fmt_num(t['std_error'], 4):>10}")
+    i = record["intercept"]
+    add(f"  {labels[-1]:<{width}}  {'':>10}  {'':>17}  {fmt_p(i['p_value']):>11}  "
+        f"{fmt_num(i['z'], 2):>7}  {fmt_num(i['estimate'], 4):>11}  {fmt_num(i['std_error'], 4):>10}")
+    if record["dropped_columns"]:
+        add("  Left out as constant or duplicated: " + ", ".join(record["dropped_columns"]) + ".")
+    nested = record["nested"]
+    if nested is not None:
+        add("")
+        smaller = ", ".join(nested["smaller_predictors"]) or "no predictors (constant only)"
+        add(f"Smaller model ({smaller}) against this one, both on the same {nested['rows']:,} rows")
+        add(f"  Likelihood-ratio test: G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
+            f"p-value {fmt_p(nested['p_value'])}.")
+        add("  " + reading_nested(nested["p_value"] if nested["df"] > 0 else None, nested["added"]))
+    if record["warnings"]:
+        add("")
+        add("Warnings")
+        for w in record["warnings"]:
+            add(f"  - {w['message']}")
+    add("")
+    add("Caution: " + record["caution"])
+    return "\n".join(out) + "\n"
