@@ -34,7 +34,7 @@ from twofold.core.discrimination import (
     _readonly,
     _values,
 )
-from twofold.core.errors import Notice, TwofoldError
+from twofold.core.errors import ModelError, Notice, TwofoldError
 
 __all__ = [
     "CalibrationFit",
@@ -276,35 +276,51 @@ def scaled_brier(y, p) -> float:
 # ---------------------------------------------------------------------------
 
 
-def _fit_binomial(y, exog, offset=None):
-    """Fit a binomial GLM, turning statsmodels warnings into notices."""
+def _fit_logistic(y, exog, start, offset=None):
+    """Fit a logistic regression by Newton's method, with notices.
+
+    statsmodels ``Logit`` is used rather than the binomial GLM because its
+    Newton steps are several times faster on large data; both maximise the
+    same likelihood.  Newton starts from perfect calibration (``start``),
+    usually close to the answer.  Warnings are turned into notices.
+    """
     import statsmodels.api as sm
     from statsmodels.tools.sm_exceptions import (
         ConvergenceWarning,
+        PerfectSeparationError,
         PerfectSeparationWarning,
     )
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        res = sm.GLM(y, exog, family=sm.families.Binomial(), offset=offset).fit()
+        try:
+            res = sm.Logit(y, exog, offset=offset).fit(start_params=start, disp=0)
+        except (np.linalg.LinAlgError, PerfectSeparationError) as exc:
+            raise ModelError(
+                "The recalibration model could not be fitted because the linear "
+                "predictor separates events from non-events; check the "
+                "predictions for extreme values."
+            ) from exc
+    categories = {w.category for w in caught}
     notices = []
-    for w in caught:
-        if issubclass(w.category, PerfectSeparationWarning):
-            notices.append(
-                Notice(
-                    "separation",
-                    "The linear predictor separates events from non-events "
-                    "completely, so the calibration estimates are unreliable.",
-                )
+    if any(issubclass(c, PerfectSeparationWarning) for c in categories):
+        notices.append(
+            Notice(
+                "separation",
+                "The linear predictor separates events from non-events "
+                "completely, so the calibration estimates are unreliable.",
             )
-        elif issubclass(w.category, ConvergenceWarning):
-            notices.append(
-                Notice(
-                    "not_converged",
-                    "The recalibration model did not converge, so the "
-                    "calibration estimates are unreliable.",
-                )
+        )
+    if not res.mle_retvals.get("converged", True) or any(
+        issubclass(c, ConvergenceWarning) for c in categories
+    ):
+        notices.append(
+            Notice(
+                "not_converged",
+                "The recalibration model did not converge, so the "
+                "calibration estimates are unreliable.",
             )
+        )
     return res, notices
 
 
@@ -341,9 +357,9 @@ def calibration_slope_intercept(y, lp, level: float = 0.95) -> CalibrationFit:
     alpha = 1.0 - level
     ones = np.ones((yy.size, 1))
 
-    res_slope, notes_slope = _fit_binomial(yy, np.column_stack([ones, x]))
+    res_slope, notes_slope = _fit_logistic(yy, np.column_stack([ones, x]), [0.0, 1.0])
     ci_slope = np.asarray(res_slope.conf_int(alpha=alpha))
-    res_int, notes_int = _fit_binomial(yy, ones, offset=x)
+    res_int, notes_int = _fit_logistic(yy, ones, [0.0], offset=x)
     ci_int = np.asarray(res_int.conf_int(alpha=alpha))
 
     # Same problem reported once even if both fits met it.

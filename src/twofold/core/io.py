@@ -181,7 +181,7 @@ def _read_workbook(path: Path, sheet: str | None):
         raise DataFileError(
             f"{path.name} has no sheet named '{sheet}'; its sheets are: {', '.join(names)}."
         )
-    frame = book.parse(sheet, na_values=list(MISSING_MARKERS), keep_default_na=False)
+    frame = pd.read_excel(book, sheet_name=sheet, na_values=list(MISSING_MARKERS), keep_default_na=False)
     return frame, sheet
 
 

@@ -1,0 +1,194 @@
+"""The model ladder: every change of predictors adds a rung, all on the same rows.
+
+Each rung is a fitted model.  The ladder keeps every rung on the rows that
+are complete for every predictor any rung uses, so that any two nested rungs
+can be compared by a valid likelihood-ratio test.  When a new predictor has
+missing values and the common rows shrink, every rung is refitted on the new
+common rows and the ladder says so.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from types import SimpleNamespace
+
+import numpy as np
+
+from twofold.core.errors import ModelError, Notice
+from twofold.core.events import Event
+from twofold.core.fit import LikelihoodRatioTest, LogisticFit, nested_test
+
+
+@dataclass
+class Rung:
+    """One model of the ladder.
+
+    Attributes
+    ----------
+    predictors : tuple of str
+    fit : LogisticFit
+    added, removed : tuple of str
+        What changed from the rung before.
+    against_previous : LikelihoodRatioTest or None
+        The nested test against the rung before, when one is nested in the other.
+    """
+
+    predictors: tuple
+    fit: LogisticFit
+    added: tuple = ()
+    removed: tuple = ()
+    against_previous: LikelihoodRatioTest | None = None
+
+    @property
+    def n_params(self) -> int:
+        return self.fit.n_params
+
+    def as_dict(self) -> dict:
+        t = self.against_previous
+        return {
+            "predictors": list(self.predictors), "parameters": self.fit.n_params,
+            "log_likelihood": self.fit.llf, "aic": self.fit.aic, "bic": self.fit.bic,
+            "added": list(self.added), "removed": list(self.removed),
+            "against_previous": None if t is None else t.as_dict(),
+        }
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Two rungs compared: a likelihood-ratio test when nested, AIC and BIC always.
+
+    ``aic_difference`` is AIC(second) - AIC(first): negative favours the second.
+    """
+
+    first: int
+    second: int
+    nested: bool
+    test: LikelihoodRatioTest | None
+    aic_difference: float
+    bic_difference: float
+    note: str
+
+
+class Ladder:
+    """A sequence of models of one study's outcome, on common rows.
+
+    Parameters
+    ----------
+    study : Study
+        With its outcome set.
+    """
+
+    def __init__(self, study):
+        self.study = study
+        self.rungs: list[Rung] = []
+        self.current: int | None = None
+        self.rows: np.ndarray | None = None
+        self.notices: list[Notice] = []
+        self.events = SimpleNamespace(changed=Event("changed"))
+
+    def __len__(self) -> int:
+        return len(self.rungs)
+
+    @property
+    def used_predictors(self) -> list[str]:
+        """Every predictor used by some rung, in order of first use."""
+        seen: dict[str, None] = {}
+        for rung in self.rungs:
+            for p in rung.predictors:
+                seen.setdefault(p, None)
+        return list(seen)
+
+    def clear(self) -> None:
+        self.rungs.clear()
+        self.current = None
+        self.rows = None
+        self.notices = []
+        self.events.changed.emit("cleared")
+
+    def _test(self, a: Rung, b: Rung) -> LikelihoodRatioTest | None:
+        """The nested test between two rungs when one is nested in the other."""
+        sa, sb = set(a.predictors), set(b.predictors)
+        if sa == sb:
+            return None
+        if sa <= sb:
+            return nested_test(a.fit, b.fit)
+        if sb <= sa:
+            t = nested_test(b.fit, a.fit)
+            return LikelihoodRatioTest(t.g, t.df, t.p_value, added=(), removed=tuple(sorted(sa - sb)), n_rows=t.n_rows)
+        return None
+
+    def add(self, predictors) -> Rung:
+        """Fit the model with these predictors and append it as a new rung.
+
+        Returns the new rung.  If its predictors shrink the common rows, every
+        earlier rung is refitted on the new rows first (a notice says so).
+        """
+        predictors = tuple(self.study.column(p) for p in predictors)
+        union = list(dict.fromkeys(self.used_predictors + list(predictors)))
+        rows = self.study.complete_rows(union)
+        if len(rows) == 0:
+            raise ModelError("No rows are complete for every predictor tried in this ladder; "
+                             "untick the predictor with many missing values or start a new ladder.")
+        self.notices = []
+        if self.rows is not None and not np.array_equal(rows, self.rows):
+            self.notices.append(Notice(
+                "rows_dropped",
+                f"The rows compared changed from {len(self.rows):,} to {len(rows):,} because of missing values "
+                "in a newly used predictor; every model in the ladder was refitted on the new common rows "
+                "so that their tests stay valid.",
+            ))
+            self._refit_all(rows)
+        self.rows = rows
+        previous = self.rungs[self.current] if self.current is not None else None
+        start = previous.fit if previous is not None else None
+        fit = self.study.fit(list(predictors), rows=rows, start=start)
+        rung = Rung(predictors, fit)
+        if previous is not None:
+            rung.added = tuple(p for p in predictors if p not in previous.predictors)
+            rung.removed = tuple(p for p in previous.predictors if p not in predictors)
+            rung.against_previous = self._test(previous, rung)
+        self.rungs.append(rung)
+        self.current = len(self.rungs) - 1
+        self.events.changed.emit("added")
+        return rung
+
+    def _refit_all(self, rows: np.ndarray) -> None:
+        before = None
+        for rung in self.rungs:
+            rung.fit = self.study.fit(list(rung.predictors), rows=rows, start=rung.fit)
+            if before is not None:
+                rung.against_previous = self._test(before, rung)
+            before = rung
+
+    def refit(self) -> None:
+        """Refit every rung (after a change of role or reference level)."""
+        union = self.used_predictors
+        if not union and not self.rungs:
+            return
+        rows = self.study.complete_rows(union)
+        self.rows = rows
+        self._refit_all(rows)
+        self.events.changed.emit("refitted")
+
+    def select(self, index: int) -> Rung:
+        """Return to an earlier rung (it becomes the current model; nothing is removed)."""
+        if not 0 <= index < len(self.rungs):
+            raise ModelError(f"There is no model number {index + 1} in the ladder.")
+        self.current = index
+        self.events.changed.emit("selected")
+        return self.rungs[index]
+
+    def compare(self, i: int, j: int) -> Comparison:
+        """Compare rungs i and j: likelihood-ratio test if nested, else AIC and BIC only."""
+        a, b = self.rungs[i], self.rungs[j]
+        test = self._test(a, b)
+        d_aic = b.fit.aic - a.fit.aic
+        d_bic = b.fit.bic - a.fit.bic
+        if test is not None:
+            note = "One model is nested in the other, so the likelihood-ratio test applies."
+        elif set(a.predictors) == set(b.predictors):
+            note = "The two models have the same predictors."
+        else:
+            note = ("Neither model contains the other, so no likelihood-ratio test applies; "
+                    "compare them by AIC and BIC (lower is better; a difference under 2 is small).")
+        return Comparison(i, j, test is not None, test, d_aic, d_bic, note)

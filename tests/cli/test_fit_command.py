@@ -1,0 +1,144 @@
+"""The ``twofold fit`` command: its JSON contract, its text, and its errors."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+
+ROOT = Path(__file__).resolve().parents[2]
+READMIT = ROOT / "sample_studies" / "readmission_synthetic.csv"
+WOUND = ROOT / "sample_studies" / "wound_infection_synthetic.csv"
+
+
+def run(*args, env_extra=None):
+    """Run the command as a user would, in a separate process."""
+    return subprocess.run([sys.executable, "-m", "twofold.cli", *map(str, args)],
+                          capture_output=True, text=True, timeout=120)
+
+
+def fit_json(*args):
+    res = run("fit", *args, "--json", "-")
+    assert res.returncode == 0, res.stderr
+    return json.loads(res.stdout)
+
+
+TERM_KEYS = {"column", "level", "estimate", "std_error", "z", "p_value", "odds_ratio", "or_ci_low", "or_ci_high"}
+
+
+def test_json_contract_and_values():
+    out = fit_json(READMIT, "--outcome", "readmitted_30d", "--predictor", "age",
+                   "--predictor", "discharge_destination", "--predictor", "lives_alone", "--smaller", "age")
+    for key in ("rows_read", "rows_used", "events", "outcome", "event", "intercept", "terms", "log_likelihood",
+                "null_log_likelihood", "deviance", "aic", "bic", "overall", "nested", "warnings"):
+        assert key in out
+    assert out["event"] == 1
+    assert set(out["intercept"]) >= {"estimate", "std_error", "z", "p_value"}
+    assert all(TERM_KEYS <= set(t) for t in out["terms"])
+    levels = {(t["column"], t["level"]) for t in out["terms"]}
+    assert levels == {("age", None), ("discharge_destination", "home_with_support"),
+                      ("discharge_destination", "care_home"), ("discharge_destination", "other_hospital"),
+                      ("lives_alone", "yes")}
+    assert set(out["overall"]) >= {"g", "df", "p_value"} and out["overall"]["df"] == 5
+    assert out["nested"]["df"] == 4
+    assert {w["code"] for w in out["warnings"]} == {"rows_dropped"}
+    # Outside reference: statsmodels Logit on the complete rows, same design.
+    frame = pd.read_csv(READMIT)[["age", "discharge_destination", "lives_alone", "readmitted_30d"]].dropna()
+    X = pd.DataFrame({"const": 1.0, "age": frame.age})
+    for lvl in ("home_with_support", "care_home", "other_hospital"):
+        X[lvl] = (frame.discharge_destination == lvl).astype(float)
+    X["alone"] = (frame.lives_alone == "yes").astype(float)
+    ref = sm.Logit(frame.readmitted_30d, X).fit(disp=0)
+    assert out["rows_used"] == len(frame)
+    assert out["rows_read"] == 5000
+    assert out["log_likelihood"] == pytest.approx(ref.llf, rel=1e-10)
+    assert out["overall"]["g"] == pytest.approx(ref.llr, rel=1e-8)
+    age = next(t for t in out["terms"] if t["column"] == "age")
+    assert age["odds_ratio"] == pytest.approx(np.exp(ref.params["age"]), rel=1e-7)
+    small = sm.Logit(frame.readmitted_30d, X[["const", "age"]]).fit(disp=0)
+    assert out["nested"]["g"] == pytest.approx(2 * (ref.llf - small.llf), rel=1e-8)
+
+
+def test_separation_warning_and_text_event():
+    out = fit_json(WOUND, "--outcome", "infection", "--event", "yes", "--predictor", "age", "wound_class")
+    assert out["event"] == "yes"
+    codes = {w["code"] for w in out["warnings"]}
+    assert "separation" in codes
+    assert out["nested"] is None
+    assert all(isinstance(w["message"], str) and w["message"] for w in out["warnings"])
+
+
+def test_json_to_a_file_and_reference_option(tmp_path):
+    target = tmp_path / "result.json"
+    res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "discharge_destination",
+              "--reference", "discharge_destination=care_home", "--json", target)
+    assert res.returncode == 0, res.stderr
+    out = json.loads(target.read_text())
+    assert {t["level"] for t in out["terms"]} == {"home", "home_with_support", "other_hospital"}
+
+
+def test_plain_text_account():
+    res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "sex", "--smaller", "age")
+    assert res.returncode == 0, res.stderr
+    text = res.stdout
+    assert "odds ratio" in text and "95% CI" in text and "p-value" in text
+    assert "against the constant-only model" in text
+    assert "Smaller model (age)" in text
+    assert "licensed clinicians" in text
+    assert "*" not in text  # no significance stars
+
+
+@pytest.mark.parametrize("args, fragment", [
+    (["missing.csv", "--outcome", "y", "--predictor", "x"], "does not exist"),
+    ([READMIT, "--outcome", "nope", "--predictor", "age"], "There is no column 'nope'"),
+    ([READMIT, "--outcome", "readmitted_30d", "--predictor", "agee"], "did you mean 'age'"),
+    ([READMIT, "--outcome", "discharge_destination", "--event", "home", "--predictor", "age"], "exactly two"),
+    ([WOUND, "--outcome", "infection", "--predictor", "age"], "Say which value"),
+    ([READMIT, "--outcome", "readmitted_30d", "--predictor", "admission_id"], "identifier"),
+    ([READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "--smaller", "sex"], "not nested"),
+])
+def test_bad_input_gives_one_clear_line(args, fragment):
+    res = run("fit", *args)
+    assert res.returncode != 0
+    assert fragment in res.stderr
+    assert "Traceback" not in res.stderr
+    assert len(res.stderr.strip().splitlines()) == 1
+
+
+def test_empty_file_and_no_usable_rows(tmp_path):
+    empty = tmp_path / "empty.csv"
+    empty.write_text("")
+    res = run("fit", empty, "--outcome", "y", "--predictor", "x")
+    assert res.returncode != 0 and "empty" in res.stderr and "Traceback" not in res.stderr
+    holes = tmp_path / "holes.csv"
+    holes.write_text("x,y\n,1\n,0\n,1\n2,\n")
+    res = run("fit", holes, "--outcome", "y", "--predictor", "x")
+    assert res.returncode != 0 and "Traceback" not in res.stderr
+
+
+def test_the_data_file_is_never_written(tmp_path):
+    data = tmp_path / "d.csv"
+    data.write_bytes(READMIT.read_bytes())
+    before = hashlib.sha256(data.read_bytes()).hexdigest()
+    res = run("fit", data, "--outcome", "readmitted_30d", "--predictor", "age", "--json", data)
+    assert res.returncode != 0 and "never writes" in res.stderr
+    run("fit", data, "--outcome", "readmitted_30d", "--predictor", "age")
+    assert hashlib.sha256(data.read_bytes()).hexdigest() == before
+
+
+def test_fit_path_imports_no_qt_or_matplotlib():
+    code = (
+        "import sys, twofold.cli as c; c.main(['fit', %r, '--outcome', 'readmitted_30d', '--predictor', 'age', "
+        "'--json', '-']); print('MODS', sorted(m for m in sys.modules if m.split('.')[0] in "
+        "('PySide6', 'matplotlib', 'shiboken6')))" % str(READMIT)
+    )
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert res.returncode == 0, res.stderr
+    assert res.stdout.strip().splitlines()[-1] == "MODS []"
