@@ -315,11 +315,11 @@ def _separation_suspects(design: Design, X: np.ndarray, y: np.ndarray, params, k
                          converged: bool, fitted: np.ndarray) -> tuple[list[str], list[str]]:
     """Predictors involved in separation: (from empty cells, from diverging estimates)."""
     empty_cells = []
-    for block in design.blocks:
+    for block, sl in zip(design.blocks, design.slices):
         if block.kind != "factor":
             continue
         # Events and non-events in the reference level and each indicator level.
-        values = block.values[design.rows]
+        values = design.X[:, sl]
         in_ref = values.sum(axis=1) == 0
         groups = [in_ref] + [values[:, j] == 1 for j in range(block.width)]
         for g in groups:

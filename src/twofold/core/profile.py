@@ -171,8 +171,8 @@ def _profile_interval(
     estimate and grows away from it.  The search steps outward from the
     estimate, doubling the distance, until the deviance exceeds the cut-off,
     then refines the crossing with :func:`scipy.optimize.brentq`.  If the
-    deviance stays below the cut-off out to ``_LOGIT_LIMIT / scale`` (and ten
-    first steps), that side is reported as infinite.
+    deviance stays below the cut-off out to ``_LOGIT_LIMIT / scale`` from the
+    estimate, that side is reported as infinite.
 
     Returns ``(lower, upper, lower_infinite, upper_infinite)``.
     """
@@ -182,11 +182,17 @@ def _profile_interval(
     cutoff = float(chi2.ppf(level, 1))
 
     def excess(b: float) -> float:
-        return deviance(b) - cutoff
+        value = deviance(b) - cutoff
+        # brentq interpolates, so an infinite deviance (an impossible
+        # coefficient) is replaced by a large finite one of the same sign.
+        return min(value, 1e12)
 
-    # First trial: the Wald half-width, when the standard error is usable.
-    first = step * math.sqrt(cutoff) if (math.isfinite(step) and step > 0) else 1.0 / scale
-    limit = max(_LOGIT_LIMIT / scale, 10.0 * first)
+    # First trial: the Wald half-width, but no more than 10 log-odds units
+    # per standard deviation of the predictor (under separation the Wald
+    # standard error is huge and meaningless).
+    wald = step * math.sqrt(cutoff) if (math.isfinite(step) and step > 0) else math.inf
+    first = min(wald, 10.0 / scale)
+    limit = _LOGIT_LIMIT / scale
     # brentq tolerances: far below any printed digit, above the noise of the
     # inner re-fits.
     xtol = 1e-10 * max(1.0, 1.0 / scale)
@@ -261,9 +267,15 @@ def _logit_ml(
         grad = X.T @ (y - p)
         hess = (X * w[:, None]).T @ X
         delta = _solve_sym(hess, grad)
-        size = float(np.max(np.abs(delta)))
-        if size <= tol:
+        size = float(np.max(np.abs(delta))) if np.all(np.isfinite(delta)) else math.inf
+        steep = float(np.max(np.abs(grad)))
+        if size <= tol and steep <= 1e-8 * (1.0 + y.shape[0]):
             return beta, llf, True
+        if size <= tol or not math.isfinite(size):
+            # The weights have underflowed (far out on the logit scale) while
+            # the slope has not: climb along the gradient instead.
+            delta = grad * (max_step / steep)
+            size = max_step
         if size > max_step:
             delta *= max_step / size
         # Halve until the log-likelihood does not fall (allowing round-off).
@@ -378,6 +390,7 @@ class ProfileTable:
 def _interval_notices(
     lower_inf: bool, upper_inf: bool, converged: bool, subject: str | None
 ) -> tuple[Notice, ...]:
+    subjects = () if subject is None else (str(subject),)
     notices = []
     for side, flag in (("lower", lower_inf), ("upper", upper_inf)):
         if flag:
@@ -387,7 +400,7 @@ def _interval_notices(
                     f"The {side} end of the confidence interval is infinite because "
                     "the likelihood never falls to the cut-off on that side, which "
                     "happens when a predictor separates events from non-events.",
-                    subject,
+                    subjects=subjects,
                 )
             )
     if not converged:
@@ -396,7 +409,7 @@ def _interval_notices(
                 "not_converged",
                 "Some of the re-fits used to trace the profile likelihood did not "
                 "converge, so the interval ends may be slightly off.",
-                subject,
+                subjects=subjects,
             )
         )
     return tuple(notices)

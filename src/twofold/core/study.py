@@ -148,12 +148,16 @@ class Study:
             self._blocks[name] = encode(self.frame[name], self._columns[name], self._references.get(name))
         return self._blocks[name]
 
-    def complete_rows(self, predictors) -> np.ndarray:
-        """0-based positions of rows with the outcome and every named predictor present."""
+    def complete_mask(self, predictors) -> np.ndarray:
+        """True for rows with the outcome and every named predictor present."""
         ok = ~np.isnan(self._require_outcome())
         for name in predictors:
             ok &= ~self.block(name).missing
-        return np.flatnonzero(ok)
+        return ok
+
+    def complete_rows(self, predictors) -> np.ndarray:
+        """0-based positions of rows with the outcome and every named predictor present."""
+        return np.flatnonzero(self.complete_mask(predictors))
 
     def account(self, predictors, rows: np.ndarray | None = None) -> RowAccount:
         """Count rows read, lost to the outcome, missing per predictor, and used."""
@@ -172,8 +176,7 @@ class Study:
         if rows is None:
             rows = self.complete_rows(predictors)
         else:
-            needed = self.complete_rows(predictors)
-            if not np.isin(rows, needed).all():
+            if not self.complete_mask(predictors)[rows].all():
                 raise ModelError("Some of the rows asked for have missing values in these predictors.")
         return assemble([self.block(p) for p in predictors], self._require_outcome(), rows)
 

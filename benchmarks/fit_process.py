@@ -1,0 +1,83 @@
+"""The whole ``twofold fit`` process on a CSV, beside a plain pandas + statsmodels script.
+
+Usage: python benchmarks/fit_process.py [--rows N] [--repeats R]
+
+Writes a synthetic CSV of N rows to a temporary folder, then alternates two
+processes R times: ``twofold fit ... --json -`` and a plain script that reads
+the same CSV with pandas, builds the same design (indicator columns, complete
+cases), fits ``statsmodels.api.Logit`` and prints the same kind of figures.
+The last line printed is one JSON object {rows, twofold_ms, plain_script_ms}
+(medians of wall-clock time).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from refit import synthetic  # noqa: E402
+
+PLAIN = r"""
+import sys, json
+import numpy as np, pandas as pd
+import statsmodels.api as sm
+path = sys.argv[1]
+df = pd.read_csv(path)
+preds = [c for c in df.columns if c != "y"]
+df = df.dropna(subset=preds + ["y"])
+X = pd.get_dummies(df[preds], columns=["ward"], drop_first=True, dtype=float)
+X = sm.add_constant(X)
+res = sm.Logit(df["y"], X).fit(disp=0)
+ci = np.exp(res.conf_int())
+out = {"params": res.params.tolist(), "bse": res.bse.tolist(), "z": res.tvalues.tolist(),
+       "p": res.pvalues.tolist(), "or": np.exp(res.params).tolist(), "ci": ci.values.tolist(),
+       "llf": res.llf, "llnull": res.llnull, "g": res.llr, "g_p": res.llr_pvalue,
+       "aic": res.aic, "bic": res.bic}
+print(json.dumps(out))
+"""
+
+
+def timed(cmd) -> float:
+    t0 = time.perf_counter()
+    res = subprocess.run(cmd, capture_output=True, text=True)
+    ms = (time.perf_counter() - t0) * 1e3
+    if res.returncode != 0:
+        raise SystemExit(f"command failed: {' '.join(cmd[:4])} ...\n{res.stderr}")
+    return ms
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rows", type=int, default=100_000)
+    ap.add_argument("--repeats", type=int, default=7)
+    args = ap.parse_args(argv)
+    with tempfile.TemporaryDirectory() as tmp:
+        csv = Path(tmp) / "synthetic.csv"
+        frame = synthetic(args.rows, 7)
+        frame.to_csv(csv, index=False)
+        preds = [c for c in frame.columns if c != "y"]
+        ours = [sys.executable, "-m", "twofold.cli", "fit", str(csv), "--outcome", "y", "--json", "-",
+                "--predictor", *preds]
+        plain = [sys.executable, "-c", PLAIN, str(csv)]
+        a, b = [], []
+        for r in range(args.repeats + 1):  # the first round warms the file cache
+            pair = [(ours, a), (plain, b)] if r % 2 == 0 else [(plain, b), (ours, a)]
+            for cmd, sink in pair:
+                ms = timed(cmd)
+                if r:
+                    sink.append(ms)
+    print(json.dumps({"rows": args.rows, "twofold_ms": round(statistics.median(a)),
+                      "plain_script_ms": round(statistics.median(b))}))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,284 @@
+"""Turn the core's objects into display records (runs on the worker thread).
+
+Every number here is read from the core (:class:`~twofold.core.fit.LogisticFit`,
+:class:`~twofold.core.ladder.Ladder`) and formatted with the core's own
+:mod:`twofold.core.text` helpers, so the window words things exactly as the
+command line does.  Nothing here imports Qt.
+"""
+
+from __future__ import annotations
+
+import math
+
+from twofold.core.roles import MAX_CATEGORY_LEVELS, Role
+from twofold.core.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
+from twofold.gui.views import (
+    ROLE_LABELS, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
+    OutcomeView, ResultsView, StudyView, TestView,
+)
+
+
+def value_label(v) -> str:
+    """An outcome or level value as text: 1.0 -> '1', numpy scalars as Python."""
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v)
+
+
+def _degrees(df: int) -> str:
+    return f"{df} degree{'s' if df != 1 else ''} of freedom"
+
+
+def _role_choices(info) -> tuple:
+    """The roles worth offering for a column, as (value, label) pairs."""
+    out = []
+    if info.is_number:
+        out.append(Role.NUMERIC)
+    if info.n_levels == 2:
+        out.append(Role.BINARY)
+    if 2 <= info.n_levels <= MAX_CATEGORY_LEVELS:
+        out.append(Role.CATEGORICAL)
+    out.append(Role.EXCLUDED)
+    if info.role not in out:
+        out.insert(0, info.role)
+    return tuple((r.value, ROLE_LABELS[r.value]) for r in out)
+
+
+def _is_factor(info) -> bool:
+    """Whether the core encodes this column as groups against a reference level."""
+    return info.role == Role.CATEGORICAL or (info.role == Role.BINARY and not info.is_number)
+
+
+def column_views(study) -> tuple:
+    out = []
+    for name, info in study.columns.items():
+        reference = None
+        factor = _is_factor(info) and name != study.outcome
+        if factor:
+            try:
+                reference = study.reference(name)
+            except Exception:  # a column the core cannot encode: show no reference
+                factor = False
+        out.append(ColumnView(
+            name=name, role=info.role.value, role_label=ROLE_LABELS[info.role.value],
+            inferred_role=info.inferred_role.value, is_number=info.is_number,
+            n_levels=info.n_levels, n_missing=info.n_missing,
+            levels=tuple(info.levels) if factor else (),
+            level_labels=tuple(value_label(v) for v in info.levels) if factor else (),
+            counts=tuple(info.counts) if factor else (),
+            reference=reference, reference_label=value_label(reference) if reference is not None else "",
+            is_factor=factor, reason=info.reason, role_choices=_role_choices(info),
+        ))
+    return tuple(out)
+
+
+def study_view(study, with_cells: bool = True) -> StudyView:
+    """The record of a loaded study; ``with_cells`` adds the cell arrays for the data table."""
+    import pandas as pd
+
+    frame = study.frame
+    arrays = ()
+    numeric = ()
+    if with_cells:
+        # to_numpy() on these columns is a view, not a copy: no per-row work.
+        arrays = tuple(frame[c].to_numpy() for c in frame.columns)
+        numeric = tuple(bool(pd.api.types.is_numeric_dtype(frame[c].dtype)) for c in frame.columns)
+    return StudyView(
+        source=study.source, path=str(study.table.path), n_rows=study.n_rows,
+        columns=column_views(study), candidates=tuple(study.candidates()),
+        notices=tuple(n.message for n in study.table.notices),
+        arrays=arrays, numeric=numeric, outcome=study.outcome,
+    )
+
+
+def outcome_view(study, message: str = "", needs_event: bool = False, name: str | None = None) -> OutcomeView:
+    if needs_event and name is not None:
+        info = study.columns[name]
+        return OutcomeView(name, None, "", tuple(info.levels), tuple(value_label(v) for v in info.levels),
+                           True, message)
+    if study.outcome is None:
+        return OutcomeView(None)
+    levels = tuple(study.outcome_levels)
+    return OutcomeView(study.outcome, study.event, value_label(study.event), levels,
+                       tuple(value_label(v) for v in levels), False, message)
+
+
+# ---- results --------------------------------------------------------------
+
+def _predictors_text(predictors) -> str:
+    return ", ".join(predictors) if predictors else "none (overall event rate only)"
+
+
+def _change_text(rung) -> str:
+    parts = [f"+ {p}" for p in rung.added] + [f"\u2212 {p}" for p in rung.removed]
+    return ", ".join(parts)
+
+
+def _term_label(row) -> str:
+    if row["level"] is None:
+        return f"{row['column']} (per 1 unit)"
+    return f"{row['column']}: {value_label(row['level'])} vs {value_label(row['reference'])}"
+
+
+def coefficient_lines(fit, warned: dict) -> tuple:
+    """Rows of the coefficient table: a heading with the joint test above each factor's levels."""
+    rows = fit.coefficient_rows
+    tests = fit.term_tests
+    lines = []
+    headed = set()
+    for r in rows[1:]:
+        col = r["column"]
+        if col in tests and col not in headed:
+            t = tests[col]
+            n_groups = len(fit.term_index[col]) + 1
+            ref = value_label(r["reference"]) if r["reference"] is not None else ""
+            lines.append(CoefficientLine(
+                kind="heading", column=col,
+                label=(f"{col}: {n_groups} groups compared with {ref}, as a whole "
+                       f"(joint Wald chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)})"),
+                texts={"p_value": fmt_p(t.p_value), "statistic": fmt_num(t.statistic, 2), "df": str(t.df)},
+                values={"p_value": t.p_value, "statistic": t.statistic, "df": t.df},
+                warnings=tuple(warned.get(col, ())),
+            ))
+            headed.add(col)
+        values = {k: r[k] for k in ("odds_ratio", "or_ci_low", "or_ci_high", "p_value", "z",
+                                    "estimate", "std_error")}
+        texts = {
+            "odds_ratio": fmt_or(r["odds_ratio"]),
+            "ci": f"{fmt_or(r['or_ci_low'])} to {fmt_or(r['or_ci_high'])}",
+            "p_value": fmt_p(r["p_value"]),
+            "z": fmt_num(r["z"], 2),
+            "estimate": fmt_num(r["estimate"], 4),
+            "std_error": fmt_num(r["std_error"], 4),
+        }
+        lines.append(CoefficientLine("term", col, _term_label(r), texts, values,
+                                     tuple(warned.get(col, ())), level=r["level"]))
+    i = rows[0]
+    lines.append(CoefficientLine(
+        "intercept", None, "baseline odds (intercept)",
+        {"odds_ratio": "", "ci": "", "p_value": fmt_p(i["p_value"]), "z": fmt_num(i["z"], 2),
+         "estimate": fmt_num(i["estimate"], 4), "std_error": fmt_num(i["std_error"], 4)},
+        {k: i[k] for k in ("p_value", "z", "estimate", "std_error")},
+    ))
+    return tuple(lines)
+
+
+def overall_view(fit) -> TestView:
+    t = fit.overall
+    if t.df <= 0:
+        return TestView("The model as a whole", "No predictors are ticked, so there is nothing to test yet.",
+                        reading_overall(None), None, 0, None)
+    text = (f"Likelihood-ratio (G) test against the constant-only model: G = {fmt_num(t.g, 2)} "
+            f"on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+    return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
+
+
+def nested_view(ladder, parent: int, index: int) -> TestView:
+    """The test of rung ``index`` against the rung it was built from."""
+    rung = ladder.rungs[index]
+    cmp = ladder.compare(parent, index)
+    change = _change_text(rung) or "no change of predictors"
+    title = f"Change from model {parent + 1} ({change})"
+    if cmp.test is None:
+        text = (f"{cmp.note} AIC difference (this model minus model {parent + 1}): "
+                f"{fmt_num(cmp.aic_difference, 2)}; BIC difference: {fmt_num(cmp.bic_difference, 2)}.")
+        return TestView(title, text, "", None, None, None, nested=False)
+    t = cmp.test
+    which = list(t.added) or list(t.removed)
+    rows = f", both on the same {t.n_rows:,} rows" if t.n_rows else ""
+    if t.removed:
+        lead = f"Test of the larger model (with {', '.join(t.removed)}) against this one{rows}"
+    else:
+        lead = f"Test of this model against model {parent + 1}{rows}"
+    text = f"{lead}: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}."
+    reading = reading_nested(t.p_value if t.df > 0 else None, which)
+    return TestView(title, text, reading, t.g, t.df, t.p_value)
+
+
+def ladder_view(ladder, parents: dict) -> LadderView:
+    rows = []
+    for k, rung in enumerate(ladder.rungs):
+        fit = rung.fit
+        g = df = p = None
+        parent = parents.get(k)
+        texts = {"n_params": str(fit.n_params), "log_likelihood": fmt_num(fit.llf, 2),
+                 "aic": fmt_num(fit.aic, 1), "g": "", "df": "", "p_value": ""}
+        change = "first model"
+        if parent is not None:
+            change = (_change_text(rung) or "no change") + f" (from model {parent + 1})"
+            test = ladder.compare(parent, k).test
+            if test is not None:
+                g, df, p = test.g, test.df, test.p_value
+                texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
+            else:
+                texts.update(g="not nested")
+        rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors), change,
+                              fit.n_params, fit.llf, fit.aic, g, df, p, texts, k == ladder.current))
+    n = len(ladder.rows) if ladder.rows is not None else 0
+    return LadderView(tuple(rows), ladder.current, n, tuple(x.message for x in ladder.notices))
+
+
+def results_view(study, ladder, parents: dict) -> ResultsView | None:
+    """The current rung's results, or None when the ladder is empty."""
+    if ladder is None or ladder.current is None or not ladder.rungs:
+        return None
+    index = ladder.current
+    rung = ladder.rungs[index]
+    fit = rung.fit
+    in_model = set(rung.predictors)
+    warned: dict[str, list[str]] = {}
+    predictor_notes, model_notes = [], []
+    for n in fit.notices:
+        subjects = [s for s in n.subjects if s in in_model]
+        if subjects:
+            for s in subjects:
+                warned.setdefault(s, []).append(n.message)
+                predictor_notes.append(NoteView(n.code, n.message, s))
+        else:
+            model_notes.append(NoteView(n.code, n.message, None))
+    account = getattr(fit, "account", None)
+    rows_read = account.rows_read if account else fit.n_used
+    share = 100.0 * fit.events / max(fit.n_used, 1)
+    epp = fit.events_per_parameter
+    epp_text = (f"{fmt_num(epp, 1)} of the rarer outcome per coefficient"
+                if math.isfinite(epp) else "no coefficients besides the intercept")
+    counts = (f"Rows used: {fit.n_used:,} of {rows_read:,}  \u00b7  with the event: {fit.events:,} "
+              f"({share:.1f}%)  \u00b7  {epp_text}")
+    event_label = value_label(study.event)
+    title = (f"Model {index + 1} of {len(ladder.rungs)}: {study.outcome} = {event_label}, "
+             f"predictors: {_predictors_text(rung.predictors)}")
+    parent = parents.get(index)
+    previous = nested_view(ladder, parent, index) if parent is not None else None
+    return ResultsView(
+        rung=index, n_rungs=len(ladder.rungs), outcome=study.outcome, event_label=event_label,
+        predictors=tuple(rung.predictors), title=title, counts_text=counts,
+        lines=coefficient_lines(fit, warned), overall=overall_view(fit), previous=previous,
+        predictor_notes=tuple(predictor_notes), model_notes=tuple(model_notes),
+        ladder=ladder_view(ladder, parents), rows_used=fit.n_used, rows_read=rows_read,
+        events=fit.events, events_per_parameter=epp if math.isfinite(epp) else None,
+        log_likelihood=fit.llf,
+    )
+
+
+def comparison_view(ladder, i: int, j: int) -> ComparisonView:
+    """Rungs i and j compared (likelihood-ratio test when nested; AIC and BIC always)."""
+    c = ladder.compare(i, j)
+    a, b = i + 1, j + 1
+    diffs = (f"AIC difference (model {b} minus model {a}): {fmt_num(c.aic_difference, 2)}; "
+             f"BIC difference: {fmt_num(c.bic_difference, 2)}; lower is better.")
+    if c.test is None:
+        return ComparisonView(i, j, False, diffs, "", c.note, aic_difference=c.aic_difference,
+                              bic_difference=c.bic_difference)
+    t = c.test
+    if t.added:
+        small, large, which = a, b, list(t.added)
+    else:
+        small, large, which = b, a, list(t.removed)
+    text = (f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). "
+            f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
+            + diffs)
+    reading = reading_nested(t.p_value if t.df > 0 else None, which)
+    return ComparisonView(i, j, True, text, reading, c.note, t.g, t.df, t.p_value,
+                          c.aic_difference, c.bic_difference)

@@ -1,0 +1,304 @@
+"""The window's handle on the core model: one study, its model ladder, one worker.
+
+:class:`Session` is what the panes receive in their constructor (the pattern
+napari uses: a view gets the model, subscribes to its events and blocks its
+own signals while it updates).  The core objects themselves stay on the
+worker thread; the session relays their events (``Study.events.roles``,
+``Study.events.outcome``, ``Ladder.events.changed``) to the GUI thread as Qt
+signals carrying display records built on the worker.
+
+Every request gets an increasing id.  A signal carrying results is emitted
+only if no newer request that could change the same display has been made
+since, so a slow, superseded fit never overwrites a newer one.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+
+from PySide6.QtCore import QObject, Signal
+
+from twofold.gui.views import Failure
+from twofold.gui.worker import CoreWorker, Job
+
+#: The displays a job can update; each has its own "newest request" mark.
+FACETS = ("study", "columns", "outcome", "results", "comparison")
+
+
+class Session(QObject):
+    """A study and its ladder, driven from the GUI thread and computed on the worker."""
+
+    studyLoaded = Signal(object)      # StudyView of a newly opened file
+    columnsChanged = Signal(object)   # StudyView after a role or reference change
+    outcomeChanged = Signal(object)   # OutcomeView
+    resultsChanged = Signal(object)   # ResultsView, or None when there is no model
+    comparisonReady = Signal(object)  # ComparisonView
+    failed = Signal(object)           # Failure
+    busyChanged = Signal(bool)
+    coreReady = Signal()
+    requestFinished = Signal(int)     # id of every request that completed (shown or not)
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self._worker = CoreWorker()
+        self._worker.jobDone.connect(self._on_done)
+        self._next_id = 0
+        self._floor: dict[str, int] = defaultdict(int)
+        self._pending: set[int] = set()
+        self._busy = False
+        self.core_ready = False
+        self.last_results = None
+        self.last_study = None
+        # Worker-side state: read and written on the worker thread only.
+        self._study = None
+        self._ladder = None
+        self._parents: dict[int, int] = {}
+        self._dirty: set[str] = set()
+
+    # ---- life cycle ---------------------------------------------------
+    def start(self) -> None:
+        """Start the worker; it first imports the core and the fitting library."""
+        if not self._worker.isRunning():
+            self._worker.start()
+            self._submit("warmup", self._job_warmup, facets=())
+
+    def shutdown(self) -> None:
+        self._worker.stop()
+
+    @property
+    def busy(self) -> bool:
+        return self._busy
+
+    # ---- requests (GUI thread) -------------------------------------------
+    def open_file(self, path, sheet: str | None = None) -> int:
+        return self._submit("load", lambda: self._job_load(path, sheet),
+                            facets=("study", "columns", "outcome", "results", "comparison"),
+                            clears_queue=True)
+
+    def set_outcome(self, name: str | None, event=None, guess: bool = True, predictors=()) -> int:
+        predictors = tuple(predictors)
+        return self._submit("outcome", lambda: self._job_outcome(name, event, guess, predictors),
+                            facets=("outcome", "columns", "results", "comparison"),
+                            on_error=self._snapshot_all)
+
+    def set_predictors(self, predictors) -> int:
+        predictors = tuple(predictors)
+        return self._submit("fit", lambda: self._job_fit(predictors), facets=("results",),
+                            coalesce="fit", on_error=self._snapshot_results)
+
+    def set_role(self, column: str, role: str, predictors=()) -> int:
+        predictors = tuple(predictors)
+        return self._submit("role", lambda: self._job_role(column, role, predictors),
+                            facets=("columns", "results"), on_error=self._snapshot_all)
+
+    def set_reference(self, column: str, level) -> int:
+        return self._submit("reference", lambda: self._job_reference(column, level),
+                            facets=("columns", "results"), on_error=self._snapshot_all)
+
+    def select_rung(self, index: int) -> int:
+        return self._submit("select", lambda: self._job_select(index), facets=("results",),
+                            coalesce="select", on_error=self._snapshot_results)
+
+    def compare_rungs(self, i: int, j: int) -> int:
+        return self._submit("compare", lambda: self._job_compare(i, j), facets=("comparison",),
+                            coalesce="compare")
+
+    def _submit(self, kind, fn, facets, coalesce=None, clears_queue=False, on_error=None) -> int:
+        self._next_id += 1
+        job_id = self._next_id
+        for f in facets:
+            self._floor[f] = job_id
+        self._floor["error:" + kind] = job_id
+        self._pending.add(job_id)
+        for dropped in self._worker.submit(Job(job_id, kind, fn, coalesce, clears_queue, on_error)):
+            self._pending.discard(dropped)
+        self._set_busy(bool(self._pending))
+        return job_id
+
+    def _set_busy(self, busy: bool) -> None:
+        if busy != self._busy:
+            self._busy = busy
+            self.busyChanged.emit(busy)
+
+    # ---- results (GUI thread) -----------------------------------------------
+    def is_current(self, facet: str, job_id: int) -> bool:
+        """Whether a display from request ``job_id`` is still the newest for ``facet``."""
+        return job_id >= self._floor[facet]
+
+    def _on_done(self, result) -> None:
+        self._pending.discard(result.id)
+        if result.kind == "warmup":
+            self.core_ready = True
+            self.coreReady.emit()
+        signals = {"study": self.studyLoaded, "columns": self.columnsChanged, "outcome": self.outcomeChanged,
+                   "results": self.resultsChanged, "comparison": self.comparisonReady}
+        for facet in FACETS:  # fixed order: the study before its columns, outcome and results
+            if facet in result.outputs and self.is_current(facet, result.id):
+                view = result.outputs[facet]
+                if facet == "results":
+                    self.last_results = view
+                if facet in ("study", "columns"):
+                    self.last_study = view
+                signals[facet].emit(view)
+        if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
+            self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path))
+        self._set_busy(bool(self._pending))
+        self.requestFinished.emit(result.id)
+
+    # ---- jobs (worker thread) -------------------------------------------------
+    def _job_warmup(self):
+        # Import the heavy libraries now, off the GUI thread, so the first fit is quick.
+        import twofold.core.ladder  # noqa: F401
+        import twofold.core.study  # noqa: F401
+        import twofold.gui.present  # noqa: F401
+        from twofold.core import fit
+
+        fit.wald_p(0.0)
+        fit.chi2_sf(1.0, 1)
+        import statsmodels.discrete.discrete_model  # noqa: F401
+        return {}
+
+    def _watch(self, study, ladder) -> None:
+        """Relay the core's change announcements: each marks a display to rebuild."""
+        study.events.roles.connect(lambda *a: self._dirty.add("columns"))
+        study.events.outcome.connect(lambda *a: self._dirty.update(("outcome", "columns")))
+        ladder.events.changed.connect(lambda *a: self._dirty.add("results"))
+
+    def _flush(self, also=()) -> dict:
+        """Display records for everything the core announced as changed during this job."""
+        from twofold.gui import present
+
+        wanted = self._dirty | set(also)
+        self._dirty = set()
+        out = {}
+        if self._study is None:
+            return out
+        if "study" in wanted:
+            out["study"] = present.study_view(self._study)
+        elif "columns" in wanted:
+            out["columns"] = present.study_view(self._study, with_cells=False)
+        if "outcome" in wanted:
+            out["outcome"] = present.outcome_view(self._study)
+        if "results" in wanted:
+            out["results"] = present.results_view(self._study, self._ladder, self._parents)
+        return out
+
+    def _snapshot_results(self) -> dict:
+        return self._flush(also=("results",))
+
+    def _snapshot_all(self) -> dict:
+        return self._flush(also=("columns", "outcome", "results"))
+
+    def _job_load(self, path, sheet):
+        from twofold.core.ladder import Ladder
+        from twofold.core.study import Study
+
+        study = Study.from_file(path, sheet=sheet)
+        ladder = Ladder(study)
+        self._study, self._ladder, self._parents, self._dirty = study, ladder, {}, set()
+        self._watch(study, ladder)
+        out = self._flush(also=("study", "outcome"))
+        out["results"] = None
+        out["comparison"] = None
+        return out
+
+    def _require_study(self):
+        from twofold.core.errors import ModelError
+
+        if self._study is None:
+            raise ModelError("Open a data file first.")
+        return self._study
+
+    def _job_outcome(self, name, event, guess, predictors):
+        from twofold.core.errors import ColumnError
+        from twofold.gui import present
+
+        study = self._require_study()
+        if self._ladder.rungs:
+            self._ladder.clear()
+        self._parents = {}
+        if name is None:
+            return {**self._flush(also=("outcome", "results")), "comparison": None}
+        name = study.column(name)
+        try:
+            study.set_outcome(name, event, guess=guess)
+        except ColumnError as exc:
+            info = study.columns[name]
+            if event is None and info.n_levels == 2:
+                # Two values but no telling which is the event: ask, do not guess.
+                out = self._flush(also=("results",))
+                out["outcome"] = present.outcome_view(
+                    study, f"Choose which value of '{name}' counts as the event.", needs_event=True, name=name)
+                out["comparison"] = None
+                return out
+            raise exc
+        predictors = tuple(p for p in predictors if p != study.outcome and p in study.candidates())
+        if predictors:
+            self._add(predictors)
+        out = self._flush(also=("outcome", "columns", "results"))
+        out["comparison"] = None
+        return out
+
+    def _add(self, predictors) -> None:
+        ladder = self._ladder
+        parent = ladder.current
+        ladder.add(predictors)
+        if parent is not None:
+            self._parents[len(ladder.rungs) - 1] = parent
+
+    def _job_fit(self, predictors):
+        study = self._require_study()
+        ladder = self._ladder
+        if study.outcome is None:
+            from twofold.core.errors import ModelError
+
+            raise ModelError("Choose the outcome column first, then tick the predictors.")
+        current = ladder.rungs[ladder.current] if ladder.current is not None else None
+        if current is None and not predictors:
+            return self._flush(also=("results",))
+        if current is None or set(current.predictors) != set(predictors):
+            self._add(predictors)
+        return self._flush(also=("results",))
+
+    def _job_role(self, column, role, predictors):
+        from twofold.core.roles import Role
+
+        study = self._require_study()
+        ladder = self._ladder
+        study.set_role(column, role)
+        predictor_role = Role(role).is_predictor
+        if ladder.rungs and column in ladder.used_predictors:
+            if predictor_role:
+                ladder.refit()
+            else:
+                ladder.clear()
+                self._parents = {}
+                rest = tuple(p for p in predictors if p != column)
+                if rest and study.outcome is not None:
+                    self._add(rest)
+        return self._flush(also=("columns", "results"))
+
+    def _job_reference(self, column, level):
+        study = self._require_study()
+        study.set_reference(column, level)
+        if self._ladder.rungs and column in self._ladder.used_predictors:
+            self._ladder.refit()
+        return self._flush(also=("columns", "results"))
+
+    def _job_select(self, index):
+        self._require_study()
+        self._ladder.select(index)
+        return self._flush(also=("results",))
+
+    def _job_compare(self, i, j):
+        from twofold.gui import present
+
+        self._require_study()
+        from twofold.core.errors import ModelError
+
+        n = len(self._ladder.rungs)
+        if not (0 <= i < n and 0 <= j < n):
+            raise ModelError("Choose two models of the ladder to compare.")
+        if i == j:
+            raise ModelError(f"Model {i + 1} was chosen twice; choose two different models to compare.")
+        return {"comparison": present.comparison_view(self._ladder, i, j)}

@@ -1,0 +1,211 @@
+"""Display records: what the window shows, prepared off the GUI thread.
+
+The core model (:class:`~twofold.core.study.Study`, :class:`~twofold.core.ladder.Ladder`)
+lives on the worker thread.  After each change the worker turns the core's
+figures into these frozen records (see :mod:`twofold.gui.present`), already
+worded and formatted with :mod:`twofold.core.text`, and hands them to the GUI
+thread, which only displays them.  This module imports the standard library
+only, so the window can be built before numpy, pandas or statsmodels load.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+#: Shown above every set of results.  It must say the same as
+#: ``twofold.core.summary.CAUTION`` (a test checks that they are identical); it
+#: is repeated here so the banner is there at the first paint, before the core
+#: is imported.
+CAUTION = (
+    "These figures describe statistical associations in the loaded records, not causes. "
+    "Decisions about any patient's care rest with licensed clinicians and local policy."
+)
+
+#: Plain words for each column role (the values of ``twofold.core.roles.Role``).
+ROLE_LABELS = {
+    "numeric": "number",
+    "binary": "two values",
+    "categorical": "groups",
+    "identifier": "identifier (not used)",
+    "date": "date (not used)",
+    "excluded": "left out",
+}
+
+
+@dataclass(frozen=True)
+class ColumnView:
+    """One column of the loaded file as the column list shows it.
+
+    ``levels`` holds the raw values (handed back to the core when the user
+    picks a reference level); ``level_labels`` the same values as text.
+    ``role_choices`` lists (role value, plain label) pairs the user may pick.
+    """
+
+    name: str
+    role: str
+    role_label: str
+    inferred_role: str
+    is_number: bool
+    n_levels: int
+    n_missing: int
+    levels: tuple = ()
+    level_labels: tuple = ()
+    counts: tuple = ()
+    reference: object = None
+    reference_label: str = ""
+    is_factor: bool = False
+    reason: str = ""
+    role_choices: tuple = ()
+
+
+@dataclass(frozen=True)
+class StudyView:
+    """A loaded file: its columns and what the data table needs to show cells."""
+
+    source: str
+    path: str
+    n_rows: int
+    columns: tuple
+    candidates: tuple
+    notices: tuple = ()
+    # The cell arrays, one per column (numpy arrays; opaque here).  They are
+    # read-only views on the loaded frame: the data table reads single cells.
+    arrays: tuple = ()
+    numeric: tuple = ()
+    outcome: str | None = None
+
+    def column(self, name: str) -> ColumnView | None:
+        for c in self.columns:
+            if c.name == name:
+                return c
+        return None
+
+
+@dataclass(frozen=True)
+class OutcomeView:
+    """The chosen outcome and event value (or what still has to be chosen)."""
+
+    outcome: str | None
+    event: object = None
+    event_label: str = ""
+    levels: tuple = ()
+    level_labels: tuple = ()
+    needs_event: bool = False
+    message: str = ""
+
+
+@dataclass(frozen=True)
+class CoefficientLine:
+    """One row of the coefficient table.
+
+    ``kind`` is "heading" (a factor as a whole, with its joint Wald test),
+    "term" (one coefficient) or "intercept".  ``values`` holds the core's raw
+    numbers and ``texts`` the same numbers formatted, both keyed by
+    "odds_ratio", "ci", "p_value", "z", "estimate", "std_error" (and
+    "statistic", "df" for headings).
+    """
+
+    kind: str
+    column: str | None
+    label: str
+    texts: dict = field(default_factory=dict)
+    values: dict = field(default_factory=dict)
+    warnings: tuple = ()
+    level: object = None
+
+
+@dataclass(frozen=True)
+class TestView:
+    """A likelihood-ratio test with its wording."""
+
+    title: str
+    text: str
+    reading: str
+    g: float | None = None
+    df: int | None = None
+    p_value: float | None = None
+    nested: bool = True
+
+
+@dataclass(frozen=True)
+class NoteView:
+    """A warning in plain words; ``column`` names the predictor it concerns (None: the model)."""
+
+    code: str
+    message: str
+    column: str | None = None
+
+
+@dataclass(frozen=True)
+class LadderRow:
+    """One rung of the model ladder as the ladder table shows it."""
+
+    index: int
+    predictors: tuple
+    predictors_text: str
+    change_text: str
+    n_params: int
+    log_likelihood: float
+    aic: float
+    g: float | None
+    df: int | None
+    p_value: float | None
+    texts: dict = field(default_factory=dict)
+    current: bool = False
+
+
+@dataclass(frozen=True)
+class LadderView:
+    rows: tuple = ()
+    current: int | None = None
+    n_rows_compared: int = 0
+    notices: tuple = ()
+
+
+@dataclass(frozen=True)
+class ResultsView:
+    """The current model of the ladder, ready to display."""
+
+    rung: int
+    n_rungs: int
+    outcome: str
+    event_label: str
+    predictors: tuple
+    title: str
+    counts_text: str
+    lines: tuple
+    overall: TestView
+    previous: TestView | None
+    predictor_notes: tuple
+    model_notes: tuple
+    ladder: LadderView
+    rows_used: int = 0
+    rows_read: int = 0
+    events: int = 0
+    events_per_parameter: float | None = None
+    log_likelihood: float | None = None
+
+
+@dataclass(frozen=True)
+class ComparisonView:
+    first: int
+    second: int
+    nested: bool
+    text: str
+    reading: str
+    note: str
+    g: float | None = None
+    df: int | None = None
+    p_value: float | None = None
+    aic_difference: float | None = None
+    bic_difference: float | None = None
+
+
+@dataclass(frozen=True)
+class Failure:
+    """A job that did not complete: a user error (one sentence) or an unexpected one."""
+
+    kind: str
+    message: str
+    unexpected: bool = False
+    log_path: str = ""

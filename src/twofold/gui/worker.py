@@ -1,0 +1,146 @@
+"""One worker thread that runs every call into the core, in order.
+
+The core keeps caches (encoded columns, rank checks) that are not meant to be
+shared between threads, so a single thread touches it.  Jobs run in the order
+they were submitted, except that a job with a ``coalesce`` key replaces any
+job with the same key still waiting: when the user ticks quickly only the
+latest fit request runs.  Every job carries an increasing id so the GUI can
+discard results of a request that a newer one has superseded.
+"""
+
+from __future__ import annotations
+
+import threading
+import traceback
+from collections import deque
+from dataclasses import dataclass, field
+
+from PySide6.QtCore import QThread, Signal
+
+
+@dataclass
+class Job:
+    """A call to run on the worker thread.
+
+    ``fn`` returns a dict of outputs; ``on_error`` (optional) is called on the
+    worker thread after a failure and returns outputs to send along with it.
+    """
+
+    id: int
+    kind: str
+    fn: object
+    coalesce: str | None = None
+    clears_queue: bool = False
+    on_error: object = None
+
+
+@dataclass
+class JobResult:
+    id: int
+    kind: str
+    outputs: dict = field(default_factory=dict)
+    error: str | None = None
+    unexpected: bool = False
+    log_path: str = ""
+
+
+def log_exception(exc: BaseException | None = None) -> str:
+    """Append the current traceback to the log file and return its path."""
+    import datetime
+    import tempfile
+    from pathlib import Path
+
+    try:
+        from twofold.paths import log_dir
+
+        folder = log_dir()
+    except OSError:
+        folder = Path(tempfile.gettempdir())
+    path = folder / "twofold-error.log"
+    try:
+        with open(path, "a", encoding="utf-8") as fh:
+            fh.write(f"--- {datetime.datetime.now().isoformat(timespec='seconds')}\n")
+            if exc is not None:
+                traceback.print_exception(type(exc), exc, exc.__traceback__, file=fh)
+            else:
+                traceback.print_exc(file=fh)
+    except OSError:
+        pass
+    return str(path)
+
+
+class CoreWorker(QThread):
+    """The single thread that calls the core.  ``jobDone`` is delivered on the GUI thread."""
+
+    jobDone = Signal(object)
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self._cond = threading.Condition()
+        self._queue: deque[Job] = deque()
+        self._stop = False
+        self.running_id: int | None = None
+
+    def submit(self, job: Job) -> list[int]:
+        """Queue a job; returns the ids of waiting jobs it replaced (they will never run)."""
+        with self._cond:
+            dropped = []
+            if job.clears_queue:
+                dropped = [j.id for j in self._queue]
+                self._queue.clear()
+            elif job.coalesce is not None:
+                keep = deque()
+                for j in self._queue:
+                    (dropped.append(j.id) if j.coalesce == job.coalesce else keep.append(j))
+                self._queue = keep
+            self._queue.append(job)
+            self._cond.notify()
+        return dropped
+
+    def pending(self) -> int:
+        with self._cond:
+            return len(self._queue) + (self.running_id is not None)
+
+    def stop(self, wait_ms: int = 5000) -> None:
+        with self._cond:
+            self._stop = True
+            self._queue.clear()
+            self._cond.notify()
+        self.wait(wait_ms)
+
+    def run(self) -> None:  # noqa: D401 - QThread entry point
+        from twofold.core.errors import TwofoldError
+
+        while True:
+            with self._cond:
+                while not self._queue and not self._stop:
+                    self._cond.wait()
+                if self._stop:
+                    return
+                job = self._queue.popleft()
+                self.running_id = job.id
+            result = JobResult(job.id, job.kind)
+            try:
+                result.outputs = job.fn() or {}
+            except TwofoldError as exc:
+                result.error = str(exc)
+                result.outputs = self._after_error(job)
+            except Exception as exc:  # never let the thread die: log, report, carry on
+                result.error = f"{type(exc).__name__}: {exc}"
+                result.unexpected = True
+                result.log_path = log_exception(exc)
+                result.outputs = self._after_error(job)
+            finally:
+                with self._cond:
+                    self.running_id = None
+            self.jobDone.emit(result)
+
+    @staticmethod
+    def _after_error(job: Job) -> dict:
+        if job.on_error is None:
+            return {}
+        try:
+            return job.on_error() or {}
+        except Exception as exc:
+            log_exception(exc)
+            return {}
