@@ -40,7 +40,20 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="reference level of a categorical predictor")
     p.add_argument("--sheet", metavar="NAME", help="the sheet of a workbook (default: the first)")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
+    p.add_argument("--profile-ci", action="store_true", help="add profile-likelihood intervals for the odds ratios")
+    p.add_argument("--threshold", type=_probability, metavar="P", help="risk threshold for a classification table")
     return p
+
+
+def _probability(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number; give a risk between 0 and 1, e.g. 0.2") from None
+    if not 0 < value < 1:
+        raise argparse.ArgumentTypeError(f"{text} is outside 0 to 1; give a risk between 0 and 1, e.g. 0.2")
+    return value
 
 
 def _same_file(a: Path, b: Path) -> bool:
@@ -100,12 +113,21 @@ def _fit(args):
     smaller = None
     if args.smaller is not None:
         smaller = [study.column(p) for p in args.smaller]
-        _, fit, nested = study.compare(smaller, predictors)
+        _, fit, nested = study.compare(smaller, predictors, firth=args.firth)
     else:
-        fit = study.fit(predictors)
+        fit = study.fit(predictors, firth=args.firth)
     for n in study.table.notices:
         fit.notices.insert(0, n)
-    return fit_record(fit, study.outcome, event, nested, smaller), study.source
+    from twofold.core.assessment import assess
+
+    assessment = assess(study, fit, threshold=args.threshold)
+    profile = None
+    if args.profile_ci:
+        from twofold.core.penalised import profile_intervals
+
+        profile = profile_intervals(fit)
+    record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
+    return record, study.source
 
 
 def run_gui(argv: list[str]) -> int:

@@ -267,6 +267,14 @@ def _firth_core(
         beta[fixed_idx] = [fixed[i] for i in fixed_idx]
 
     point = _Point(X, y, offset, beta)
+    if start is not None and free.size:
+        # Poor starting values (steps are capped, so far-off values cost many
+        # iterations): keep them only if they beat zeros for the free part.
+        zero = beta.copy()
+        zero[free] = 0.0
+        at_zero = _Point(X, y, offset, zero)
+        if not point.pl >= at_zero.pl:
+            point = at_zero
     converged = free.size == 0
     iterations = 0
     while not converged and iterations < maxiter:
@@ -274,7 +282,7 @@ def _firth_core(
         info = _free_information(point.R, free)
         delta = _solve_spd(info, point.score[free])
         size = float(np.max(np.abs(delta)))
-        if not math.isfinite(size):
+        if not (math.isfinite(size) and math.isfinite(point.pl)):
             break
         if size <= tol:
             # Take the last (tiny) step too: the iteration converges linearly,

@@ -113,6 +113,8 @@ class LogisticFit:
     nothing is recomputed when it is read again.
     """
 
+    method = "maximum likelihood"
+
     def __init__(self, design: Design, params, cov, llf, converged, iterations,
                  kept, dropped_names, notices):
         self.design = design
@@ -516,10 +518,13 @@ def nested_test(smaller: LogisticFit, larger: LogisticFit) -> LikelihoodRatioTes
     if len(smaller.design.rows) != len(larger.design.rows) or not np.array_equal(smaller.design.rows, larger.design.rows):
         raise ModelError("The two models were fitted on different rows, so the likelihood-ratio test is not valid; "
                          "refit the smaller model on the rows of the larger one.")
+    added = tuple(c for c in larger.design.predictors if c not in small_cols)
+    if hasattr(larger, "lr_test_of"):
+        # Penalised fits: the penalised likelihood-ratio test of the added terms.
+        return larger.lr_test_of(added)
     df = larger.n_params - smaller.n_params
     g = 2.0 * (larger.llf - smaller.llf)
     # Rounding can leave a tiny negative G when nothing was added.
     g = max(g, 0.0) if g > -1e-6 else g
     p = chi2_sf(g, df) if df > 0 else float("nan")
-    added = tuple(c for c in larger.design.predictors if c not in small_cols)
     return LikelihoodRatioTest(g, df, p, added=added, n_rows=larger.n_used)

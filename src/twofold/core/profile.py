@@ -269,7 +269,7 @@ def _logit_ml(
         delta = _solve_sym(hess, grad)
         size = float(np.max(np.abs(delta))) if np.all(np.isfinite(delta)) else math.inf
         steep = float(np.max(np.abs(grad)))
-        if size <= tol and steep <= 1e-8 * (1.0 + y.shape[0]):
+        if steep == 0.0 or (size <= tol and steep <= 1e-8 * (1.0 + y.shape[0])):
             return beta, llf, True
         if size <= tol or not math.isfinite(size):
             # The weights have underflowed (far out on the logit scale) while

@@ -180,7 +180,7 @@ class Study:
                 raise ModelError("Some of the rows asked for have missing values in these predictors.")
         return assemble([self.block(p) for p in predictors], self._require_outcome(), rows)
 
-    def fit(self, predictors, rows: np.ndarray | None = None, start=None) -> LogisticFit:
+    def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False) -> LogisticFit:
         """Fit the logistic model of the outcome on the named predictors.
 
         Parameters
@@ -190,6 +190,8 @@ class Study:
             Rows to use (default: rows complete for these predictors).
         start : LogisticFit or array, optional
             A previous fit to warm-start from, or starting values.
+        firth : bool
+            Fit by Firth's penalised likelihood instead of maximum likelihood.
         """
         predictors = [self.column(p) for p in predictors]
         if self.outcome in predictors:
@@ -200,9 +202,14 @@ class Study:
         if dropped is None and len(design.y):
             dropped = aliased_columns(design.X)
             self._aliased[key] = dropped
-        if isinstance(start, LogisticFit):
-            start = start.start_for(design)
-        fit = fit_logistic(design, start=start, dropped=dropped)
+        if firth:
+            from twofold.core.penalised import fit_firth
+
+            fit = fit_firth(design, dropped=dropped)
+        else:
+            if isinstance(start, LogisticFit):
+                start = start.start_for(design)
+            fit = fit_logistic(design, start=start, dropped=dropped)
         account = self.account(predictors, design.rows)
         fit.account = account
         lost = self.n_rows - account.rows_used
@@ -222,7 +229,7 @@ class Study:
             ))
         return fit
 
-    def compare(self, smaller, larger) -> tuple[LogisticFit, LogisticFit, LikelihoodRatioTest]:
+    def compare(self, smaller, larger, firth: bool = False) -> tuple[LogisticFit, LogisticFit, LikelihoodRatioTest]:
         """Fit a smaller and a larger model on the same rows and test the difference.
 
         Both are fitted on the rows complete for the larger model, which is
@@ -238,6 +245,57 @@ class Study:
                 "add it to the larger model or leave it out of the smaller one."
             )
         rows = self.complete_rows(larger)
-        small_fit = self.fit(smaller, rows=rows)
-        large_fit = self.fit(larger, rows=rows, start=small_fit)
+        small_fit = self.fit(smaller, rows=rows, firth=firth)
+        large_fit = self.fit(larger, rows=rows, start=small_fit, firth=firth)
         return small_fit, large_fit, nested_test(small_fit, large_fit)
+
+
+@dataclass(frozen=True)
+class DropOneTest:
+    """A predictor's likelihood-ratio test beside its Wald test.
+
+    g = 2 (lnL_full - lnL_without) on the predictor's df; ``wald`` is the
+    Wald chi-square (z squared, or the joint statistic for a factor).
+    ``prefer_lr`` flags where the two disagree at the 5% level or the Wald
+    statistic is far below G, the pattern of the Hauck-Donner effect (Hauck &
+    Donner 1977, JASA 72:851): large estimates inflate the standard error, so
+    the Wald test loses power and the likelihood-ratio test should be used.
+    """
+
+    column: str
+    g: float
+    df: int
+    p_value: float
+    wald: float
+    wald_p_value: float
+    prefer_lr: bool
+
+    def as_dict(self) -> dict:
+        return {k: getattr(self, k) for k in ("column", "g", "df", "p_value", "wald", "wald_p_value", "prefer_lr")}
+
+
+def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
+    """For every predictor of ``fit``, refit without it on the same rows and test the loss."""
+    from twofold.core.fit import chi2_sf
+
+    out = []
+    predictors = list(fit.design.predictors)
+    for column in predictors:
+        idx = fit.term_index[column]
+        if len(idx) == 0:
+            continue
+        if hasattr(fit, "lr_test_of"):
+            test = fit.lr_test_of([column])
+        else:
+            others = [p for p in predictors if p != column]
+            reduced = study.fit(others, rows=fit.design.rows, start=fit)
+            test = nested_test(reduced, fit)
+        if len(idx) == 1:
+            wald = float(fit.z[idx[0]] ** 2)
+        else:
+            wald = fit.term_tests[column].statistic
+        wald_p = chi2_sf(wald, len(idx)) if np.isfinite(wald) else float("nan")
+        disagree = (test.p_value < 0.05) != (wald_p < 0.05)
+        much_lower = test.g > 3.841 and wald < 0.5 * test.g
+        out.append(DropOneTest(column, test.g, test.df, test.p_value, wald, wald_p, bool(disagree or much_lower)))
+    return out

@@ -43,13 +43,15 @@ def _test(t: LikelihoodRatioTest | None):
 
 
 def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTest | None = None,
-               smaller: list | None = None) -> dict:
+               smaller: list | None = None, profile: dict | None = None, assessment=None) -> dict:
     """Everything about a fit, as the JSON contract of ``twofold fit`` lays it out.
 
     Fields: rows_read, rows_used, events, outcome, event, intercept, terms,
     log_likelihood, null_log_likelihood, deviance, aic, bic, overall, nested,
     warnings, plus extra context (predictors, term_tests, events_per_parameter,
-    mcfadden_r2, missing counts, caution).
+    mcfadden_r2, missing counts, caution).  ``profile`` (name -> odds-ratio
+    interval) adds ``or_pl_low``/``or_pl_high`` to each term; ``assessment``
+    (an :class:`~twofold.core.assessment.Assessment`) adds ``assessment``.
     """
     rows = fit.coefficient_rows
     intercept = rows[0]
@@ -63,8 +65,11 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
             **{k: clean_number(r[k]) for k in ("estimate", "std_error", "z", "p_value",
                                                 "odds_ratio", "or_ci_low", "or_ci_high")},
         })
-    return {
-        "method": "maximum likelihood",
+        if profile is not None and r["name"] in profile:
+            lo, hi = profile[r["name"]]
+            terms[-1]["or_pl_low"], terms[-1]["or_pl_high"] = clean_number(lo), clean_number(hi)
+    record = {
+        "method": fit.method,
         "outcome": outcome,
         "event": plain_value(event),
         "predictors": list(fit.design.predictors),
@@ -101,3 +106,8 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
         "warnings": [n.as_dict() for n in fit.notices],
         "caution": CAUTION,
     }
+    if getattr(fit, "penalized_llf", None) is not None:
+        record["penalized_log_likelihood"] = clean_number(fit.penalized_llf)
+    if assessment is not None:
+        record["assessment"] = assessment.as_record()
+    return record

@@ -1,0 +1,196 @@
+"""Assessing a fitted model beyond its tests, in one place.
+
+:func:`assess` gathers discrimination, calibration, pseudo-R-squared,
+influence, variance inflation, drop-one likelihood-ratio tests and the
+sample-size check for one fit, from the single-purpose modules
+(:mod:`~twofold.core.discrimination`, :mod:`~twofold.core.calibration`,
+:mod:`~twofold.core.influence`, :mod:`~twofold.core.samplesize`).  The window,
+the command line and reports all read the same :class:`Assessment`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from twofold.core.errors import Notice, TwofoldError
+from twofold.core.fit import LogisticFit
+
+#: Written beside slope and calibration-in-the-large on the development data.
+APPARENT_CALIBRATION_NOTE = (
+    "On the records the model was fitted to, the calibration slope is 1 and calibration-in-the-large is 0 "
+    "by construction, so these two say nothing here; they become informative on a new extract or after "
+    "bootstrap correction."
+)
+
+#: Written beside the Hosmer-Lemeshow test.
+HOSMER_LEMESHOW_NOTE = (
+    "The Hosmer-Lemeshow test depends on how records are grouped, has little power in small samples and "
+    "flags trivial misfit in large ones; read it beside the calibration plot, not alone."
+)
+
+#: Written beside the classification table.
+THRESHOLD_NOTE = (
+    "The risk threshold is a clinical choice that weighs missed cases against false alarms, "
+    "not a statistical one."
+)
+
+#: How many influential records the record lists.
+TOP_INFLUENTIAL = 10
+
+
+@dataclass
+class Assessment:
+    """Everything Twofold reports about how good a fitted model is.
+
+    Attributes are the result objects of the single-purpose modules; see
+    :meth:`as_record` for the JSON layout.
+    """
+
+    auc: object
+    roc: object
+    brier: float
+    scaled_brier: float
+    calibration: object
+    hosmer_lemeshow: object | None
+    groups: object | None
+    smooth: object | None
+    pseudo_r2: object
+    influence: object | None
+    rows: np.ndarray
+    vif: object | None
+    vif_names: list
+    drop_one: list
+    sample_size: object | None
+    classification: object | None = None
+    notices: list = field(default_factory=list)
+
+    def influential(self, k: int = TOP_INFLUENTIAL) -> list[dict]:
+        """The k records with the largest Cook's distance: 1-based data row of the file, largest first."""
+        if self.influence is None:
+            return []
+        idx = self.influence.most_influential(k)
+        return [{"row": int(self.rows[i]) + 1, "cooks_distance": float(self.influence.cooks_distance[i]),
+                 "leverage": float(self.influence.leverage[i])} for i in idx]
+
+    def as_record(self) -> dict:
+        """The ``assessment`` object of the ``twofold fit --json`` contract."""
+        from twofold.core.summary import clean_number as num
+
+        hl = self.hosmer_lemeshow
+        rec = {
+            "auc": num(self.auc.auc),
+            "auc_ci": [num(self.auc.ci_low), num(self.auc.ci_high)],
+            "auc_se": num(self.auc.se),
+            "brier": num(self.brier),
+            "scaled_brier": num(self.scaled_brier),
+            "calibration_slope": num(self.calibration.slope),
+            "calibration_intercept": num(self.calibration.intercept),
+            "calibration_note": APPARENT_CALIBRATION_NOTE,
+            "hosmer_lemeshow": None if hl is None else {
+                "statistic": num(hl.statistic), "df": int(hl.df), "p_value": num(hl.p_value),
+                "groups": int(hl.groups_used), "note": HOSMER_LEMESHOW_NOTE,
+            },
+            "mcfadden_r2": num(self.pseudo_r2.mcfadden),
+            "cox_snell_r2": num(self.pseudo_r2.cox_snell),
+            "nagelkerke_r2": num(self.pseudo_r2.nagelkerke),
+            "tjur_r2": num(self.pseudo_r2.tjur),
+            "influential": self.influential(),
+            "vif": [] if self.vif is None else [
+                {"column": name, "value": num(r.gvif_adjusted ** 2), "gvif": num(r.gvif), "df": int(r.df),
+                 "flagged": bool(r.flagged)}
+                for name, r in zip(self.vif_names, self.vif.records)
+            ],
+            "drop_one": [{k: (num(v) if isinstance(v, float) else v) for k, v in t.as_dict().items()}
+                         for t in self.drop_one],
+            "sample_size": None if self.sample_size is None else {
+                k: (num(v) if isinstance(v, float) else v) for k, v in self.sample_size.as_dict().items()
+            },
+            "notes": [n.as_dict() for n in self.notices],
+        }
+        if self.classification is not None:
+            c = self.classification
+            rec["classification"] = {
+                "threshold": num(c.threshold), "sensitivity": num(c.sensitivity),
+                "specificity": num(c.specificity), "ppv": num(c.positive_predictive_value), "npv": num(c.negative_predictive_value),
+                "counts": {"true_positives": c.true_positives, "false_positives": c.false_positives,
+                           "false_negatives": c.false_negatives, "true_negatives": c.true_negatives},
+                "note": THRESHOLD_NOTE,
+            }
+        return rec
+
+
+def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int = 10,
+           anticipated_r2_cs: float | None = None, drop_one: bool = True, predicted=None) -> Assessment:
+    """Assess a fit on the rows it was fitted to.
+
+    Parameters
+    ----------
+    study : Study
+        The study the fit came from (needed for the drop-one refits).
+    fit : LogisticFit
+    threshold : float, optional
+        A risk threshold for the classification table.
+    groups : int
+        Risk groups for the Hosmer-Lemeshow test and the calibration table.
+    anticipated_r2_cs : float, optional
+        Cox-Snell R-squared for the Riley et al. (2020) sample size;
+        default: the current model's.
+    drop_one : bool
+        Whether to run the drop-one likelihood-ratio tests.
+    predicted : array, optional
+        Predicted risks to assess instead of the fit's own (e.g. FLIC's).
+    """
+    from twofold.core import calibration as cal
+    from twofold.core import discrimination as disc
+    from twofold.core.influence import gvif, influence_measures
+    from twofold.core.samplesize import riley_minimum_sample_size
+    from twofold.core.study import drop_one_tests
+
+    y = fit.design.y
+    p = fit.fitted if predicted is None else np.asarray(predicted, dtype=float)
+    lp = np.log(p) - np.log1p(-p) if predicted is not None else fit.linear_predictor
+    notices: list[Notice] = []
+    auc = disc.auc_delong(y, p)
+    roc = disc.roc_points(y, p)
+    calibration = cal.calibration_slope_intercept(y, lp)
+    try:
+        hl = cal.hosmer_lemeshow(y, p, groups)
+        table = cal.calibration_groups(y, p, groups)
+    except TwofoldError as exc:
+        hl, table = None, None
+        notices.append(Notice("hosmer_lemeshow", str(exc)))
+    smooth = cal.smoothed_calibration(y, p)
+    pseudo = cal.pseudo_r2(fit.llf, fit.null_llf, fit.n_used, y, p)
+    X = fit.design.X[:, fit.kept]
+    try:
+        infl = influence_measures(X, y, fit.params) if np.all(np.isfinite(fit.params)) else None
+    except TwofoldError as exc:
+        infl = None
+        notices.append(Notice("influence", str(exc)))
+    names, groups_idx = [], {}
+    for column, idx in fit.term_index.items():
+        if len(idx):
+            names.append(column)
+            groups_idx[column] = [int(i) for i in idx]
+    vif_table = None
+    if len(names) >= 2:
+        try:
+            vif_table = gvif(X, groups_idx)
+        except TwofoldError as exc:
+            notices.append(Notice("collinear", str(exc)))
+    tests = drop_one_tests(study, fit) if drop_one else []
+    r2 = pseudo.cox_snell if anticipated_r2_cs is None else anticipated_r2_cs
+    sample = None
+    prevalence = fit.events / fit.n_used
+    if fit.n_params > 1 and 0 < r2 < 1 - math.exp(2 * (prevalence * math.log(prevalence)
+                                                       + (1 - prevalence) * math.log(1 - prevalence))):
+        try:
+            sample = riley_minimum_sample_size(fit.n_params - 1, prevalence, r2)
+        except TwofoldError as exc:
+            notices.append(Notice("sample_size", str(exc)))
+    classification = disc.classification_table(y, p, threshold) if threshold is not None else None
+    return Assessment(auc, roc, cal.brier(y, p), cal.scaled_brier(y, p), calibration, hl, table, smooth,
+                      pseudo, infl, fit.design.rows, vif_table, names, tests, sample, classification, notices)
