@@ -142,3 +142,51 @@ def test_fit_path_imports_no_qt_or_matplotlib():
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert res.returncode == 0, res.stderr
     assert res.stdout.strip().splitlines()[-1] == "MODS []"
+
+
+ASSESSMENT_KEYS = {"auc", "auc_ci", "brier", "calibration_slope", "calibration_intercept", "hosmer_lemeshow",
+                   "mcfadden_r2", "nagelkerke_r2", "tjur_r2", "influential", "vif"}
+
+
+def test_assessment_fields_and_threshold():
+    out = fit_json(READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "prior_admissions",
+                   "followup_call", "--threshold", "0.25")
+    a = out["assessment"]
+    assert ASSESSMENT_KEYS <= set(a)
+    assert set(a["hosmer_lemeshow"]) >= {"statistic", "df", "p_value", "groups"}
+    assert a["hosmer_lemeshow"]["df"] == a["hosmer_lemeshow"]["groups"] - 2
+    assert all(set(r) == {"row", "cooks_distance", "leverage"} for r in a["influential"])
+    cooks = [r["cooks_distance"] for r in a["influential"]]
+    assert cooks == sorted(cooks, reverse=True)
+    assert all(set(v) >= {"column", "value"} for v in a["vif"])
+    assert set(a["classification"]) >= {"threshold", "sensitivity", "specificity", "ppv", "npv"}
+    # Outside reference: scikit-learn's AUC of statsmodels' fitted risks.
+    from sklearn.metrics import roc_auc_score
+
+    frame = pd.read_csv(READMIT)
+    X = sm.add_constant(pd.DataFrame({"age": frame.age, "prior": frame.prior_admissions,
+                                      "call": (frame.followup_call == "yes").astype(float)}))
+    ref = sm.Logit(frame.readmitted_30d, X).fit(disp=0)
+    assert a["auc"] == pytest.approx(roc_auc_score(frame.readmitted_30d, ref.predict()), rel=1e-9)
+
+
+def test_firth_on_a_two_by_two_table_with_a_zero_cell(tmp_path):
+    # Firth (1993); Heinze & Schemper (2002): for one binary predictor the
+    # Firth log odds ratio equals the log odds ratio with 0.5 added to each cell.
+    a, b, c, d = 12, 0, 30, 18  # exposed events, exposed non-events, unexposed events, unexposed non-events
+    rows = ["exposed,event"] + ["yes,1"] * a + ["yes,0"] * b + ["no,1"] * c + ["no,0"] * d
+    path = tmp_path / "two_by_two.csv"
+    path.write_text("\n".join(rows) + "\n")
+    out = fit_json(path, "--outcome", "event", "--predictor", "exposed", "--firth", "--profile-ci")
+    assert out["method"] == "Firth penalised likelihood"
+    term = out["terms"][0]
+    expected = np.log(((a + 0.5) * (d + 0.5)) / ((b + 0.5) * (c + 0.5)))
+    assert term["estimate"] == pytest.approx(expected, rel=1e-6)
+    assert term["or_pl_low"] is not None and term["or_pl_high"] is not None
+    assert term["or_pl_low"] < term["odds_ratio"] < term["or_pl_high"]
+    assert "separation" in {w["code"] for w in out["warnings"]}
+
+
+def test_bad_threshold_is_one_line():
+    res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "--threshold", "1.5")
+    assert res.returncode == 2 and "between 0 and 1" in res.stderr and "Traceback" not in res.stderr

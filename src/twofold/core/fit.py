@@ -34,21 +34,46 @@ Z95 = 1.959963984540054
 EVENTS_PER_PARAMETER_WARNING = 10
 
 _controller = None
+_limit_lock = __import__("threading").Lock()
+_limit_depth = 0
+_limit_ctx = None
+
+
+class _OneBlasThread:
+    """Limit BLAS to one thread while any fit runs: two threads made small fits several times slower.
+
+    Re-entrant and shared across Python threads: only the outermost entry
+    sets the limit and only the last exit lifts it, so parallel refits never
+    restore the limit under each other's feet.
+    """
+
+    def __enter__(self):
+        global _controller, _limit_depth, _limit_ctx
+        with _limit_lock:
+            if _limit_depth == 0:
+                try:
+                    if _controller is None:
+                        from threadpoolctl import ThreadpoolController
+
+                        _controller = ThreadpoolController()
+                    _limit_ctx = _controller.limit(limits=1, user_api="blas")
+                except Exception:  # threadpoolctl missing or unable to inspect: run as is
+                    _limit_ctx = None
+            _limit_depth += 1
+        return self
+
+    def __exit__(self, *exc):
+        global _limit_depth, _limit_ctx
+        with _limit_lock:
+            _limit_depth -= 1
+            if _limit_depth == 0 and _limit_ctx is not None:
+                _limit_ctx.restore_original_limits()
+                _limit_ctx = None
+        return False
 
 
 def _one_blas_thread():
-    """A context limiting BLAS to one thread: two threads made small fits several times slower."""
-    global _controller
-    try:
-        if _controller is None:
-            from threadpoolctl import ThreadpoolController
-
-            _controller = ThreadpoolController()
-        return _controller.limit(limits=1, user_api="blas")
-    except Exception:  # threadpoolctl missing or unable to inspect: run as is
-        import contextlib
-
-        return contextlib.nullcontext()
+    return _OneBlasThread()
 
 
 def null_log_likelihood(y: np.ndarray) -> float:
@@ -480,6 +505,43 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
             "consider fewer predictors.",
         ))
     return fit
+
+
+def refit_log_likelihood(X: np.ndarray, y: np.ndarray, start: np.ndarray, maxiter: int = 35,
+                         tol: float = 1e-4) -> float:
+    """Maximised log-likelihood of a sub-model, for likelihood-ratio tests only.
+
+    statsmodels ``Logit`` (Newton) on a design already known to be full rank,
+    without the bookkeeping a displayed fit needs.  From a start near the
+    solution Newton converges quadratically, so once a step is below ``tol``
+    the estimates after it are off by about its square, and the
+    log-likelihood by far less: a looser stopping rule costs no accuracy in G.
+    """
+    from statsmodels.discrete.discrete_model import Logit
+
+    with _one_blas_thread(), warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        res = Logit(y, X, check_rank=False, hasconst=False).fit(
+            method="newton", start_params=start, maxiter=maxiter, tol=tol, disp=0, warn_convergence=False,
+            full_output=False, skip_hessian=True)  # only the likelihood is needed: no covariance
+    return float(res.llf)
+
+
+def reduced_start(fit: "LogisticFit", drop: np.ndarray) -> np.ndarray:
+    """Starting values for the fit without parameters ``drop``: one Newton-like correction.
+
+    b_keep - H_kk^-1 H_kd b_d, from the full fit's information matrix, which is
+    close enough that Newton needs a step or two to converge.
+    """
+    keep = np.setdiff1d(np.arange(fit.n_params), drop)
+    info = np.linalg.pinv(fit.cov) if np.all(np.isfinite(fit.cov)) else None
+    b = fit.params
+    if info is None:
+        return b[keep].copy()
+    try:
+        return b[keep] + np.linalg.solve(info[np.ix_(keep, keep)], info[np.ix_(keep, drop)] @ b[drop])
+    except np.linalg.LinAlgError:
+        return b[keep].copy()
 
 
 def _column_of(design: Design, j: int) -> str | None:

@@ -58,6 +58,8 @@ class Comparison:
     """Two rungs compared: a likelihood-ratio test when nested, AIC and BIC always.
 
     ``aic_difference`` is AIC(second) - AIC(first): negative favours the second.
+    ``auc_test`` is the paired DeLong test of the two AUCs on the common rows
+    (DeLong et al. 1988, Biometrics 44:837).
     """
 
     first: int
@@ -67,6 +69,7 @@ class Comparison:
     aic_difference: float
     bic_difference: float
     note: str
+    auc_test: object = None
 
 
 class Ladder:
@@ -191,4 +194,9 @@ class Ladder:
         else:
             note = ("Neither model contains the other, so no likelihood-ratio test applies; "
                     "compare them by AIC and BIC (lower is better; a difference under 2 is small).")
-        return Comparison(i, j, test is not None, test, d_aic, d_bic, note)
+        from twofold.core.discrimination import delong_paired
+
+        auc_test = None
+        if np.array_equal(a.fit.design.rows, b.fit.design.rows):
+            auc_test = delong_paired(a.fit.design.y, a.fit.fitted, b.fit.fitted)
+        return Comparison(i, j, test is not None, test, d_aic, d_bic, note, auc_test)

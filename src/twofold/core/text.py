@@ -132,6 +132,8 @@ def describe(record: dict, source: str = "") -> str:
         add(f"  Likelihood-ratio test: G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
             f"p-value {fmt_p(nested['p_value'])}.")
         add("  " + reading_nested(nested["p_value"] if nested["df"] > 0 else None, nested["added"]))
+    if record.get("assessment"):
+        out.extend(describe_assessment(record["assessment"], record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -140,3 +142,60 @@ def describe(record: dict, source: str = "") -> str:
     add("")
     add("Caution: " + record["caution"])
     return "\n".join(out) + "\n"
+
+
+def describe_assessment(a: dict, record: dict) -> list[str]:
+    """The assessment section of the plain-text account."""
+    out = [""]
+    add = out.append
+    add("How well does it tell patients apart, and are its risks right? (on the records it was fitted to)")
+    lo, hi = a["auc_ci"]
+    add(f"  Discrimination: area under the ROC curve (c statistic) {fmt_num(a['auc'], 3)}, "
+        f"95% CI {fmt_num(lo, 3)} to {fmt_num(hi, 3)} (DeLong); 0.5 is a coin toss, 1 perfect.")
+    add(f"  Brier score {fmt_num(a['brier'], 4)} (scaled Brier {fmt_num(a['scaled_brier'], 3)}; lower Brier is better).")
+    add(f"  Calibration slope {fmt_num(a['calibration_slope'], 3)}, calibration-in-the-large "
+        f"{fmt_num(a['calibration_intercept'], 3)}.")
+    add(f"    {a['calibration_note']}")
+    hl = a["hosmer_lemeshow"]
+    if hl:
+        add(f"  Hosmer-Lemeshow test over {hl['groups']} risk groups: {fmt_num(hl['statistic'], 2)} on {hl['df']} "
+            f"degrees of freedom, p-value {fmt_p(hl['p_value'])}.")
+        add(f"    {hl['note']}")
+    add(f"  Pseudo R-squared: McFadden {fmt_num(a['mcfadden_r2'], 3)}, Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, "
+        f"Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, Tjur {fmt_num(a['tjur_r2'], 3)}.")
+    if "classification" in a:
+        c = a["classification"]
+        add(f"  At a risk threshold of {c['threshold']:g}: sensitivity {fmt_num(c['sensitivity'], 3)}, specificity "
+            f"{fmt_num(c['specificity'], 3)}, positive predictive value {fmt_num(c['ppv'], 3)}, negative predictive "
+            f"value {fmt_num(c['npv'], 3)}.")
+        add(f"    {c['note']}")
+    if a["drop_one"]:
+        add("")
+        add("  Each predictor by the likelihood-ratio test (refitted without it) beside its Wald test")
+        width = max(len(t["column"]) for t in a["drop_one"]) + 2
+        add(f"    {'predictor':<{width}}{'G':>9}  {'df':>3}  {'p-value':>11}  {'Wald chi-square':>15}  {'p-value':>11}")
+        for t in a["drop_one"]:
+            flag = "  <- prefer the likelihood-ratio test" if t["prefer_lr"] else ""
+            add(f"    {t['column']:<{width}}{fmt_num(t['g'], 2):>9}  {t['df']:>3}  {fmt_p(t['p_value']):>11}  "
+                f"{fmt_num(t['wald'], 2):>15}  {fmt_p(t['wald_p_value']):>11}{flag}")
+        if any(t["prefer_lr"] for t in a["drop_one"]):
+            add("    Where marked, the two tests disagree or the estimate is so large that the Wald test loses "
+                "power (Hauck & Donner 1977); the likelihood-ratio test is the one to report.")
+    flagged = [v for v in a["vif"] if v.get("flagged")]
+    if a["vif"]:
+        worst = max(a["vif"], key=lambda v: v["value"] or 0)
+        add(f"  Variance inflation: largest {fmt_num(worst['value'], 2)} ('{worst['column']}')"
+            + (f"; above 10 (common practice) for {', '.join(v['column'] for v in flagged)}: those estimates are "
+               "unstable because the predictors overlap." if flagged else "; none above 10 (common practice)."))
+    ss = a.get("sample_size")
+    if ss:
+        add(f"  Sample size (Riley et al. 2020, with the model's own Cox-Snell R-squared): at least "
+            f"{ss['n_minimum']:,} records are needed for {ss['parameters']} coefficients; this extract used "
+            f"{record['rows_used']:,}"
+            + (" — fewer than needed, so expect the model to look better here than on new patients."
+               if record["rows_used"] < ss["n_minimum"] else "."))
+    if a["influential"]:
+        top = a["influential"][:5]
+        add("  Records with the most influence (Cook's distance), by row of the file: "
+            + ", ".join(f"row {r['row']} ({fmt_num(r['cooks_distance'], 4)})" for r in top) + ".")
+    return out
