@@ -17,7 +17,7 @@ from pathlib import Path
 EXIT_USAGE = 2
 EXIT_INTERNAL = 3
 
-SUBCOMMANDS = ("fit", "snapshot")
+SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -43,6 +43,9 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
     p.add_argument("--profile-ci", action="store_true", help="add profile-likelihood intervals for the odds ratios")
     p.add_argument("--threshold", type=_probability, metavar="P", help="risk threshold for a classification table")
+    p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
+    p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
+    p.add_argument("--table-out", metavar="PATH.csv|PATH.xlsx", help="write the coefficient table")
     return p
 
 
@@ -69,7 +72,17 @@ def run_fit(argv: list[str]) -> int:
     from twofold.core.errors import TwofoldError
 
     try:
-        record, source = _fit(args)
+        result = _fit(args)
+        record, source = result.record, result.study.source
+        for out in (args.session_out, args.report, args.table_out, None if args.json in (None, "-") else args.json):
+            if out and _same_file(Path(out), Path(args.data)):
+                print(f"twofold: {out} is the data file itself; Twofold never writes to the data, "
+                      "so choose another file name.", file=sys.stderr)
+                return EXIT_USAGE
+        if args.session_out or args.report or args.table_out:
+            from twofold.outputs import write_fit_outputs
+
+            write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out)
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -79,10 +92,6 @@ def run_fit(argv: list[str]) -> int:
             sys.stdout.write(text + "\n")
         else:
             out = Path(args.json)
-            if _same_file(out, Path(args.data)):
-                print(f"twofold: --json {out} is the data file itself; Twofold never writes to the data, "
-                      "so choose another file name.", file=sys.stderr)
-                return EXIT_USAGE
             try:
                 out.write_text(text + "\n", encoding="utf-8")
             except OSError as exc:
@@ -96,38 +105,21 @@ def run_fit(argv: list[str]) -> int:
     return 0
 
 
+def _spec(args):
+    from twofold.core.analysis import AnalysisSpec, parse_references
+
+    return AnalysisSpec(
+        data=args.data, outcome=args.outcome, event=args.event, predictors=list(args.predictors),
+        smaller=None if args.smaller is None else list(args.smaller),
+        references=parse_references(args.reference), sheet=args.sheet, firth=args.firth,
+        profile_ci=args.profile_ci, threshold=args.threshold,
+    )
+
+
 def _fit(args):
-    from twofold.core.errors import ColumnError
-    from twofold.core.study import Study
-    from twofold.core.summary import fit_record
+    from twofold.core.analysis import run_analysis
 
-    study = Study.from_file(args.data, sheet=args.sheet)
-    event = study.set_outcome(args.outcome, args.event, guess=False)
-    for item in args.reference:
-        if "=" not in item:
-            raise ColumnError(f"--reference {item!r} should look like COLUMN=LEVEL, for example discharge_destination=home.")
-        column, level = item.split("=", 1)
-        study.set_reference(column.strip(), level.strip())
-    predictors = [study.column(p) for p in args.predictors]
-    nested = None
-    smaller = None
-    if args.smaller is not None:
-        smaller = [study.column(p) for p in args.smaller]
-        _, fit, nested = study.compare(smaller, predictors, firth=args.firth)
-    else:
-        fit = study.fit(predictors, firth=args.firth)
-    for n in study.table.notices:
-        fit.notices.insert(0, n)
-    from twofold.core.assessment import assess
-
-    assessment = assess(study, fit, threshold=args.threshold)
-    profile = None
-    if args.profile_ci:
-        from twofold.core.penalised import profile_intervals
-
-        profile = profile_intervals(fit)
-    record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
-    return record, study.source
+    return run_analysis(_spec(args))
 
 
 def run_gui(argv: list[str]) -> int:
@@ -147,6 +139,10 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if argv and argv[0] == "fit":
             return run_fit(argv[1:])
+        if argv and argv[0] in ("rerun", "predict"):
+            from twofold import outputs
+
+            return getattr(outputs, f"run_{argv[0]}")(argv[1:])
         if argv and argv[0] == "snapshot":
             from twofold.gui.snapshot import run_snapshot
 

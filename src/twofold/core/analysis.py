@@ -1,0 +1,123 @@
+"""One analysis, described as data and run in one place.
+
+An :class:`AnalysisSpec` says what to fit (outcome, event, predictors, the
+smaller model, reference levels, role changes, options); :func:`run_analysis`
+loads the data, fits, tests and assesses, and returns the record that the
+command line prints as JSON, that sessions and reports are made from, and that
+a re-run on a new extract reproduces.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+
+from twofold.core.errors import ColumnError
+
+
+@dataclass
+class AnalysisSpec:
+    """What to fit.
+
+    Attributes
+    ----------
+    data : str
+        Path of the data file (read only).
+    outcome : str
+    event : object, optional
+        The outcome value that is the event (None: 1 for a 0/1 outcome).
+    predictors : list of str
+    smaller : list of str, optional
+        Predictors of a smaller model for the nested test (None: no test).
+    references : dict
+        Reference level per categorical column.
+    roles : dict
+        Role changes per column (``Role`` values as text).
+    sheet : str, optional
+    firth, profile_ci : bool
+    threshold : float, optional
+    """
+
+    data: str
+    outcome: str
+    predictors: list
+    event: object = None
+    smaller: list | None = None
+    references: dict = field(default_factory=dict)
+    roles: dict = field(default_factory=dict)
+    sheet: str | None = None
+    firth: bool = False
+    profile_ci: bool = False
+    threshold: float | None = None
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass
+class AnalysisResult:
+    """The outcome of :func:`run_analysis`: the study, the fits, and the record."""
+
+    spec: AnalysisSpec
+    study: object
+    fit: object
+    nested: object
+    smaller_fit: object
+    assessment: object
+    record: dict
+
+
+def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
+    """Load the data (unless a study is given) and apply roles, outcome and references."""
+    from twofold.core.study import Study
+
+    if study is None:
+        study = Study.from_file(spec.data, sheet=spec.sheet)
+    for column, role in spec.roles.items():
+        study.set_role(column, role)
+    event = study.set_outcome(spec.outcome, spec.event, guess=guess_event)
+    for column, level in spec.references.items():
+        study.set_reference(column, level)
+    return study, event
+
+
+def parse_references(items) -> dict:
+    """``["COLUMN=LEVEL", ...]`` into a dict, with a clear message for a malformed item."""
+    out = {}
+    for item in items:
+        if "=" not in item:
+            raise ColumnError(f"--reference {item!r} should look like COLUMN=LEVEL, for example discharge_destination=home.")
+        column, level = item.split("=", 1)
+        out[column.strip()] = level.strip()
+    return out
+
+
+def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> AnalysisResult:
+    """Fit, test and assess the model a spec describes.
+
+    Returns
+    -------
+    AnalysisResult
+        ``record`` follows the JSON contract of ``twofold fit``.
+    """
+    from twofold.core.assessment import assess
+    from twofold.core.summary import fit_record
+
+    study, event = prepare_study(spec, study, guess_event)
+    predictors = [study.column(p) for p in spec.predictors]
+    nested = smaller_fit = None
+    smaller = None
+    if spec.smaller is not None:
+        smaller = [study.column(p) for p in spec.smaller]
+        smaller_fit, fit, nested = study.compare(smaller, predictors, firth=spec.firth)
+    else:
+        fit = study.fit(predictors, firth=spec.firth)
+    for n in study.table.notices:
+        fit.notices.insert(0, n)
+    assessment = assess(study, fit, threshold=spec.threshold)
+    profile = None
+    if spec.profile_ci:
+        from twofold.core.penalised import profile_intervals
+
+        profile = profile_intervals(fit)
+    record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
+    return AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
