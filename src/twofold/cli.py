@@ -43,10 +43,26 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
     p.add_argument("--profile-ci", action="store_true", help="add profile-likelihood intervals for the odds ratios")
     p.add_argument("--threshold", type=_probability, metavar="P", help="risk threshold for a classification table")
+    p.add_argument("--spline", action="append", default=[], metavar="COLUMN:K",
+                   help="model a numeric predictor with a restricted cubic spline of K = 3, 4 or 5 knots")
+    p.add_argument("--interaction", action="append", default=[], metavar="A:B",
+                   help="add the interaction of two predictors")
+    p.add_argument("--validate", type=_repetitions, metavar="B", help="bootstrap optimism correction with B resamples")
+    p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     p.add_argument("--table-out", metavar="PATH.csv|PATH.xlsx", help="write the coefficient table")
     return p
+
+
+def _repetitions(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the number of resamples, e.g. 200") from None
+    if not 1 <= value <= 100_000:
+        raise argparse.ArgumentTypeError(f"{text} resamples is out of range; give between 1 and 100000, e.g. 200")
+    return value
 
 
 def _probability(text: str) -> float:
@@ -106,13 +122,14 @@ def run_fit(argv: list[str]) -> int:
 
 
 def _spec(args):
-    from twofold.core.analysis import AnalysisSpec, parse_references
+    from twofold.core.analysis import AnalysisSpec, parse_interactions, parse_references, parse_splines
 
     return AnalysisSpec(
         data=args.data, outcome=args.outcome, event=args.event, predictors=list(args.predictors),
         smaller=None if args.smaller is None else list(args.smaller),
         references=parse_references(args.reference), sheet=args.sheet, firth=args.firth,
-        profile_ci=args.profile_ci, threshold=args.threshold,
+        profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
+        interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
     )
 
 

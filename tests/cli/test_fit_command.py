@@ -190,3 +190,33 @@ def test_firth_on_a_two_by_two_table_with_a_zero_cell(tmp_path):
 def test_bad_threshold_is_one_line():
     res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "--threshold", "1.5")
     assert res.returncode == 2 and "between 0 and 1" in res.stderr and "Traceback" not in res.stderr
+
+
+def test_spline_interaction_and_validation_fields():
+    out = fit_json(READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "length_of_stay", "followup_call",
+                   "--spline", "age:4", "--interaction", "length_of_stay:followup_call",
+                   "--validate", "30", "--seed", "11")
+    (nl,) = out["nonlinearity"]
+    assert nl["column"] == "age" and nl["df"] == 2 and len(nl["knots"]) == 4
+    # Knots at Harrell's 4-knot quantiles (numpy.quantile as the reference).
+    ages = pd.read_csv(READMIT)["age"].to_numpy(dtype=float)
+    assert nl["knots"] == pytest.approx(np.quantile(ages, [0.05, 0.35, 0.65, 0.95]).tolist())
+    (it,) = out["interaction_tests"]
+    assert it["term"] == "length_of_stay:followup_call" and it["df"] == 1
+    assert any(t["column"] == "length_of_stay:followup_call" and t["level"] == "yes" for t in out["terms"])
+    v = out["validation"]
+    assert set(v) >= {"repetitions", "auc_apparent", "auc_corrected", "calibration_slope_corrected",
+                      "brier_apparent", "brier_corrected"}
+    assert v["repetitions"] == 30
+    assert v["auc_apparent"] == pytest.approx(out["assessment"]["auc"], rel=1e-9)
+
+
+@pytest.mark.parametrize("args, fragment", [
+    (["--spline", "age:7"], "K = 3, 4 or 5"),
+    (["--spline", "sex:3"], "not numeric"),
+    (["--interaction", "age"], "A:B"),
+    (["--validate", "zero"], "whole number"),
+])
+def test_bad_modelling_options(args, fragment):
+    res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "sex", *args)
+    assert res.returncode == 2 and fragment in res.stderr and "Traceback" not in res.stderr

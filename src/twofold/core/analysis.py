@@ -35,6 +35,14 @@ class AnalysisSpec:
     sheet : str, optional
     firth, profile_ci : bool
     threshold : float, optional
+    splines : dict
+        Knots (3, 4 or 5) per numeric predictor to model with a spline.
+    interactions : list of str
+        Two-way interactions as ``"A:B"``.
+    validate : int, optional
+        Bootstrap repetitions for optimism correction (None: none).
+    seed : int, optional
+        Seed of the bootstrap.
     """
 
     data: str
@@ -48,6 +56,10 @@ class AnalysisSpec:
     firth: bool = False
     profile_ci: bool = False
     threshold: float | None = None
+    splines: dict = field(default_factory=dict)
+    interactions: list = field(default_factory=list)
+    validate: int | None = None
+    seed: int | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -64,6 +76,7 @@ class AnalysisResult:
     smaller_fit: object
     assessment: object
     record: dict
+    validation: object = None
 
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
@@ -77,7 +90,31 @@ def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
     event = study.set_outcome(spec.outcome, spec.event, guess=guess_event)
     for column, level in spec.references.items():
         study.set_reference(column, level)
+    for column, knots in spec.splines.items():
+        study.set_spline(column, int(knots))
     return study, event
+
+
+def parse_splines(items) -> dict:
+    """``["COLUMN:K", ...]`` into {column: K}, K in 3, 4, 5."""
+    out = {}
+    for item in items:
+        column, _, k = item.rpartition(":")
+        if not column or k not in ("3", "4", "5"):
+            raise ColumnError(f"--spline {item!r} should look like COLUMN:K with K = 3, 4 or 5, for example age:4.")
+        out[column.strip()] = int(k)
+    return out
+
+
+def parse_interactions(items) -> list:
+    """``["A:B", ...]`` checked for shape."""
+    out = []
+    for item in items:
+        parts = [p.strip() for p in item.split(":")]
+        if len(parts) != 2 or not all(parts):
+            raise ColumnError(f"--interaction {item!r} should name two predictors as A:B, for example age:sex.")
+        out.append(":".join(parts))
+    return out
 
 
 def parse_references(items) -> dict:
@@ -104,6 +141,10 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
 
     study, event = prepare_study(spec, study, guess_event)
     predictors = [study.column(p) for p in spec.predictors]
+    for term in spec.interactions:
+        term = study.column(term)
+        if term not in predictors:
+            predictors.append(term)
     nested = smaller_fit = None
     smaller = None
     if spec.smaller is not None:
@@ -120,4 +161,22 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
 
         profile = profile_intervals(fit)
     record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
-    return AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
+    from twofold.core.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
+    from twofold.core.summary import clean_number
+
+    if spec.splines:
+        record["nonlinearity"] = [
+            {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
+             "p_value": clean_number(t.p_value)} for t in nonlinearity_tests(study, fit)]
+    if spec.interactions:
+        record["interaction_tests"] = [
+            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
+            for t in interaction_tests(study, fit)]
+    validation = None
+    if spec.validate:
+        validation = bootstrap_validation(fit, spec.validate, seed=spec.seed)
+        record["validation"] = {k: (clean_number(v) if isinstance(v, float) else v)
+                                for k, v in validation.as_dict().items()}
+    result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
+    result.validation = validation
+    return result

@@ -27,13 +27,18 @@ class TermBlock:
     Attributes
     ----------
     column : str
-        The predictor's column name.
+        The predictor's column name (``"A:B"`` for an interaction).
     kind : str
-        ``"numeric"`` or ``"factor"`` (indicators against a reference level).
+        ``"numeric"``, ``"factor"`` (indicators against a reference level),
+        ``"spline"`` (a restricted cubic spline: the value, then non-linear
+        terms) or ``"interaction"`` (products of two blocks).
     levels : tuple
-        For a factor, the non-reference levels in column order; else ``()``.
+        For a factor, the non-reference levels in column order; for a spline
+        the names of the non-linear terms; for an interaction one label per
+        column (None for a product of two numbers); else ``()``.
     reference : object
-        For a factor, the reference level; else ``None``.
+        For a factor, the reference level; for a spline, its knots; for an
+        interaction, the two blocks it multiplies; else ``None``.
     values : numpy.ndarray
         Shape (n_rows, width), float64; rows with a missing cell hold 0.
     missing : numpy.ndarray
@@ -51,12 +56,31 @@ class TermBlock:
     def width(self) -> int:
         return self.values.shape[1]
 
+    def level_of(self, j: int):
+        """The level label of the block's j-th column (None for a plain number)."""
+        if self.kind == "numeric":
+            return None
+        if self.kind == "spline":
+            return None if j == 0 else self.levels[j - 1]
+        return self.levels[j]
+
+    @property
+    def factor_reference(self):
+        """The reference level of a factor (None for other kinds)."""
+        return self.reference if self.kind == "factor" else None
+
+    @property
+    def knots(self) -> tuple:
+        return tuple(self.reference) if self.kind == "spline" else ()
+
     @property
     def names(self) -> list[str]:
-        """Parameter names: the column, or ``column[level]`` for factor indicators."""
-        if self.kind == "numeric":
-            return [self.column]
-        return [f"{self.column}[{lvl}]" for lvl in self.levels]
+        """Parameter names: the column, or ``column[level]`` for each labelled column."""
+        out = []
+        for j in range(self.width):
+            lvl = self.level_of(j)
+            out.append(self.column if lvl is None else f"{self.column}[{lvl}]")
+        return out
 
 
 def encode(series, info: ColumnInfo, reference=None) -> TermBlock:

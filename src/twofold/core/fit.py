@@ -304,8 +304,7 @@ class LogisticFit:
         level_of = {}
         for block, sl in zip(self.design.blocks, self.design.slices):
             for j, c in enumerate(range(sl.start, sl.stop)):
-                level_of[c] = (block.column, block.levels[j] if block.kind == "factor" else None,
-                               block.reference if block.kind == "factor" else None)
+                level_of[c] = (block.column, block.level_of(j), block.factor_reference)
         rows = []
         for i, c in enumerate(self.kept):
             column, level, reference = level_of.get(int(c), (None, None, None))
@@ -574,7 +573,8 @@ def nested_test(smaller: LogisticFit, larger: LogisticFit) -> LikelihoodRatioTes
     for col in small_cols:
         a = smaller.design.blocks[smaller.design.predictors.index(col)]
         b = larger.design.blocks[larger.design.predictors.index(col)]
-        if a.kind != b.kind:
+        # A straight line is nested in a spline of the same predictor (its first column).
+        if a.kind != b.kind and not (a.kind == "numeric" and b.kind == "spline"):
             raise ModelError(f"'{col}' is coded differently in the two models, so they are not nested; "
                              "use the same role for it in both.")
     if len(smaller.design.rows) != len(larger.design.rows) or not np.array_equal(smaller.design.rows, larger.design.rows):

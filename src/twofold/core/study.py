@@ -55,7 +55,8 @@ class Study:
         self.source = table.path.name
         self._columns: dict[str, ColumnInfo] = describe_columns(self.frame)
         self._references: dict[str, object] = {}
-        self._blocks: dict[str, TermBlock] = {}
+        self._splines: dict[str, int] = {}
+        self._blocks: dict[tuple, TermBlock] = {}
         self._aliased: dict[tuple, list[int]] = {}
         self.outcome: str | None = None
         self.event = None
@@ -78,8 +79,33 @@ class Study:
         return dict(self._columns)
 
     def column(self, name: str) -> str:
-        """The exact column name for ``name``, or a ColumnError naming close matches."""
+        """The exact column name for ``name`` (or ``"A:B"`` for an interaction), else a ColumnError."""
+        from twofold.core.terms import split_interaction
+
+        pair = split_interaction(name)
+        if pair is not None:
+            return ":".join(require_column(self._columns, part, self.source) for part in pair)
         return require_column(self._columns, name, self.source)
+
+    def set_spline(self, name: str, knots: int | None) -> None:
+        """Use a restricted cubic spline with 3, 4 or 5 knots for a numeric predictor (None: straight line)."""
+        from twofold.core.terms import KNOT_QUANTILES
+
+        name = self.column(name)
+        if knots is None:
+            self._splines.pop(name, None)
+        else:
+            if knots not in KNOT_QUANTILES:
+                raise ModelError(f"A spline takes 3, 4 or 5 knots, not {knots}; choose one of those.")
+            self._splines[name] = int(knots)
+        self._forget(name)
+        self.block(name)  # check it now, so a bad choice is reported here
+        self.events.roles.emit(name)
+
+    @property
+    def splines(self) -> dict[str, int]:
+        """Knots per predictor with a spline."""
+        return dict(self._splines)
 
     def set_role(self, name: str, role: Role | str) -> None:
         """Override the inferred role of a column."""
@@ -102,8 +128,11 @@ class Study:
         return block.reference
 
     def _forget(self, name: str) -> None:
-        self._blocks.pop(name, None)
-        self._aliased = {k: v for k, v in self._aliased.items() if name not in k[0]}
+        def touches(term: str) -> bool:
+            return name in term.split(":")
+
+        self._blocks = {k: v for k, v in self._blocks.items() if not touches(k[0])}
+        self._aliased = {k: v for k, v in self._aliased.items() if not any(touches(t) for t in k[0])}
 
     def candidates(self) -> list[str]:
         """Columns offered as predictors: those with a predictor role, other than the outcome."""
@@ -139,14 +168,27 @@ class Study:
         return self._y_all
 
     # ---- designs ----------------------------------------------------
-    def block(self, name: str) -> TermBlock:
-        """The encoded columns of one predictor (cached)."""
+    def block(self, name: str, linear: bool = False) -> TermBlock:
+        """The encoded columns of one predictor or interaction (cached).
+
+        ``linear=True`` gives a spline predictor's straight-line block.
+        """
+        from twofold.core.terms import interaction_block, spline_block, split_interaction
+
         name = self.column(name)
-        if name not in self._blocks:
-            if name == self.outcome:
+        form = "linear" if linear or name not in self._splines else self._splines[name]
+        key = (name, form)
+        if key not in self._blocks:
+            pair = split_interaction(name)
+            if pair is not None:
+                self._blocks[key] = interaction_block(self.block(pair[0], linear=True), self.block(pair[1], linear=True))
+            elif name == self.outcome:
                 raise ColumnError(f"'{name}' is the outcome, so it cannot also be a predictor; untick it.")
-            self._blocks[name] = encode(self.frame[name], self._columns[name], self._references.get(name))
-        return self._blocks[name]
+            elif form == "linear":
+                self._blocks[key] = encode(self.frame[name], self._columns[name], self._references.get(name))
+            else:
+                self._blocks[key] = spline_block(self.block(name, linear=True), form)
+        return self._blocks[key]
 
     def complete_mask(self, predictors) -> np.ndarray:
         """True for rows with the outcome and every named predictor present."""
@@ -168,8 +210,11 @@ class Study:
             rows = self.complete_rows(predictors)
         return RowAccount(self.n_rows, int((~has_outcome).sum()), missing, len(rows))
 
-    def design(self, predictors, rows: np.ndarray | None = None) -> Design:
-        """The design matrix of the named predictors on ``rows`` (default: their complete rows)."""
+    def design(self, predictors, rows: np.ndarray | None = None, linear=()) -> Design:
+        """The design matrix of the named predictors on ``rows`` (default: their complete rows).
+
+        Predictors named in ``linear`` enter as straight lines even if a spline is set.
+        """
         predictors = [self.column(p) for p in predictors]
         if len(set(predictors)) != len(predictors):
             raise ModelError("A predictor is named twice; name each predictor once.")
@@ -178,9 +223,17 @@ class Study:
         else:
             if not self.complete_mask(predictors)[rows].all():
                 raise ModelError("Some of the rows asked for have missing values in these predictors.")
-        return assemble([self.block(p) for p in predictors], self._require_outcome(), rows)
+        from twofold.core.terms import split_interaction
 
-    def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False) -> LogisticFit:
+        for p in predictors:
+            pair = split_interaction(p)
+            if pair is not None and not set(pair) <= set(predictors):
+                raise ModelError(f"The interaction {p} needs both {pair[0]} and {pair[1]} in the model as well; "
+                                 "tick them too.")
+        return assemble([self.block(p, linear=p in linear) for p in predictors], self._require_outcome(), rows)
+
+    def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False,
+            linear=()) -> LogisticFit:
         """Fit the logistic model of the outcome on the named predictors.
 
         Parameters
@@ -192,12 +245,16 @@ class Study:
             A previous fit to warm-start from, or starting values.
         firth : bool
             Fit by Firth's penalised likelihood instead of maximum likelihood.
+        linear : collection of str
+            Predictors to enter as straight lines even if a spline is set.
         """
         predictors = [self.column(p) for p in predictors]
         if self.outcome in predictors:
             raise ColumnError(f"'{self.outcome}' is the outcome, so it cannot also be a predictor; untick it.")
-        design = self.design(predictors, rows)
-        key = (tuple(predictors), design.rows.tobytes() if rows is not None else None)
+        linear = frozenset(linear)
+        design = self.design(predictors, rows, linear=linear)
+        forms = tuple((p, "linear" if p in linear else self._splines.get(p, "linear")) for p in predictors)
+        key = (tuple(predictors), design.rows.tobytes() if rows is not None else None, forms)
         dropped = self._aliased.get(key)
         if dropped is None and len(design.y):
             dropped = aliased_columns(design.X)
@@ -210,7 +267,7 @@ class Study:
             if isinstance(start, LogisticFit):
                 start = start.start_for(design)
             fit = fit_logistic(design, start=start, dropped=dropped)
-        account = self.account(predictors, design.rows)
+        account = self.account([p for p in predictors if ":" not in p], design.rows)
         fit.account = account
         lost = self.n_rows - account.rows_used
         if lost:

@@ -1,0 +1,312 @@
+"""Tests and summaries for non-linear effects and interactions, and bootstrap validation.
+
+* :func:`nonlinearity_tests`: the likelihood-ratio test of a straight line
+  nested in a spline of the same predictor, on the same rows.
+* :func:`interaction_tests`: the likelihood-ratio test of a model without an
+  interaction nested in the model with it.
+* :func:`conditional_odds_ratios`: the odds ratio of one predictor at chosen
+  values or levels of the other, once they interact.
+* :func:`effect_curve`: the odds ratio against a reference value across a
+  predictor's range, with a 95% band (for splines).
+* :func:`bootstrap_validation`: optimism-corrected AUC, calibration slope and
+  Brier score (Efron; Harrell, Lee & Mark 1996, Stat Med 15:361).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from twofold.core.errors import ModelError, TwofoldError
+from twofold.core.fit import Z95, LogisticFit, chi2_sf, nested_test
+
+
+@dataclass(frozen=True)
+class TermLRTest:
+    """A likelihood-ratio test of one added term: G = 2 (lnL_with - lnL_without)."""
+
+    term: str
+    g: float
+    df: int
+    p_value: float
+    knots: tuple = ()
+
+    def as_dict(self) -> dict:
+        return {"term": self.term, "g": self.g, "df": self.df, "p_value": self.p_value}
+
+
+def nonlinearity_tests(study, fit: LogisticFit) -> list[TermLRTest]:
+    """For each spline in ``fit``: G of the spline against a straight line, df = knots - 2."""
+    out = []
+    for block in fit.design.blocks:
+        if block.kind != "spline":
+            continue
+        linear = study.fit(list(fit.design.predictors), rows=fit.design.rows, linear={block.column})
+        t = nested_test(linear, fit)
+        out.append(TermLRTest(block.column, t.g, t.df, t.p_value, block.knots))
+    return out
+
+
+def interaction_tests(study, fit: LogisticFit) -> list[TermLRTest]:
+    """For each interaction in ``fit``: G of the model with it against the model without it."""
+    out = []
+    predictors = list(fit.design.predictors)
+    for name in predictors:
+        if ":" not in name:
+            continue
+        without = study.fit([p for p in predictors if p != name], rows=fit.design.rows, start=fit)
+        t = nested_test(without, fit)
+        out.append(TermLRTest(name, t.g, t.df, t.p_value))
+    return out
+
+
+def _contrast_or(fit: LogisticFit, contrast: np.ndarray) -> tuple[float, float, float]:
+    """exp(c'b) with its 95% Wald interval exp(c'b -/+ 1.96 sqrt(c'Vc))."""
+    est = float(contrast @ fit.params)
+    se = math.sqrt(max(float(contrast @ fit.cov @ contrast), 0.0))
+    return math.exp(est), math.exp(est - Z95 * se), math.exp(est + Z95 * se)
+
+
+def conditional_odds_ratios(fit: LogisticFit, focus: str, other: str, at=None) -> list[dict]:
+    """Odds ratios of ``focus`` at values or levels of ``other`` in a model with their interaction.
+
+    For a numeric focus the odds ratio is per unit; for a factor focus, each
+    level against its reference.  ``at`` lists values of a numeric ``other``
+    (default: its quartiles on the rows used); a factor ``other`` is shown at
+    every level, reference included.
+    """
+    names = fit.names
+    pos = {n: i for i, n in enumerate(names)}
+    term = f"{focus}:{other}" if f"{focus}:{other}" in fit.design.predictors else f"{other}:{focus}"
+    if term not in fit.design.predictors:
+        raise ModelError(f"The model has no interaction between {focus} and {other}; add it first.")
+    blocks = dict(zip(fit.design.predictors, fit.design.blocks))
+    slices = dict(zip(fit.design.predictors, fit.design.slices))
+    fb, ob, ib = blocks[focus], blocks[other], blocks[term]
+    first_is_focus = term.split(":")[0] == focus
+    X = fit.design.X
+
+    def focus_levels():
+        if fb.kind == "factor":
+            return [(lvl, [f"{focus}[{lvl}]"]) for lvl in fb.levels]
+        return [(None, [focus])]
+
+    if ob.kind == "factor":
+        settings = [(ob.reference, None)] + [(lvl, lvl) for lvl in ob.levels]
+    else:
+        col = slices[other].start
+        values = np.quantile(X[:, col], [0.25, 0.5, 0.75]) if at is None else np.asarray(at, dtype=float)
+        settings = [(float(v), float(v)) for v in values]
+    rows = []
+    for flevel, fnames in focus_levels():
+        for shown, olevel in settings:
+            c = np.zeros(len(names))
+            for n in fnames:
+                if n in pos:
+                    c[pos[n]] = 1.0
+            # The interaction columns that move with this focus level at this setting.
+            for j in range(ib.width):
+                lbl = ib.level_of(j)
+                parts = [] if lbl is None else lbl.split(":")
+                name = term if lbl is None else f"{term}[{lbl}]"
+                if name not in pos:
+                    continue
+                f_part = parts[0 if first_is_focus else -1] if (fb.kind == "factor" and parts) else None
+                o_part = parts[-1 if first_is_focus else 0] if (ob.kind == "factor" and parts) else None
+                if fb.kind == "factor" and f_part != str(flevel):
+                    continue
+                if ob.kind == "factor":
+                    if olevel is None or o_part != str(olevel):
+                        continue
+                    c[pos[name]] = 1.0
+                else:
+                    c[pos[name]] = olevel
+            odds, lo, hi = _contrast_or(fit, c)
+            rows.append({"focus": focus, "level": flevel, "other": other, "at": shown,
+                         "odds_ratio": odds, "or_ci_low": lo, "or_ci_high": hi})
+    return rows
+
+
+def effect_curve(fit: LogisticFit, column: str, reference: float | None = None, points: int = 101) -> dict:
+    """Odds ratio against a reference value across a predictor's range, with a 95% band.
+
+    log OR(x) = (b(x) - b(ref))' beta over the predictor's columns (spline or
+    straight line); band exp(log OR -/+ 1.96 se) with se from the covariance.
+    Default reference: the median on the rows used.
+    """
+    from twofold.core.terms import rcs_basis
+
+    blocks = dict(zip(fit.design.predictors, fit.design.blocks))
+    slices = dict(zip(fit.design.predictors, fit.design.slices))
+    if column not in blocks or blocks[column].kind not in ("numeric", "spline"):
+        raise ModelError(f"An effect curve needs a numeric predictor of the model; '{column}' is not one.")
+    block, sl = blocks[column], slices[column]
+    x = fit.design.X[:, sl.start]
+    grid = np.linspace(np.quantile(x, 0.01), np.quantile(x, 0.99), points)
+    ref = float(np.median(x)) if reference is None else float(reference)
+
+    def basis(v):
+        v = np.atleast_1d(np.asarray(v, dtype=float))
+        return rcs_basis(v, block.knots) if block.kind == "spline" else v.reshape(-1, 1)
+
+    idx = [fit.names.index(n) for n in block.names if n in fit.names]
+    diff = basis(grid)[:, : len(idx)] - basis(ref)[:, : len(idx)]
+    beta = fit.params[idx]
+    cov = fit.cov[np.ix_(idx, idx)]
+    log_or = diff @ beta
+    se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", diff, cov, diff), 0, None))
+    return {"column": column, "reference": ref, "x": grid, "odds_ratio": np.exp(log_or),
+            "low": np.exp(log_or - Z95 * se), "high": np.exp(log_or + Z95 * se)}
+
+
+@dataclass(frozen=True)
+class Validation:
+    """Bootstrap optimism correction: corrected = apparent - mean(boot apparent - boot on original)."""
+
+    repetitions: int
+    completed: int
+    failed: int
+    seed: int | None
+    auc_apparent: float
+    auc_optimism: float
+    slope_apparent: float
+    slope_optimism: float
+    brier_apparent: float
+    brier_optimism: float
+
+    @property
+    def auc_corrected(self) -> float:
+        return self.auc_apparent - self.auc_optimism
+
+    @property
+    def calibration_slope_corrected(self) -> float:
+        return self.slope_apparent - self.slope_optimism
+
+    @property
+    def brier_corrected(self) -> float:
+        return self.brier_apparent - self.brier_optimism
+
+    def as_dict(self) -> dict:
+        return {
+            "repetitions": self.repetitions, "completed": self.completed, "failed": self.failed,
+            "seed": self.seed, "auc_apparent": self.auc_apparent, "auc_optimism": self.auc_optimism,
+            "auc_corrected": self.auc_corrected, "calibration_slope_apparent": self.slope_apparent,
+            "calibration_slope_corrected": self.calibration_slope_corrected,
+            "brier_apparent": self.brier_apparent, "brier_optimism": self.brier_optimism,
+            "brier_corrected": self.brier_corrected,
+        }
+
+
+class ValidationCancelled(TwofoldError):
+    """The bootstrap was cancelled; nothing was changed."""
+
+
+def _performance(y, lp):
+    """AUC (Mann-Whitney by ranks), calibration slope and Brier score of a linear predictor."""
+    from scipy.special import expit
+    from scipy.stats import rankdata
+
+    p = expit(lp)
+    n1 = y.sum()
+    n0 = len(y) - n1
+    ranks = rankdata(lp)
+    auc = (ranks[y == 1].sum() - n1 * (n1 + 1) / 2) / (n1 * n0)
+    brier = float(np.mean((p - y) ** 2))
+    # Calibration slope: logistic regression of y on lp (Newton on two parameters).
+    b = np.array([0.0, 1.0])
+    Z = np.column_stack([np.ones_like(lp), lp])
+    for _ in range(25):
+        q = expit(Z @ b)
+        # lstsq: a resample that separates gives a near-singular information matrix.
+        step = np.linalg.lstsq((Z * (q * (1 - q))[:, None]).T @ Z, Z.T @ (y - q), rcond=None)[0]
+        b += np.clip(step, -5, 5)
+        if np.max(np.abs(step)) < 1e-10:
+            break
+    return float(auc), float(b[1]), brier
+
+
+def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | None = None,
+                         progress=None, cancelled=None, workers: int = 2) -> Validation:
+    """Harrell's bootstrap estimate of optimism for AUC, calibration slope and Brier score.
+
+    In each of B resamples of the rows (with replacement) the whole model is
+    refitted by maximum likelihood (same predictors, encodings and spline
+    knots); its performance on the resample minus its performance on the
+    original rows estimates the optimism, averaged over the resamples.
+
+    Parameters
+    ----------
+    progress : callable, optional
+        Called with (done, total) as resamples finish.
+    cancelled : callable, optional
+        Returning True stops the run; :class:`ValidationCancelled` is raised
+        and nothing is changed.
+    workers : int
+        Threads (the linear algebra releases the interpreter lock, so two
+        threads use both cores).
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    from statsmodels.discrete.discrete_model import Logit
+
+    from twofold.core.fit import _one_blas_thread
+
+    if repetitions < 1:
+        raise ModelError("The number of bootstrap repetitions must be at least 1; 200 is usual.")
+    X = fit.design.X[:, fit.kept]
+    y = fit.design.y
+    n = len(y)
+    app = _performance(y, X @ fit.params)
+    seeds = np.random.SeedSequence(seed).spawn(repetitions)
+
+    def one(i):
+        if cancelled is not None and cancelled():
+            return None
+        rng = np.random.default_rng(seeds[i])
+        idx = rng.integers(0, n, size=n)
+        yb, Xb = y[idx], X[idx]
+        if yb.min() == yb.max():
+            return "failed"
+        import warnings
+
+        with warnings.catch_warnings(), np.errstate(all="ignore"):
+            warnings.simplefilter("ignore")
+            try:
+                res = Logit(yb, Xb, check_rank=False, hasconst=False).fit(
+                    method="newton", start_params=fit.params, maxiter=35, disp=0, warn_convergence=False,
+                    full_output=False, skip_hessian=True)
+            except (np.linalg.LinAlgError, ValueError):
+                return "failed"
+            b = np.asarray(res.params)
+            if not np.all(np.isfinite(b)):
+                return "failed"
+            try:
+                boot = _performance(yb, Xb @ b)
+                test = _performance(y, X @ b)
+            except np.linalg.LinAlgError:
+                # A separated resample: its linear predictor is degenerate.
+                return "failed"
+        if not np.all(np.isfinite(boot + test)):
+            return "failed"
+        return tuple(bb - tt for bb, tt in zip(boot, test))
+
+    results = []
+    done = 0
+    with _one_blas_thread(), ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
+        for r in pool.map(one, range(repetitions)):
+            if r is None:
+                pool.shutdown(wait=False, cancel_futures=True)
+                raise ValidationCancelled("The bootstrap validation was cancelled; nothing was changed.")
+            results.append(r)
+            done += 1
+            if progress is not None:
+                progress(done, repetitions)
+    ok = [r for r in results if r != "failed"]
+    if not ok:
+        raise ModelError("No bootstrap resample could be fitted (each had only one outcome value or failed); "
+                         "the data are too small or separated for this check.")
+    opt = np.mean(np.array(ok), axis=0)
+    return Validation(repetitions, len(ok), len(results) - len(ok), seed, app[0], float(opt[0]),
+                      app[1], float(opt[1]), app[2], float(opt[2]))
