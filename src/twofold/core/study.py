@@ -8,6 +8,7 @@ changes through :class:`~twofold.core.events.Event` objects in ``events``.
 
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass, field
 from types import SimpleNamespace
 
@@ -254,7 +255,9 @@ class Study:
         linear = frozenset(linear)
         design = self.design(predictors, rows, linear=linear)
         forms = tuple((p, "linear" if p in linear else self._splines.get(p, "linear")) for p in predictors)
-        key = (tuple(predictors), design.rows.tobytes() if rows is not None else None, forms)
+        # A digest, not the rows themselves: at a million rows the key would be 8 MB each.
+        rows_key = None if rows is None else hashlib.blake2b(design.rows.tobytes(), digest_size=16).digest()
+        key = (tuple(predictors), rows_key, forms)
         dropped = self._aliased.get(key)
         if dropped is None and len(design.y):
             dropped = aliased_columns(design.X)
