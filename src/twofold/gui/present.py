@@ -136,9 +136,10 @@ def coefficient_lines(fit, warned: dict) -> tuple:
             ref = value_label(r["reference"]) if r["reference"] is not None else ""
             lines.append(CoefficientLine(
                 kind="heading", column=col,
-                label=(f"{col}: {n_groups} groups compared with {ref}, as a whole "
-                       f"(joint Wald chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)})"),
-                texts={"p_value": fmt_p(t.p_value), "statistic": fmt_num(t.statistic, 2), "df": str(t.df)},
+                label=(f"{col} as a whole\njoint Wald chi-square {fmt_num(t.statistic, 2)} "
+                       f"on {_degrees(t.df)}"),
+                texts={"p_value": fmt_p(t.p_value), "statistic": fmt_num(t.statistic, 2), "df": str(t.df),
+                       "groups": f"{n_groups} groups, compared with {ref}"},
                 values={"p_value": t.p_value, "statistic": t.statistic, "df": t.df},
                 warnings=tuple(warned.get(col, ())),
             ))
@@ -175,17 +176,40 @@ def overall_view(fit) -> TestView:
     return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
 
 
+def nested_between(ladder, i: int, j: int):
+    """The core's likelihood-ratio test between rungs i and j when one is nested in the other, else None.
+
+    Uses :func:`twofold.core.fit.nested_test` directly (cheap: two
+    log-likelihoods), not ``Ladder.compare``, which also compares the areas
+    under the ROC curves and costs a sort of every row.
+    """
+    from twofold.core.fit import LikelihoodRatioTest, nested_test
+
+    a, b = ladder.rungs[i], ladder.rungs[j]
+    sa, sb = set(a.predictors), set(b.predictors)
+    if sa == sb:
+        return None
+    if sa <= sb:
+        return nested_test(a.fit, b.fit)
+    if sb <= sa:
+        t = nested_test(b.fit, a.fit)
+        return LikelihoodRatioTest(t.g, t.df, t.p_value, added=(), removed=tuple(p for p in a.predictors
+                                                                                 if p not in sb),
+                                   n_rows=t.n_rows)
+    return None
+
+
 def nested_view(ladder, parent: int, index: int) -> TestView:
     """The test of rung ``index`` against the rung it was built from."""
     rung = ladder.rungs[index]
-    cmp = ladder.compare(parent, index)
     change = _change_text(rung) or "no change of predictors"
     title = f"Change from model {parent + 1} ({change})"
-    if cmp.test is None:
+    t = nested_between(ladder, parent, index)
+    if t is None:
+        cmp = ladder.compare(parent, index)
         text = (f"{cmp.note} AIC difference (this model minus model {parent + 1}): "
                 f"{fmt_num(cmp.aic_difference, 2)}; BIC difference: {fmt_num(cmp.bic_difference, 2)}.")
         return TestView(title, text, "", None, None, None, nested=False)
-    t = cmp.test
     which = list(t.added) or list(t.removed)
     rows = f", both on the same {t.n_rows:,} rows" if t.n_rows else ""
     if t.removed:
@@ -208,7 +232,7 @@ def ladder_view(ladder, parents: dict) -> LadderView:
         change = "first model"
         if parent is not None:
             change = (_change_text(rung) or "no change") + f" (from model {parent + 1})"
-            test = ladder.compare(parent, k).test
+            test = nested_between(ladder, parent, k)
             if test is not None:
                 g, df, p = test.g, test.df, test.p_value
                 texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
@@ -242,13 +266,12 @@ def results_view(study, ladder, parents: dict) -> ResultsView | None:
     rows_read = account.rows_read if account else fit.n_used
     share = 100.0 * fit.events / max(fit.n_used, 1)
     epp = fit.events_per_parameter
-    epp_text = (f"{fmt_num(epp, 1)} of the rarer outcome per coefficient"
+    epp_text = (f"events per coefficient: {fmt_num(epp, 1)} (counting the rarer outcome)"
                 if math.isfinite(epp) else "no coefficients besides the intercept")
     counts = (f"Rows used: {fit.n_used:,} of {rows_read:,}  \u00b7  with the event: {fit.events:,} "
               f"({share:.1f}%)  \u00b7  {epp_text}")
     event_label = value_label(study.event)
-    title = (f"Model {index + 1} of {len(ladder.rungs)}: {study.outcome} = {event_label}, "
-             f"predictors: {_predictors_text(rung.predictors)}")
+    title = f"Model {index + 1} of {len(ladder.rungs)}: the odds that {study.outcome} = {event_label}"
     parent = parents.get(index)
     previous = nested_view(ladder, parent, index) if parent is not None else None
     return ResultsView(
@@ -268,6 +291,10 @@ def comparison_view(ladder, i: int, j: int) -> ComparisonView:
     a, b = i + 1, j + 1
     diffs = (f"AIC difference (model {b} minus model {a}): {fmt_num(c.aic_difference, 2)}; "
              f"BIC difference: {fmt_num(c.bic_difference, 2)}; lower is better.")
+    auc = getattr(c, "auc_test", None)
+    if auc is not None:
+        diffs += (f" Area under the ROC curve (c statistic): model {a} {fmt_num(auc.auc_a, 3)}, model {b} "
+                  f"{fmt_num(auc.auc_b, 3)}; paired DeLong test of the difference, p-value {fmt_p(auc.p_value)}.")
     if c.test is None:
         return ComparisonView(i, j, False, diffs, "", c.note, aic_difference=c.aic_difference,
                               bic_difference=c.bic_difference)

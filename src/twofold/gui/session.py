@@ -37,6 +37,8 @@ class Session(QObject):
     busyChanged = Signal(bool)
     coreReady = Signal()
     requestFinished = Signal(int)     # id of every request that completed (shown or not)
+    loadStarted = Signal(str)         # a file is being opened: ticks would apply to the old one
+    loadProgress = Signal(float)      # share of the file read so far, 0 to 1
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -49,11 +51,16 @@ class Session(QObject):
         self.core_ready = False
         self.last_results = None
         self.last_study = None
+        #: The predictors last asked for (GUI side), used when a role change refits.
+        self.predictors: tuple = ()
         # Worker-side state: read and written on the worker thread only.
         self._study = None
         self._ladder = None
         self._parents: dict[int, int] = {}
         self._dirty: set[str] = set()
+        self._awaiting_event: str | None = None
+        # Which file opening is still wanted; an older one stops at its next progress report.
+        self._load_generation = 0
 
     # ---- life cycle ---------------------------------------------------
     def start(self) -> None:
@@ -71,35 +78,49 @@ class Session(QObject):
 
     # ---- requests (GUI thread) -------------------------------------------
     def open_file(self, path, sheet: str | None = None) -> int:
-        return self._submit("load", lambda: self._job_load(path, sheet),
+        """Open a data file (drops every request still waiting); returns the request id."""
+        self._load_generation += 1
+        generation = self._load_generation
+        self.loadStarted.emit(str(path))
+        return self._submit("load", lambda: self._job_load(path, sheet, generation),
                             facets=("study", "columns", "outcome", "results", "comparison"),
                             clears_queue=True)
 
+    def cancel_load(self) -> None:
+        """Stop opening the file being read (the file shown before stays)."""
+        self._load_generation += 1
+
     def set_outcome(self, name: str | None, event=None, guess: bool = True, predictors=()) -> int:
+        """Choose the outcome and event (a new ladder), refitting ``predictors`` on it; returns the id."""
         predictors = tuple(predictors)
         return self._submit("outcome", lambda: self._job_outcome(name, event, guess, predictors),
                             facets=("outcome", "columns", "results", "comparison"),
                             on_error=self._snapshot_all)
 
     def set_predictors(self, predictors) -> int:
+        """Fit these predictors as a new rung (replaces a fit request still waiting); returns the id."""
         predictors = tuple(predictors)
         return self._submit("fit", lambda: self._job_fit(predictors), facets=("results",),
                             coalesce="fit", on_error=self._snapshot_results)
 
     def set_role(self, column: str, role: str, predictors=()) -> int:
+        """Change a column's role and refit the ladder (or restart it if the column leaves); returns the id."""
         predictors = tuple(predictors)
         return self._submit("role", lambda: self._job_role(column, role, predictors),
                             facets=("columns", "results"), on_error=self._snapshot_all)
 
     def set_reference(self, column: str, level) -> int:
+        """Change a factor's reference level and refit the ladder; returns the id."""
         return self._submit("reference", lambda: self._job_reference(column, level),
                             facets=("columns", "results"), on_error=self._snapshot_all)
 
     def select_rung(self, index: int) -> int:
+        """Make rung ``index`` (0-based) the model shown; returns the id."""
         return self._submit("select", lambda: self._job_select(index), facets=("results",),
                             coalesce="select", on_error=self._snapshot_results)
 
     def compare_rungs(self, i: int, j: int) -> int:
+        """Compare two rungs (likelihood-ratio test if nested, AIC and BIC always); returns the id."""
         return self._submit("compare", lambda: self._job_compare(i, j), facets=("comparison",),
                             coalesce="compare")
 
@@ -141,7 +162,8 @@ class Session(QObject):
                     self.last_study = view
                 signals[facet].emit(view)
         if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
-            self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path))
+            self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path,
+                                     result.error_type))
         self._set_busy(bool(self._pending))
         self.requestFinished.emit(result.id)
 
@@ -189,13 +211,22 @@ class Session(QObject):
     def _snapshot_all(self) -> dict:
         return self._flush(also=("columns", "outcome", "results"))
 
-    def _job_load(self, path, sheet):
+    def _job_load(self, path, sheet, generation):
+        from twofold.core.io import read_table
         from twofold.core.ladder import Ladder
         from twofold.core.study import Study
 
-        study = Study.from_file(path, sheet=sheet)
+        def progress(fraction):
+            # Called on this thread between chunks; a Qt signal carries it to the window.
+            self.loadProgress.emit(fraction)
+            return generation == self._load_generation
+
+        # With a progress callback the core reads in chunks, so no single step
+        # holds the interpreter for long and the window keeps answering.
+        study = Study(read_table(path, sheet=sheet, progress=progress))
         ladder = Ladder(study)
         self._study, self._ladder, self._parents, self._dirty = study, ladder, {}, set()
+        self._awaiting_event = None
         self._watch(study, ladder)
         out = self._flush(also=("study", "outcome"))
         out["results"] = None
@@ -214,30 +245,39 @@ class Session(QObject):
         from twofold.gui import present
 
         study = self._require_study()
-        if self._ladder.rungs:
-            self._ladder.clear()
-        self._parents = {}
         if name is None:
+            self._awaiting_event = None
+            self._new_ladder()
             return {**self._flush(also=("outcome", "results")), "comparison": None}
         name = study.column(name)
         try:
             study.set_outcome(name, event, guess=guess)
-        except ColumnError as exc:
+        except ColumnError:
             info = study.columns[name]
             if event is None and info.n_levels == 2:
                 # Two values but no telling which is the event: ask, do not guess.
+                self._awaiting_event = name
+                self._new_ladder()
                 out = self._flush(also=("results",))
                 out["outcome"] = present.outcome_view(
                     study, f"Choose which value of '{name}' counts as the event.", needs_event=True, name=name)
                 out["comparison"] = None
                 return out
-            raise exc
+            raise
+        self._awaiting_event = None
+        self._new_ladder()
         predictors = tuple(p for p in predictors if p != study.outcome and p in study.candidates())
         if predictors:
             self._add(predictors)
         out = self._flush(also=("outcome", "columns", "results"))
         out["comparison"] = None
         return out
+
+    def _new_ladder(self) -> None:
+        """Start the ladder afresh (a new outcome makes the old models meaningless)."""
+        if self._ladder.rungs:
+            self._ladder.clear()
+        self._parents = {}
 
     def _add(self, predictors) -> None:
         ladder = self._ladder
@@ -249,9 +289,12 @@ class Session(QObject):
     def _job_fit(self, predictors):
         study = self._require_study()
         ladder = self._ladder
-        if study.outcome is None:
+        if study.outcome is None or self._awaiting_event is not None:
             from twofold.core.errors import ModelError
 
+            if self._awaiting_event is not None:
+                raise ModelError(f"Choose which value of '{self._awaiting_event}' counts as the event, "
+                                 "then tick the predictors.")
             raise ModelError("Choose the outcome column first, then tick the predictors.")
         current = ladder.rungs[ladder.current] if ladder.current is not None else None
         if current is None and not predictors:

@@ -26,8 +26,8 @@ ROLE_LABELS = {
     "numeric": "number",
     "binary": "two values",
     "categorical": "groups",
-    "identifier": "identifier (not used)",
-    "date": "date (not used)",
+    "identifier": "identifier",
+    "date": "date",
     "excluded": "left out",
 }
 
@@ -209,3 +209,9 @@ class Failure:
     message: str
     unexpected: bool = False
     log_path: str = ""
+    error_type: str = ""
+
+    @property
+    def cancelled(self) -> bool:
+        """Opening a file was stopped on purpose (by the user or by a newer file)."""
+        return self.error_type == "ReadCancelled"

@@ -42,6 +42,7 @@ class JobResult:
     error: str | None = None
     unexpected: bool = False
     log_path: str = ""
+    error_type: str = ""
 
 
 def log_exception(exc: BaseException | None = None) -> str:
@@ -124,6 +125,7 @@ class CoreWorker(QThread):
                 result.outputs = job.fn() or {}
             except TwofoldError as exc:
                 result.error = str(exc)
+                result.error_type = type(exc).__name__
                 result.outputs = self._after_error(job)
             except Exception as exc:  # never let the thread die: log, report, carry on
                 result.error = f"{type(exc).__name__}: {exc}"

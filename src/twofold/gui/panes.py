@@ -1,0 +1,808 @@
+"""The window's panes: data, model building, results and the model ladder.
+
+Each pane receives the :class:`~twofold.gui.session.Session` in its
+constructor, subscribes to its signals and blocks its own widgets' signals
+(:class:`QSignalBlocker`) while it updates them, so a display update never
+echoes back as a new request.
+"""
+
+from __future__ import annotations
+
+from html import escape as esc
+
+from PySide6.QtCore import QSignalBlocker, Qt, Signal
+from PySide6.QtGui import QAction, QFontMetrics
+from PySide6.QtWidgets import (
+    QAbstractItemView, QComboBox, QFormLayout, QFrame, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
+    QListWidget, QListWidgetItem, QMenu, QPushButton, QScrollArea, QSizePolicy, QSplitter, QTableView,
+    QVBoxLayout, QWidget,
+)
+
+from twofold.gui import style
+from twofold.gui.tables import CellsModel, CoefficientModel, ColumnsModel, LadderModel
+from twofold.gui.views import CAUTION, ROLE_LABELS
+
+
+def _heading(text: str, parent: QWidget) -> QLabel:
+    label = QLabel(text, parent)
+    label.setFont(style.scaled_font(parent, 1.2, bold=True))
+    label.setAccessibleName(text)
+    return label
+
+
+def _wrapped(text: str = "", accessible: str = "") -> QLabel:
+    label = QLabel(text)
+    label.setWordWrap(True)
+    label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse
+                                  | Qt.TextInteractionFlag.TextSelectableByKeyboard)
+    if accessible:
+        label.setAccessibleName(accessible)
+    return label
+
+
+def _compact_table(view: QTableView) -> None:
+    """Row heights from the font, fixed: the table never measures every row."""
+    vh = view.verticalHeader()
+    vh.setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
+    vh.setDefaultSectionSize(view.fontMetrics().height() + 8)
+    view.setWordWrap(False)
+    view.setAlternatingRowColors(True)
+    view.setTabKeyNavigation(False)  # Tab leaves the table; arrows move inside it
+
+
+# ---------------------------------------------------------------------------
+class DataPane(QWidget):
+    """The loaded rows and the list of columns with their roles."""
+
+    openRequested = Signal()
+    sampleRequested = Signal()
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.study = None
+        self.setAccessibleName("Data pane")
+        layout = QVBoxLayout(self)
+        layout.addWidget(_heading("Data", self))
+        self.source = _wrapped("No data file is open.", "Data file")
+        layout.addWidget(self.source)
+
+        # First use: say how to start.
+        self.welcome = QFrame()
+        w = QVBoxLayout(self.welcome)
+        w.addWidget(_wrapped(
+            "Open a data file (CSV, TSV or Excel) with one row per patient or episode and one column "
+            "per item, or drop one onto this window. The file is only read, never changed.",
+            "How to start"))
+        row = QHBoxLayout()
+        self.open_button = QPushButton("&Open a data file\u2026")
+        self.open_button.setAccessibleName("Open a data file")
+        self.open_button.clicked.connect(self.openRequested)
+        self.sample_button = QPushButton("Open a &sample study\u2026")
+        self.sample_button.setAccessibleName("Open a sample study")
+        self.sample_button.clicked.connect(self.sampleRequested)
+        row.addWidget(self.open_button)
+        row.addWidget(self.sample_button)
+        row.addStretch(1)
+        w.addLayout(row)
+        w.addStretch(1)
+        layout.addWidget(self.welcome)
+
+        self.notices = style.Banner("information", colour=style.SKY_BLUE, accessible_name="Note about the file")
+        self.notices.hide()
+        layout.addWidget(self.notices)
+
+        split = QSplitter(Qt.Orientation.Vertical)
+        self.cells = CellsModel(self)
+        self.table = QTableView()
+        self.table.setModel(self.cells)
+        self.table.setAccessibleName("Data rows")
+        self.table.setAccessibleDescription("The rows of the loaded file; missing cells read 'missing'.")
+        _compact_table(self.table)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        self.table.setVerticalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
+        self.table.setHorizontalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
+        split.addWidget(self.table)
+
+        box = QGroupBox("Columns and how each is used")
+        box.setAccessibleName("Columns and how each is used")
+        b = QVBoxLayout(box)
+        self.columns_model = ColumnsModel(self)
+        self.columns = QTableView()
+        self.columns.setModel(self.columns_model)
+        self.columns.setAccessibleName("Column list")
+        self.columns.setAccessibleDescription("Each column with its role, distinct values, missing cells "
+                                              "and reference group; the menu (right click or menu key) changes them.")
+        _compact_table(self.columns)
+        self.columns.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.columns.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.columns.horizontalHeader().setStretchLastSection(True)
+        self.columns.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        self.columns.customContextMenuRequested.connect(self._column_menu)
+        self.columns.selectionModel().currentRowChanged.connect(lambda *a: self._show_selected())
+        b.addWidget(self.columns, 1)
+        form = QFormLayout()
+        form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+        self.role_combo = QComboBox()
+        self.role_combo.setAccessibleName("Use the selected column as")
+        self.role_combo.activated.connect(self._role_chosen)
+        role_label = QLabel("&Use the selected column as:")
+        role_label.setBuddy(self.role_combo)
+        form.addRow(role_label, self.role_combo)
+        self.reference_combo = QComboBox()
+        self.reference_combo.setAccessibleName("Reference group of the selected column")
+        self.reference_combo.activated.connect(self._reference_chosen)
+        ref_label = QLabel("&Reference group:")
+        ref_label.setBuddy(self.reference_combo)
+        form.addRow(ref_label, self.reference_combo)
+        b.addLayout(form)
+        self.reason = _wrapped("", "Why the column has this role")
+        b.addWidget(self.reason)
+        split.addWidget(box)
+        split.setStretchFactor(0, 3)
+        split.setStretchFactor(1, 2)
+        self.split = split
+        split.hide()
+        layout.addWidget(split, 1)
+        self._set_form_enabled(False)
+
+        session.studyLoaded.connect(self._on_study)
+        session.columnsChanged.connect(self._on_columns)
+        session.outcomeChanged.connect(self._on_outcome)
+
+    # ---- updates from the session ----------------------------------------
+    def _on_study(self, view) -> None:
+        self.study = view
+        self.welcome.hide()
+        self.split.show()
+        self.source.setText(f"{view.source}: {view.n_rows:,} rows, {len(view.columns)} columns "
+                            f"(read only; the file is never changed)")
+        self.cells.set_study(view)
+        self._fit_column_widths()
+        if view.notices:
+            self.notices.setText(" ".join(view.notices))
+            self.notices.show()
+        else:
+            self.notices.hide()
+        self._on_columns(view)
+        if self.columns_model.rowCount():
+            self.columns.selectRow(0)
+
+    def _fit_column_widths(self) -> None:
+        """Column widths from the header and the first rows only (never every row)."""
+        fm = self.table.fontMetrics()
+        pad = 24
+        shown = min(self.cells.rowCount(), 60)
+        for c in range(self.cells.columnCount()):
+            texts = [self.cells.headerData(c, Qt.Orientation.Horizontal)]
+            texts += [self.cells.data(self.cells.index(r, c)) for r in range(shown)]
+            width = max(fm.horizontalAdvance(str(t)) for t in texts) + pad
+            self.table.setColumnWidth(c, min(width, fm.horizontalAdvance("x") * 40))
+
+    def _on_columns(self, view) -> None:
+        current = self.selected_column()
+        self.study = view
+        self.columns_model.set_columns(view.columns, view.outcome)
+        self.columns.resizeColumnsToContents()
+        if current is not None:
+            for r, c in enumerate(view.columns):
+                if c.name == current:
+                    with QSignalBlocker(self.columns.selectionModel()):
+                        self.columns.selectRow(r)
+        self._show_selected()
+
+    def _on_outcome(self, view) -> None:
+        self.columns_model.set_columns(self.columns_model.columns, view.outcome)
+        self._show_selected()
+
+    # ---- the selected column ---------------------------------------------------
+    def selected_column(self):
+        idx = self.columns.currentIndex()
+        if not idx.isValid() or idx.row() >= len(self.columns_model.columns):
+            return None
+        return self.columns_model.columns[idx.row()].name
+
+    def _column_view(self, name):
+        for c in self.columns_model.columns:
+            if c.name == name:
+                return c
+        return None
+
+    def _set_form_enabled(self, on: bool) -> None:
+        self.role_combo.setEnabled(on)
+        self.reference_combo.setEnabled(on)
+
+    def _show_selected(self) -> None:
+        c = self._column_view(self.selected_column())
+        with QSignalBlocker(self.role_combo), QSignalBlocker(self.reference_combo):
+            self.role_combo.clear()
+            self.reference_combo.clear()
+            if c is None:
+                self._set_form_enabled(False)
+                self.reason.setText("")
+                return
+            for value, label in c.role_choices:
+                self.role_combo.addItem(label, value)
+            self.role_combo.setCurrentIndex(max(0, self.role_combo.findData(c.role)))
+            self.role_combo.setEnabled(c.name != self.columns_model.outcome)
+            if c.is_factor:
+                for raw, label, n in zip(c.levels, c.level_labels, c.counts or [None] * len(c.levels)):
+                    self.reference_combo.addItem(f"{label} ({n:,} rows)" if n is not None else label, raw)
+                self.reference_combo.setCurrentIndex(max(0, c.level_labels.index(c.reference_label)
+                                                         if c.reference_label in c.level_labels else 0))
+            self.reference_combo.setEnabled(c.is_factor)
+            if c.name == self.columns_model.outcome:
+                why = f"'{c.name}' is the outcome; choose another outcome to change its role."
+            elif c.role == c.inferred_role:
+                why = f"'{c.name}' is used as {c.role_label} ({c.reason})."
+            else:
+                suggested = ROLE_LABELS.get(c.inferred_role, c.inferred_role)
+                why = f"'{c.name}' is used as {c.role_label} (your choice; Twofold suggested {suggested})."
+            self.reason.setText(why)
+
+    def _role_chosen(self, i: int) -> None:
+        name = self.selected_column()
+        role = self.role_combo.itemData(i)
+        c = self._column_view(name)
+        if name is None or role is None or c is None or role == c.role:
+            return
+        self.session.set_role(name, role, self.session_predictors())
+
+    def _reference_chosen(self, i: int) -> None:
+        name = self.selected_column()
+        c = self._column_view(name)
+        if name is None or c is None or not c.is_factor:
+            return
+        level = self.reference_combo.itemData(i)
+        if c.level_labels[i] == c.reference_label:
+            return
+        self.session.set_reference(name, level)
+
+    def session_predictors(self) -> tuple:
+        return getattr(self.session, "predictors", ())
+
+    def _column_menu(self, pos) -> None:
+        idx = self.columns.indexAt(pos)
+        if idx.isValid():
+            self.columns.selectRow(idx.row())
+        c = self._column_view(self.selected_column())
+        if c is None or c.name == self.columns_model.outcome:
+            return
+        menu = QMenu(self)
+        for value, label in c.role_choices:
+            act = QAction(f"Use as {label}", menu)
+            act.setCheckable(True)
+            act.setChecked(value == c.role)
+            act.triggered.connect(lambda _=False, v=value: v != c.role and
+                                  self.session.set_role(c.name, v, self.session_predictors()))
+            menu.addAction(act)
+        if c.is_factor:
+            sub = menu.addMenu("Reference group")
+            for raw, label in zip(c.levels, c.level_labels):
+                act = QAction(label, sub)
+                act.setCheckable(True)
+                act.setChecked(label == c.reference_label)
+                act.triggered.connect(lambda _=False, v=raw: self.session.set_reference(c.name, v))
+                sub.addAction(act)
+        menu.exec(self.columns.viewport().mapToGlobal(pos))
+
+
+# ---------------------------------------------------------------------------
+class ModelPane(QWidget):
+    """Choose the outcome and its event value, and tick the predictors."""
+
+    ticked = Signal(tuple)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.study = None
+        self.outcome = None
+        self.outcome_view = None
+        self.last_request: int | None = None
+        self.setAccessibleName("Model-building pane")
+        layout = QVBoxLayout(self)
+        layout.addWidget(_heading("Model", self))
+        layout.addWidget(_wrapped("A logistic model of a yes/no outcome. Every tick or untick refits the model "
+                                  "at once and adds it to the model ladder.", "About this pane"))
+        form = QFormLayout()
+        form.setFieldGrowthPolicy(QFormLayout.FieldGrowthPolicy.AllNonFixedFieldsGrow)
+        self.outcome_combo = QComboBox()
+        self.outcome_combo.setAccessibleName("Outcome column")
+        self.outcome_combo.activated.connect(self._outcome_chosen)
+        label = QLabel("Out&come:")
+        label.setBuddy(self.outcome_combo)
+        form.addRow(label, self.outcome_combo)
+        self.event_combo = QComboBox()
+        self.event_combo.setAccessibleName("Value of the outcome counted as the event")
+        self.event_combo.activated.connect(self._event_chosen)
+        label = QLabel("&Event value:")
+        label.setBuddy(self.event_combo)
+        label.setToolTip("The outcome value whose odds the model describes (for example 'yes' or 1).")
+        form.addRow(label, self.event_combo)
+        layout.addLayout(form)
+        self.outcome_note = _wrapped("", "Outcome note")
+        layout.addWidget(self.outcome_note)
+
+        label = QLabel("&Predictors (tick to add, untick to remove):")
+        layout.addWidget(label)
+        self.list = QListWidget()
+        self.list.setAccessibleName("Candidate predictors")
+        self.list.setAccessibleDescription("Tick a predictor with the space bar to add it to the model.")
+        self.list.itemChanged.connect(self._item_changed)
+        label.setBuddy(self.list)
+        layout.addWidget(self.list, 1)
+        row = QHBoxLayout()
+        self.clear_button = QPushButton("U&ntick all")
+        self.clear_button.setAccessibleName("Untick all predictors")
+        self.clear_button.clicked.connect(self.untick_all)
+        row.addWidget(self.clear_button)
+        row.addStretch(1)
+        layout.addLayout(row)
+        self.counts = _wrapped("", "Rows used and events")
+        layout.addWidget(self.counts)
+        self._set_enabled(False)
+
+        session.studyLoaded.connect(self._on_study)
+        session.columnsChanged.connect(self._on_columns)
+        session.outcomeChanged.connect(self._on_outcome)
+        session.resultsChanged.connect(self._on_results)
+        session.failed.connect(self._on_failed)
+        session.loadStarted.connect(lambda path: self._set_enabled(False))
+
+    # ---- reading the widgets ---------------------------------------------
+    def ticked_predictors(self) -> tuple:
+        out = []
+        for i in range(self.list.count()):
+            item = self.list.item(i)
+            if item.checkState() == Qt.CheckState.Checked:
+                out.append(item.data(Qt.ItemDataRole.UserRole))
+        return tuple(out)
+
+    def set_ticked(self, names) -> int | None:
+        """Tick exactly these predictors (as a user would) and ask for the fit; returns the request id."""
+        names = set(names)
+        with QSignalBlocker(self.list):
+            for i in range(self.list.count()):
+                item = self.list.item(i)
+                want = item.data(Qt.ItemDataRole.UserRole) in names
+                item.setCheckState(Qt.CheckState.Checked if want else Qt.CheckState.Unchecked)
+        return self._request()
+
+    def toggle(self, name: str) -> int | None:
+        """Tick or untick one predictor, as a click would."""
+        for i in range(self.list.count()):
+            item = self.list.item(i)
+            if item.data(Qt.ItemDataRole.UserRole) == name:
+                on = item.checkState() != Qt.CheckState.Checked
+                item.setCheckState(Qt.CheckState.Checked if on else Qt.CheckState.Unchecked)
+                return self.last_request
+        return None
+
+    def untick_all(self) -> None:
+        self.set_ticked(())
+
+    def _item_changed(self, item) -> None:
+        self._request()
+
+    def _request(self) -> int | None:
+        if not self.list.isEnabled():
+            # No outcome yet, or another file is opening: a tick now would be misread; undo it.
+            view = self.session.last_results
+            self._sync_ticks(view.predictors if view is not None else ())
+            self.last_request = None
+            return None
+        names = self.ticked_predictors()
+        self.session.predictors = names
+        self.last_request = self.session.set_predictors(names)
+        self.ticked.emit(names)
+        return self.last_request
+
+    # ---- outcome ---------------------------------------------------------------
+    def choose_outcome(self, name, event=None) -> int:
+        """Choose the outcome (and optionally the event value) as the combo boxes would."""
+        i = self.outcome_combo.findData(name)
+        if i >= 0:
+            with QSignalBlocker(self.outcome_combo):
+                self.outcome_combo.setCurrentIndex(i)
+        guess = event is None
+        return self.session.set_outcome(name, event, guess=guess, predictors=self.ticked_predictors())
+
+    def _outcome_chosen(self, i: int) -> None:
+        name = self.outcome_combo.itemData(i)
+        if name is None:  # the "Choose the outcome" line: keep the outcome in force
+            with QSignalBlocker(self.outcome_combo):
+                self.outcome_combo.setCurrentIndex(max(0, self.outcome_combo.findData(self.outcome)))
+            return
+        if name == self.outcome:
+            return
+        self.session.set_outcome(name, None, guess=True, predictors=self.ticked_predictors())
+
+    def _event_chosen(self, i: int) -> None:
+        level = self.event_combo.itemData(i)
+        if i < 0 or self.outcome is None or self.event_combo.itemText(i).startswith("Choose"):
+            return
+        self.session.set_outcome(self.outcome, level, guess=False, predictors=self.ticked_predictors())
+
+    # ---- updates from the session -----------------------------------------------
+    def _set_enabled(self, on: bool) -> None:
+        self.list.setEnabled(on)
+        self.clear_button.setEnabled(on)
+
+    def _on_study(self, view) -> None:
+        self.study = view
+        self.outcome = None
+        self.outcome_view = None
+        with QSignalBlocker(self.list):
+            self.list.clear()
+        self._on_columns(view, keep=False)
+        self.counts.setText("")
+
+    def _on_columns(self, view, keep: bool = True) -> None:
+        self.study = view
+        with QSignalBlocker(self.outcome_combo):
+            self.outcome_combo.clear()
+            self.outcome_combo.addItem("Choose the outcome\u2026", None)
+            for c in view.columns:
+                kind = "2 values" if c.n_levels == 2 else f"{c.n_levels:,} values"
+                self.outcome_combo.addItem(f"{c.name} ({kind})", c.name)
+            self.outcome_combo.setCurrentIndex(max(0, self.outcome_combo.findData(self.outcome)))
+        ticked = set(self.ticked_predictors()) if keep else set()
+        with QSignalBlocker(self.list):
+            self.list.clear()
+            for name in view.candidates:
+                c = view.column(name)
+                text = name
+                if c is not None:
+                    kind = c.role_label if c.role != "categorical" else f"{c.n_levels} groups"
+                    text = f"{name} \u00b7 {kind}"
+                    if c.n_missing:
+                        text += f" \u00b7 {c.n_missing:,} missing"
+                item = QListWidgetItem(text)
+                item.setData(Qt.ItemDataRole.UserRole, name)
+                item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+                item.setCheckState(Qt.CheckState.Checked if name in ticked else Qt.CheckState.Unchecked)
+                item.setToolTip(f"{text}. Tick to add {name} to the model, untick to remove it.")
+                self.list.addItem(item)
+
+    def _on_outcome(self, view) -> None:
+        self.outcome = view.outcome
+        self.outcome_view = view
+        with QSignalBlocker(self.outcome_combo), QSignalBlocker(self.event_combo):
+            self.outcome_combo.setCurrentIndex(max(0, self.outcome_combo.findData(view.outcome)))
+            self.event_combo.clear()
+            if view.needs_event:
+                self.event_combo.addItem("Choose the event value\u2026", None)
+            for raw, label in zip(view.levels, view.level_labels):
+                self.event_combo.addItem(label, raw)
+            if not view.needs_event and view.outcome is not None:
+                self.event_combo.setCurrentIndex(max(0, list(view.level_labels).index(view.event_label)))
+        ready = view.outcome is not None and not view.needs_event
+        self._set_enabled(ready)
+        if view.needs_event:
+            self.outcome_note.setText(view.message)
+        elif ready:
+            self.outcome_note.setText(f"The model describes the odds that {view.outcome} = {view.event_label}.")
+        else:
+            self.outcome_note.setText("Choose the outcome column: the yes/no result you want to explain.")
+
+    def _ready(self) -> bool:
+        v = self.outcome_view
+        return v is not None and v.outcome is not None and not v.needs_event
+
+    def _on_failed(self, failure) -> None:
+        """A tick that could not be fitted is undone, so the ticks always match the model shown."""
+        if failure.kind == "load":  # the file shown before stays: so do its ticks
+            self._set_enabled(self._ready())
+        if failure.kind == "fit":
+            view = self.session.last_results
+            self._sync_ticks(view.predictors if view is not None else ())
+
+    def _sync_ticks(self, predictors) -> None:
+        with QSignalBlocker(self.list):
+            names = set(predictors)
+            for i in range(self.list.count()):
+                item = self.list.item(i)
+                want = item.data(Qt.ItemDataRole.UserRole) in names
+                state = Qt.CheckState.Checked if want else Qt.CheckState.Unchecked
+                if item.checkState() != state:
+                    item.setCheckState(state)
+        self.session.predictors = tuple(predictors)
+
+    def _on_results(self, view) -> None:
+        if view is None:
+            self.counts.setText("")
+            return
+        self._sync_ticks(view.predictors)
+        self.counts.setText(view.counts_text.replace("  \u00b7  ", "\n"))
+
+
+# ---------------------------------------------------------------------------
+class ResultsPane(QWidget):
+    """The current model: caution, coefficients, warnings beside them, and the model tests."""
+
+    shown = Signal(object)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.view = None
+        self.setAccessibleName("Results pane")
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(0, 0, 0, 0)
+        outer.addWidget(_heading("Results", self))
+        self.caution = style.Banner("information", "Caution: " + CAUTION, colour=style.SKY_BLUE,
+                                    accessible_name="Caution")
+        outer.addWidget(self.caution)
+
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setFrameShape(QFrame.Shape.NoFrame)
+        body = QWidget()
+        layout = QVBoxLayout(body)
+        layout.setContentsMargins(0, 0, 4, 0)
+        self.placeholder = _wrapped("Choose the outcome and tick one or more predictors; the results appear "
+                                    "here at once.", "Results placeholder")
+        layout.addWidget(self.placeholder)
+        self.title = _wrapped("", "Model shown")
+        self.title.setFont(style.scaled_font(self, 1.05, bold=True))
+        layout.addWidget(self.title)
+        self.counts = _wrapped("", "Rows used and events")
+        layout.addWidget(self.counts)
+
+        self.coefficients = CoefficientModel(self)
+        self.table = QTableView()
+        self.table.setModel(self.coefficients)
+        self.table.setAccessibleName("Coefficient table")
+        self.table.setAccessibleDescription("One row per coefficient: odds ratio, 95% confidence interval, "
+                                            "p-value, Wald z, coefficient and standard error.")
+        _compact_table(self.table)
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.verticalHeader().hide()
+        self.table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
+        self.table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.table.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+        self.table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        layout.addWidget(self.table)
+
+        self.notes_box = QWidget()
+        self.notes_layout = QVBoxLayout(self.notes_box)
+        self.notes_layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(self.notes_box)
+
+        self.tests = QFrame()
+        self.tests.setAccessibleName("Tests of the model")
+        t = QVBoxLayout(self.tests)
+        t.setContentsMargins(0, 4, 0, 0)
+        tests_title = QLabel("Tests of the model")
+        tests_title.setFont(style.scaled_font(self, 1.05, bold=True))
+        t.addWidget(tests_title)
+        self.overall = _wrapped("", "Test of the model as a whole")
+        self.previous = _wrapped("", "Test against the model before")
+        t.addWidget(self.overall)
+        t.addWidget(self.previous)
+        self.model_notes_box = QWidget()
+        self.model_notes_layout = QVBoxLayout(self.model_notes_box)
+        self.model_notes_layout.setContentsMargins(0, 0, 0, 0)
+        t.addWidget(self.model_notes_box)
+        layout.addWidget(self.tests)
+        layout.addStretch(1)
+        scroll.setWidget(body)
+        outer.addWidget(scroll, 1)
+        self._show_parts(False)
+        session.resultsChanged.connect(self.show_results)
+
+    def _show_parts(self, on: bool) -> None:
+        for w in (self.title, self.counts, self.table, self.notes_box, self.tests):
+            w.setVisible(on)
+        self.placeholder.setVisible(not on)
+
+    @staticmethod
+    def _clear(layout) -> None:
+        while layout.count():
+            item = layout.takeAt(0)
+            if item.widget() is not None:
+                item.widget().deleteLater()
+
+    def show_results(self, view) -> None:
+        self.view = view
+        if view is None:
+            self.coefficients.set_lines(())
+            self._show_parts(False)
+            self.shown.emit(None)
+            return
+        self._show_parts(True)
+        self.title.setText(view.title)
+        self.counts.setText(view.counts_text)
+        self.coefficients.set_lines(view.lines)
+        self.table.clearSpans()
+        for r, line in enumerate(view.lines):
+            if line.kind == "heading":
+                self.table.setSpan(r, 0, 1, 3)
+        self._size_table()
+
+        self._clear(self.notes_layout)
+        seen = set()
+        for note in view.predictor_notes:
+            key = (note.code, note.message)
+            columns = [n.column for n in view.predictor_notes if (n.code, n.message) == key]
+            if key in seen:
+                continue
+            seen.add(key)
+            who = ", ".join(columns)
+            banner = style.Banner("warning", f"{who}: {note.message}", colour=style.ORANGE,
+                                  accessible_name=f"Warning about {who}")
+            self.notes_layout.addWidget(banner)
+        self.notes_box.setVisible(bool(view.predictor_notes))
+
+        o = view.overall
+        self.overall.setText(f"<b>{esc(o.title)}.</b> {esc(o.text)}<br>{esc(o.reading)}")
+        if view.previous is not None:
+            p = view.previous
+            self.previous.setText(f"<b>{esc(p.title)}.</b> {esc(p.text)}" + (f"<br>{esc(p.reading)}" if p.reading else ""))
+        else:
+            self.previous.setText("<b>Change from the model before.</b> This is the first model of the ladder; "
+                                  "tick or untick a predictor to test the change.")
+        self._clear(self.model_notes_layout)
+        for note in view.model_notes:
+            self.model_notes_layout.addWidget(style.Banner("warning", note.message, colour=style.ORANGE,
+                                                           accessible_name="Warning about the model"))
+        self.model_notes_box.setVisible(bool(view.model_notes))
+        self.shown.emit(view)
+
+    def _size_table(self) -> None:
+        self.table.resizeColumnsToContents()
+        header = self.table.horizontalHeader()
+        fm = self.table.fontMetrics()
+        labels = [("    " + x.label) if x.kind == "term" else x.label for x in self.coefficients.lines
+                  if x.kind != "heading"]
+        if labels:
+            icon = fm.height() + 8
+            width = max(fm.horizontalAdvance(s) for s in labels) + icon + 16
+            # A heading spans the first three columns: widen the first so it reads in full.
+            bold = QFontMetrics(style.scaled_font(self.table, 1.0, bold=True))
+            spanned = self.table.columnWidth(1) + self.table.columnWidth(2)
+            for x in self.coefficients.lines:
+                if x.kind == "heading":
+                    longest = max(bold.horizontalAdvance(part) for part in x.label.split("\n"))
+                    width = max(width, longest + icon + 24 - spanned)
+            self.table.setColumnWidth(0, width)
+        vh = self.table.verticalHeader()
+        for r, x in enumerate(self.coefficients.lines):
+            lines = x.label.count("\n") + 1
+            vh.resizeSection(r, vh.defaultSectionSize() + (lines - 1) * fm.lineSpacing())
+        height = header.height() + vh.length() + 2 * self.table.frameWidth()
+        if self.table.horizontalScrollBar().isVisible() or header.length() > self.table.viewport().width():
+            height += self.table.horizontalScrollBar().sizeHint().height()
+        self.table.setFixedHeight(height)
+
+
+# ---------------------------------------------------------------------------
+class LadderPane(QWidget):
+    """Every model tried: return to any of them and compare any two."""
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.setAccessibleName("Model ladder pane")
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 0, 0, 0)
+        layout.addWidget(_heading("Model ladder", self))
+        layout.addWidget(_wrapped("Each change of predictors adds a model. All models are fitted on the same "
+                                  "rows, so any two nested models can be compared fairly.", "About the ladder"))
+        self.notices = style.Banner("information", colour=style.SKY_BLUE, accessible_name="Note about the ladder")
+        self.notices.hide()
+        layout.addWidget(self.notices)
+        self.model = LadderModel(self)
+        self.table = QTableView()
+        self.table.setModel(self.model)
+        self.table.setAccessibleName("Model ladder")
+        self.table.setAccessibleDescription("One row per model; press Enter to show the selected model.")
+        _compact_table(self.table)
+        self.table.verticalHeader().hide()
+        self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.table.setSelectionMode(QAbstractItemView.SelectionMode.ExtendedSelection)
+        self.table.activated.connect(lambda idx: self.show_model(idx.row()))
+        self.table.selectionModel().selectionChanged.connect(self._selection_changed)
+        layout.addWidget(self.table, 1)
+
+        row = QHBoxLayout()
+        self.show_button = QPushButton("Show the selected mo&del")
+        self.show_button.setAccessibleName("Show the selected model")
+        self.show_button.clicked.connect(self._show_selected)
+        row.addWidget(self.show_button)
+        row.addStretch(1)
+        layout.addLayout(row)
+        row = QHBoxLayout()
+        label = QLabel("Co&mpare model")
+        self.first = QComboBox()
+        self.first.setAccessibleName("First model to compare")
+        label.setBuddy(self.first)
+        self.second = QComboBox()
+        self.second.setAccessibleName("Second model to compare")
+        self.compare_button = QPushButton("Compare")
+        self.compare_button.setAccessibleName("Compare the two models")
+        self.compare_button.clicked.connect(self.compare)
+        row.addWidget(label)
+        row.addWidget(self.first)
+        row.addWidget(QLabel("with model"))
+        row.addWidget(self.second)
+        row.addWidget(self.compare_button)
+        row.addStretch(1)
+        layout.addLayout(row)
+        self.comparison = _wrapped("", "Comparison of two models")
+        layout.addWidget(self.comparison)
+        self._enable()
+        session.resultsChanged.connect(self._on_results)
+        session.comparisonReady.connect(self._on_comparison)
+
+    def _enable(self) -> None:
+        n = self.model.rowCount()
+        self.show_button.setEnabled(n > 0)
+        for w in (self.first, self.second, self.compare_button):
+            w.setEnabled(n > 1)
+
+    def _on_results(self, view) -> None:
+        with QSignalBlocker(self.table.selectionModel()):
+            if view is None:
+                self.model.set_rows(())
+                self.notices.hide()
+            else:
+                self.model.set_rows(view.ladder.rows)
+                header = self.table.horizontalHeader()
+                header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+                # The predictor lists share what is left; the numbers always show in full.
+                header.setSectionResizeMode(1, QHeaderView.ResizeMode.Stretch)
+                header.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+                if view.ladder.current is not None:
+                    self.table.selectRow(view.ladder.current)
+                if view.ladder.notices:
+                    self.notices.setText(" ".join(view.ladder.notices))
+                    self.notices.show()
+                else:
+                    self.notices.hide()
+        n = self.model.rowCount()
+        with QSignalBlocker(self.first), QSignalBlocker(self.second):
+            a, b = self.first.currentIndex(), self.second.currentIndex()
+            self.first.clear()
+            self.second.clear()
+            for k in range(n):
+                self.first.addItem(str(k + 1), k)
+                self.second.addItem(str(k + 1), k)
+            if n > 1:
+                self.first.setCurrentIndex(a if 0 <= a < n and a != n - 1 else n - 2)
+                self.second.setCurrentIndex(b if 0 <= b < n and b != self.first.currentIndex() else n - 1)
+        if view is None:
+            self.comparison.setText("")
+        self._enable()
+
+    def _selection_changed(self, *args) -> None:
+        rows = sorted({i.row() for i in self.table.selectionModel().selectedRows()})
+        if len(rows) == 2:
+            with QSignalBlocker(self.first), QSignalBlocker(self.second):
+                self.first.setCurrentIndex(rows[0])
+                self.second.setCurrentIndex(rows[1])
+
+    def _show_selected(self) -> None:
+        idx = self.table.currentIndex()
+        if idx.isValid():
+            self.show_model(idx.row())
+
+    def show_model(self, row: int) -> int:
+        return self.session.select_rung(row)
+
+    def compare(self) -> int | None:
+        i, j = self.first.currentData(), self.second.currentData()
+        if i is None or j is None:
+            return None
+        return self.session.compare_rungs(i, j)
+
+    def _on_comparison(self, view) -> None:
+        if view is None:
+            self.comparison.setText("")
+            return
+        parts = [f"<b>Model {view.first + 1} compared with model {view.second + 1}.</b> {esc(view.text)}"]
+        if view.reading:
+            parts.append(esc(view.reading))
+        parts.append(esc(view.note))
+        self.comparison.setText("<br>".join(parts))

@@ -1,0 +1,37 @@
+"""Helpers for the window tests: where the sample studies are, and how to drive the window."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[2]
+SAMPLES = REPO / "sample_studies"
+READMISSION = SAMPLES / "readmission_synthetic.csv"
+WOUND = SAMPLES / "wound_infection_synthetic.csv"
+
+WAIT_MS = 20_000
+
+
+def idle(window) -> bool:
+    return not window.session.busy
+
+
+def load(qtbot, window, path):
+    """Open a file through the window and wait until it is shown."""
+    window.open_path(path)
+    qtbot.waitUntil(lambda: idle(window) and window.data_pane.study is not None
+                    and window.data_pane.study.path == str(path), timeout=WAIT_MS)
+    return window.data_pane.study
+
+
+def choose_outcome(qtbot, window, name, event=None):
+    window.model_pane.choose_outcome(name, event)
+    qtbot.waitUntil(lambda: idle(window), timeout=WAIT_MS)
+
+
+def tick(qtbot, window, names):
+    """Tick exactly these predictors and wait for their results."""
+    window.model_pane.set_ticked(names)
+    qtbot.waitUntil(lambda: idle(window) and window.results_pane.view is not None
+                    and set(window.results_pane.view.predictors) == set(names), timeout=WAIT_MS)
+    return window.results_pane.view
