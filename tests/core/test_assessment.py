@@ -145,3 +145,25 @@ def test_ladder_pairs_auc_by_delong(readmission):
     a1 = roc_auc_score(ladder.rungs[1].fit.design.y, ladder.rungs[1].fit.fitted)
     assert c.auc_test.difference == pytest.approx(a0 - a1, rel=1e-9)
     assert c.auc_test.p_value < 0.05
+
+
+def test_ladder_tests_each_rung_against_the_one_it_came_from(readmission):
+    # After returning to rung 1 and adding from there, the new rung's test is
+    # against rung 1, also after a refit on new common rows; a failed fit
+    # leaves the ladder as it was.
+    from twofold.core.errors import TwofoldError
+
+    ladder = Ladder(readmission)
+    ladder.add(["age"])
+    ladder.add(["age", "sex", "prior_admissions"])
+    ladder.select(0)
+    r = ladder.add(["age", "followup_call"])
+    assert r.previous == 0 and r.added == ("followup_call",)
+    rows_before = ladder.rows.copy()
+    with pytest.raises(TwofoldError):
+        ladder.add(["age", "admission_id"])
+    assert len(ladder) == 3 and np.array_equal(ladder.rows, rows_before)
+    ladder.add(["age", "followup_call", "lives_alone"])  # fewer common rows: every rung refitted
+    t = ladder.rungs[2].against_previous
+    assert t.g == pytest.approx(2 * (ladder.rungs[2].fit.llf - ladder.rungs[0].fit.llf), rel=1e-9)
+    assert ladder.nested(1, 2) is None

@@ -30,7 +30,9 @@ class Rung:
     added, removed : tuple of str
         What changed from the rung before.
     against_previous : LikelihoodRatioTest or None
-        The nested test against the rung before, when one is nested in the other.
+        The nested test against the rung it was built from, when one is nested in the other.
+    previous : int or None
+        The index of the rung it was built from (the current rung when it was added).
     """
 
     predictors: tuple
@@ -38,6 +40,7 @@ class Rung:
     added: tuple = ()
     removed: tuple = ()
     against_previous: LikelihoodRatioTest | None = None
+    previous: int | None = None
 
     @property
     def n_params(self) -> int:
@@ -132,9 +135,14 @@ class Ladder:
         if len(rows) == 0:
             raise ModelError("No rows are complete for every predictor tried in this ladder; "
                              "untick the predictor with many missing values or start a new ladder.")
-        self.notices = []
-        if self.rows is not None and not np.array_equal(rows, self.rows):
-            self.notices.append(Notice(
+        notices = []
+        previous = self.rungs[self.current] if self.current is not None else None
+        changed = self.rows is not None and not np.array_equal(rows, self.rows)
+        # Fit the new model first: if it fails, the ladder is left exactly as it was.
+        start = previous.fit if previous is not None and not changed else None
+        fit = self.study.fit(list(predictors), rows=rows, start=start)
+        if changed:
+            notices.append(Notice(
                 "rows_dropped",
                 f"The rows compared changed from {len(self.rows):,} to {len(rows):,} because of missing values "
                 "in a newly used predictor; every model in the ladder was refitted on the new common rows "
@@ -142,10 +150,8 @@ class Ladder:
             ))
             self._refit_all(rows)
         self.rows = rows
-        previous = self.rungs[self.current] if self.current is not None else None
-        start = previous.fit if previous is not None else None
-        fit = self.study.fit(list(predictors), rows=rows, start=start)
-        rung = Rung(predictors, fit)
+        self.notices = notices
+        rung = Rung(predictors, fit, previous=self.current)
         if previous is not None:
             rung.added = tuple(p for p in predictors if p not in previous.predictors)
             rung.removed = tuple(p for p in previous.predictors if p not in predictors)
@@ -156,12 +162,16 @@ class Ladder:
         return rung
 
     def _refit_all(self, rows: np.ndarray) -> None:
-        before = None
+        fits = [self.study.fit(list(r.predictors), rows=rows, start=r.fit) for r in self.rungs]
+        for rung, fit in zip(self.rungs, fits):
+            rung.fit = fit
         for rung in self.rungs:
-            rung.fit = self.study.fit(list(rung.predictors), rows=rows, start=rung.fit)
-            if before is not None:
-                rung.against_previous = self._test(before, rung)
-            before = rung
+            if rung.previous is not None:
+                rung.against_previous = self._test(self.rungs[rung.previous], rung)
+
+    def nested(self, i: int, j: int) -> LikelihoodRatioTest | None:
+        """The likelihood-ratio test between rungs i and j, or None when neither is nested in the other."""
+        return self._test(self.rungs[i], self.rungs[j])
 
     def refit(self) -> None:
         """Refit every rung (after a change of role or reference level)."""

@@ -283,7 +283,7 @@ class Study:
             reason = "; ".join(parts) if parts else "outside the rows compared"
             fit.notices.append(Notice(
                 "rows_dropped",
-                f"{lost} of {self.n_rows} rows were left out ({reason}); "
+                f"{lost:,} of {self.n_rows:,} rows were left out ({reason}); "
                 "results describe the complete rows only.",
                 subjects=tuple(n for n, c in account.missing_by_column.items() if c),
             ))

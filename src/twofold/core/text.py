@@ -33,6 +33,8 @@ def fmt_or(x) -> str:
     """An odds ratio with sensible precision (three significant figures)."""
     if x is None:
         return "n/a"
+    if isinstance(x, float) and math.isinf(x):
+        return "infinite"
     if x == 0:
         return "0"
     if x >= 1000 or x < 0.001:
