@@ -11,9 +11,9 @@ from __future__ import annotations
 from html import escape as esc
 
 from PySide6.QtCore import QSignalBlocker, Qt, Signal
-from PySide6.QtGui import QAction, QFontMetrics
+from PySide6.QtGui import QAction, QFontMetrics, QPixmap
 from PySide6.QtWidgets import (
-    QAbstractItemView, QComboBox, QFormLayout, QFrame, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
+    QAbstractItemView, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
     QListWidget, QListWidgetItem, QMenu, QPushButton, QScrollArea, QSizePolicy, QSplitter, QTableView,
     QVBoxLayout, QWidget,
 )
@@ -586,6 +586,8 @@ class ResultsPane(QWidget):
         self.model_notes_layout.setContentsMargins(0, 0, 0, 0)
         t.addWidget(self.model_notes_box)
         layout.addWidget(self.tests)
+        self.assessment_box = AssessmentSection(session, self)
+        layout.addWidget(self.assessment_box)
         layout.addStretch(1)
         scroll.setWidget(body)
         outer.addWidget(scroll, 1)
@@ -593,7 +595,7 @@ class ResultsPane(QWidget):
         session.resultsChanged.connect(self.show_results)
 
     def _show_parts(self, on: bool) -> None:
-        for w in (self.title, self.counts, self.table, self.notes_box, self.tests):
+        for w in (self.title, self.counts, self.table, self.notes_box, self.tests, self.assessment_box):
             w.setVisible(on)
         self.placeholder.setVisible(not on)
 
@@ -648,6 +650,7 @@ class ResultsPane(QWidget):
             self.model_notes_layout.addWidget(style.Banner("warning", note.message, colour=style.ORANGE,
                                                            accessible_name="Warning about the model"))
         self.model_notes_box.setVisible(bool(view.model_notes))
+        self.assessment_box.results_shown(view)
         self.shown.emit(view)
 
     def _size_table(self) -> None:
@@ -675,6 +678,151 @@ class ResultsPane(QWidget):
         if self.table.horizontalScrollBar().isVisible() or header.length() > self.table.viewport().width():
             height += self.table.horizontalScrollBar().sizeHint().height()
         self.table.setFixedHeight(height)
+
+
+# ---------------------------------------------------------------------------
+class AssessmentSection(QFrame):
+    """How good the model is: discrimination, calibration, fit, tests, influence and their figures.
+
+    The numbers and the figures (PNG bytes) are prepared on the worker
+    thread; here they are only set on labels.
+    """
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.view = None
+        self.setAccessibleName("How good is the model?")
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(0, 8, 0, 0)
+        self.heading = QLabel("How good is the model?")
+        self.heading.setFont(style.scaled_font(self, 1.05, bold=True))
+        layout.addWidget(self.heading)
+        self.status = _wrapped("Working out how good the model is\u2026", "Assessment status")
+        layout.addWidget(self.status)
+        self.body = QWidget()
+        b = QVBoxLayout(self.body)
+        b.setContentsMargins(0, 0, 0, 0)
+        self.auc = _wrapped("", "Area under the ROC curve")
+        self.brier = _wrapped("", "Brier score")
+        self.calibration = _wrapped("", "Calibration slope and calibration-in-the-large")
+        self.hosmer = _wrapped("", "Hosmer-Lemeshow test")
+        self.pseudo = _wrapped("", "Pseudo-R-squared")
+        self.drop_one = _wrapped("", "Test of dropping each predictor")
+        self.vif = _wrapped("", "Variance inflation")
+        self.sample = _wrapped("", "Sample size")
+        self.influential = _wrapped("", "Most influential records")
+        for w in (self.auc, self.brier, self.calibration, self.hosmer, self.pseudo, self.drop_one, self.vif,
+                  self.sample, self.influential):
+            w.setTextFormat(Qt.TextFormat.RichText)
+            b.addWidget(w)
+
+        row = QHBoxLayout()
+        self.threshold = QDoubleSpinBox()
+        self.threshold.setRange(0.01, 0.99)
+        self.threshold.setSingleStep(0.01)
+        self.threshold.setDecimals(2)
+        self.threshold.setValue(getattr(session, "threshold", 0.5))
+        self.threshold.setAccessibleName("Risk threshold for the classification table")
+        self.threshold.setToolTip("Records with a predicted risk at or above this are counted as positive.")
+        self.threshold.valueChanged.connect(self._threshold_changed)
+        label = QLabel("Risk &threshold:")
+        label.setBuddy(self.threshold)
+        row.addWidget(label)
+        row.addWidget(self.threshold)
+        row.addStretch(1)
+        b.addLayout(row)
+        self.classification = _wrapped("", "Classification table")
+        b.addWidget(self.classification)
+
+        self.plots = {}
+        plot_grid = QGridLayout()
+        for k, (key, name) in enumerate((("roc", "ROC curve"), ("calibration", "Calibration plot"),
+                                         ("influence", "Influence plot"))):
+            lab = QLabel()
+            lab.setAccessibleName(name)
+            lab.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
+            self.plots[key] = lab
+            plot_grid.addWidget(lab, k // 2, k % 2)
+        plot_grid.setColumnStretch(2, 1)
+        b.addLayout(plot_grid)
+        self.plot_note = _wrapped("", "Note about the calibration plot")
+        b.addWidget(self.plot_note)
+        self.notes = _wrapped("", "Notes about the assessment")
+        b.addWidget(self.notes)
+        layout.addWidget(self.body)
+        self.body.hide()
+        session.assessmentChanged.connect(self.show_assessment)
+
+    def results_shown(self, results) -> None:
+        """New results are on screen: their assessment follows."""
+        if self.view is None or results is None or self.view.rung != results.rung:
+            self.status.setText("Working out how good the model is\u2026")
+            self.status.show()
+
+    def _threshold_changed(self, value: float) -> None:
+        self.session.set_threshold(value)
+
+    @staticmethod
+    def _note(text: str) -> str:
+        return f"<br><i>{esc(text)}</i>"
+
+    def show_assessment(self, view) -> None:
+        self.view = view
+        if view is None:
+            self.body.hide()
+            self.status.setText("")
+            self.status.hide()
+            for lab in self.plots.values():
+                lab.clear()
+            return
+        self.status.hide()
+        self.body.show()
+        self.heading.setText(view.title)
+        self.auc.setText(f"<b>Telling events from non-events.</b> {esc(view.auc_text)}<br>{esc(view.auc_reading)}")
+        self.brier.setText(f"<b>Accuracy of the predicted risks.</b> {esc(view.brier_text)}")
+        self.calibration.setText(f"<b>Calibration.</b> {esc(view.calibration_text)}" + self._note(view.calibration_note))
+        self.hosmer.setText(f"{esc(view.hl_text)}" + self._note(view.hl_note))
+        self.pseudo.setText(esc(view.pseudo_r2_text))
+        if view.drop_one:
+            rows = "".join(
+                f"<tr><td>{esc(c)}</td><td>{esc(lr)}</td><td>{esc(w)}</td>"
+                f"<td>{'&#9888; prefer the likelihood-ratio test here' if flag else ''}</td></tr>"
+                for c, lr, w, flag in view.drop_one)
+            self.drop_one.setText(
+                "<b>Dropping each predictor in turn</b> (likelihood-ratio test on the same rows, beside the Wald "
+                "test):<table cellspacing='0' cellpadding='3'><tr><th align='left'>predictor</th>"
+                "<th align='left'>likelihood-ratio test</th><th align='left'>Wald test</th><th></th></tr>"
+                f"{rows}</table>")
+        else:
+            self.drop_one.setText("")
+        self.drop_one.setVisible(bool(view.drop_one))
+        if view.vif:
+            parts = [f"{esc(c)} {esc(t)}" + (" &#9888; high" if flagged else "") for c, t, flagged in view.vif]
+            self.vif.setText(f"<b>Variance inflation:</b> {'; '.join(parts)}." + self._note(view.vif_note))
+        self.vif.setVisible(bool(view.vif))
+        mark = "&#9888; " if view.sample_size_short else ""
+        self.sample.setText(mark + esc(view.sample_size_text))
+        if view.influential:
+            items = ", ".join(f"row {r:,} ({esc(d)})" for r, d, _ in view.influential)
+            self.influential.setText("<b>Most influential records</b> (row of the data file, with Cook's "
+                                     f"distance): {items}.")
+        self.influential.setVisible(bool(view.influential))
+        if view.threshold is not None and abs(view.threshold - self.threshold.value()) > 1e-9:
+            with QSignalBlocker(self.threshold):
+                self.threshold.setValue(view.threshold)
+        self.classification.setText(esc(view.classification_text) + "<br><i>" + esc(view.threshold_note) + "</i>")
+        for key, lab in self.plots.items():
+            data = view.figures.get(key)
+            pm = QPixmap()
+            if data:
+                pm.loadFromData(data, "PNG")
+            lab.setPixmap(pm)
+            lab.setVisible(not pm.isNull())
+        self.plot_note.setText(view.calibration_plot_note)
+        self.plot_note.setVisible(bool(view.calibration_plot_note))
+        self.notes.setText(" ".join(view.notes))
+        self.notes.setVisible(bool(view.notes))
 
 
 # ---------------------------------------------------------------------------

@@ -13,7 +13,7 @@ import math
 from twofold.core.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
 from twofold.gui.views import (
-    ROLE_LABELS, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
+    ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
     OutcomeView, ResultsView, StudyView, TestView,
 )
 
@@ -309,3 +309,102 @@ def comparison_view(ladder, i: int, j: int) -> ComparisonView:
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return ComparisonView(i, j, True, text, reading, c.note, t.g, t.df, t.p_value,
                           c.aic_difference, c.bic_difference)
+
+
+# ---- assessment -------------------------------------------------------------
+
+#: Shown in and beside the calibration plot when the smoothed curve is unsteady.
+SMOOTH_UNRELIABLE_NOTE = (
+    "Fewer than 200 records with the event or without it: the smoothed curve is unsteady, "
+    "so read the risk groups rather than the curve."
+)
+
+
+def _pct(x) -> str:
+    return "not available" if x is None or not math.isfinite(x) else f"{100 * x:.1f}%"
+
+
+def assessment_view(study, ladder, result, figures: dict) -> AssessmentView:
+    """The assessment of the model shown, worded (``result`` is a core ``Assessment``)."""
+    from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
+    from twofold.core.influence import VIF_THRESHOLD
+
+    index = ladder.current
+    fit = ladder.rungs[index].fit
+    a = result.auc
+    values = {"auc": a.auc, "auc_ci_low": a.ci_low, "auc_ci_high": a.ci_high, "brier": result.brier,
+              "scaled_brier": result.scaled_brier, "calibration_slope": result.calibration.slope,
+              "calibration_intercept": result.calibration.intercept,
+              "mcfadden_r2": result.pseudo_r2.mcfadden, "cox_snell_r2": result.pseudo_r2.cox_snell,
+              "nagelkerke_r2": result.pseudo_r2.nagelkerke, "tjur_r2": result.pseudo_r2.tjur}
+    auc_text = (f"Area under the ROC curve (c statistic): {fmt_num(a.auc, 3)}, "
+                f"95% confidence interval {fmt_num(a.ci_low, 3)} to {fmt_num(a.ci_high, 3)}.")
+    auc_reading = ("Of a random pair of records, one with the event and one without, the model gives the one "
+                   f"with the event the higher risk in {_pct(a.auc)} of pairs (50% is no better than a coin toss)."
+                   if math.isfinite(a.auc) else "")
+    brier_text = (f"Brier score (mean squared gap between predicted risk and outcome): {fmt_num(result.brier, 4)}; "
+                  f"scaled Brier score (share of the constant-risk model's Brier score removed): "
+                  f"{fmt_num(result.scaled_brier, 3)}.")
+    c = result.calibration
+    calibration_text = (f"Calibration slope: {fmt_num(c.slope, 3)}; calibration-in-the-large "
+                        f"(intercept with the slope fixed at 1): {fmt_num(round(c.intercept, 3) + 0.0, 3)}.")
+    hl = result.hosmer_lemeshow
+    if hl is None:
+        hl_text = "Hosmer-Lemeshow test: not available for these data (too few distinct risk groups)."
+    else:
+        values.update(hl_statistic=hl.statistic, hl_df=int(hl.df), hl_p_value=hl.p_value)
+        hl_text = (f"Hosmer-Lemeshow test over {hl.groups_used} risk groups: chi-square {fmt_num(hl.statistic, 2)} "
+                   f"on {_degrees(int(hl.df))}, p-value {fmt_p(hl.p_value)}.")
+    r = result.pseudo_r2
+    pseudo = (f"Pseudo-R-squared: McFadden {fmt_num(r.mcfadden, 3)}, Cox-Snell {fmt_num(r.cox_snell, 3)}, "
+              f"Nagelkerke {fmt_num(r.nagelkerke, 3)}, Tjur {fmt_num(r.tjur, 3)} (each on its own scale; "
+              "none is the share of variation explained).")
+    drop = tuple(
+        (t.column, f"G = {fmt_num(t.g, 2)} on {_degrees(int(t.df))}, p-value {fmt_p(t.p_value)}",
+         f"Wald chi-square {fmt_num(t.wald, 2)}, p-value {fmt_p(t.wald_p_value)}", bool(t.prefer_lr))
+        for t in result.drop_one)
+    vif = ()
+    if result.vif is not None:
+        vif = tuple((name, fmt_num(rec.gvif_adjusted ** 2, 2), bool(rec.flagged))
+                    for name, rec in zip(result.vif_names, result.vif.records))
+    vif_note = (f"Variance inflation above {VIF_THRESHOLD:g} (common practice) means the predictor is largely "
+                "predictable from the others, so its odds ratio is unsteady.")
+    s = result.sample_size
+    short = False
+    if s is None:
+        sample = "Minimum sample size (Riley et al. 2020): not computed for this model."
+    else:
+        short = fit.n_used < s.n_minimum
+        values.update(n_minimum=int(s.n_minimum))
+        sample = (f"Minimum sample size for {s.parameters} coefficient{'s' if s.parameters != 1 else ''} "
+                  f"(Riley et al. 2020): {s.n_minimum:,} rows, about {fmt_num(s.expected_events, 0)} with the "
+                  f"event; rows used: {fit.n_used:,}"
+                  + (" — fewer than needed, so expect the model to be over-fitted." if short else
+                     " — enough."))
+    influential = tuple((d["row"], fmt_num(d["cooks_distance"], 4), fmt_num(d["leverage"], 4))
+                        for d in result.influential())
+    values["influential_rows"] = tuple(d["row"] for d in result.influential())
+    table = result.classification
+    classification = ""
+    threshold = None
+    if table is not None:
+        threshold = float(table.threshold)
+        values.update(sensitivity=table.sensitivity, specificity=table.specificity,
+                      ppv=table.positive_predictive_value, npv=table.negative_predictive_value)
+        classification = (
+            f"Calling every record with a predicted risk of at least {threshold:.2f} positive: "
+            f"sensitivity (events caught) {_pct(table.sensitivity)}, specificity (non-events cleared) "
+            f"{_pct(table.specificity)}, positive predictive value {_pct(table.positive_predictive_value)}, "
+            f"negative predictive value {_pct(table.negative_predictive_value)} "
+            f"({table.true_positives:,} true and {table.false_positives:,} false alarms; "
+            f"{table.false_negatives:,} events missed, {table.true_negatives:,} correctly cleared).")
+    unreliable = result.smooth is not None and bool(result.smooth.unreliable)
+    return AssessmentView(
+        rung=index, title=f"How good is model {index + 1}?", auc_text=auc_text, auc_reading=auc_reading,
+        brier_text=brier_text, calibration_text=calibration_text, calibration_note=APPARENT_CALIBRATION_NOTE,
+        hl_text=hl_text, hl_note=HOSMER_LEMESHOW_NOTE, pseudo_r2_text=pseudo, drop_one=drop, vif=vif,
+        vif_note=vif_note, sample_size_text=sample, sample_size_short=short, influential=influential,
+        classification_text=classification, threshold=threshold, threshold_note=THRESHOLD_NOTE,
+        calibration_plot_note=SMOOTH_UNRELIABLE_NOTE if unreliable else "",
+        notes=tuple(n.message for n in result.notices), values=values, figures=dict(figures),
+    )

@@ -22,7 +22,10 @@ from twofold.gui.views import Failure
 from twofold.gui.worker import CoreWorker, Job
 
 #: The displays a job can update; each has its own "newest request" mark.
-FACETS = ("study", "columns", "outcome", "results", "comparison")
+FACETS = ("study", "columns", "outcome", "results", "comparison", "assessment")
+
+#: Risk threshold of the classification table until the user picks another.
+DEFAULT_THRESHOLD = 0.5
 
 
 class Session(QObject):
@@ -33,6 +36,7 @@ class Session(QObject):
     outcomeChanged = Signal(object)   # OutcomeView
     resultsChanged = Signal(object)   # ResultsView, or None when there is no model
     comparisonReady = Signal(object)  # ComparisonView
+    assessmentChanged = Signal(object)  # AssessmentView, or None when there is no model
     failed = Signal(object)           # Failure
     busyChanged = Signal(bool)
     coreReady = Signal()
@@ -51,6 +55,11 @@ class Session(QObject):
         self.core_ready = False
         self.last_results = None
         self.last_study = None
+        self.last_assessment = None
+        #: Request id of the assessment shown last (tests and the snapshot wait on it).
+        self.last_assessment_id = 0
+        #: Risk threshold of the classification table (GUI side; passed to each job).
+        self.threshold = DEFAULT_THRESHOLD
         #: The predictors last asked for (GUI side), used when a role change refits.
         self.predictors: tuple = ()
         # Worker-side state: read and written on the worker thread only.
@@ -59,6 +68,8 @@ class Session(QObject):
         self._parents: dict[int, int] = {}
         self._dirty: set[str] = set()
         self._awaiting_event: str | None = None
+        # The last assessment and its figures, keyed by the fit they describe.
+        self._assessed = None
         # Which file opening is still wanted; an older one stops at its next progress report.
         self._load_generation = 0
 
@@ -124,14 +135,28 @@ class Session(QObject):
         return self._submit("compare", lambda: self._job_compare(i, j), facets=("comparison",),
                             coalesce="compare")
 
+    def set_threshold(self, threshold: float) -> int:
+        """Use this risk threshold for the classification table of the model shown; returns the id."""
+        self.threshold = float(threshold)
+        t = self.threshold
+        return self._submit("assess", lambda: self._job_assess(None, t), facets=("assessment",),
+                            coalesce="assess")
+
     def _submit(self, kind, fn, facets, coalesce=None, clears_queue=False, on_error=None) -> int:
         self._next_id += 1
         job_id = self._next_id
+        then = None
+        if "results" in facets:
+            # The assessment follows the results as a second message with the same id.
+            facets = tuple(facets) + ("assessment",)
+            t = self.threshold
+            then = lambda: self._job_assess(job_id, t)  # noqa: E731
         for f in facets:
             self._floor[f] = job_id
         self._floor["error:" + kind] = job_id
         self._pending.add(job_id)
-        for dropped in self._worker.submit(Job(job_id, kind, fn, coalesce, clears_queue, on_error)):
+        job = Job(job_id, kind, fn, coalesce, clears_queue, on_error, then=then, then_kind="assess")
+        for dropped in self._worker.submit(job):
             self._pending.discard(dropped)
         self._set_busy(bool(self._pending))
         return job_id
@@ -147,17 +172,23 @@ class Session(QObject):
         return job_id >= self._floor[facet]
 
     def _on_done(self, result) -> None:
+        if result.followup:
+            self._on_assessed(result)
+            return
         self._pending.discard(result.id)
         if result.kind == "warmup":
             self.core_ready = True
             self.coreReady.emit()
         signals = {"study": self.studyLoaded, "columns": self.columnsChanged, "outcome": self.outcomeChanged,
-                   "results": self.resultsChanged, "comparison": self.comparisonReady}
+                   "results": self.resultsChanged, "comparison": self.comparisonReady,
+                   "assessment": self.assessmentChanged}
         for facet in FACETS:  # fixed order: the study before its columns, outcome and results
             if facet in result.outputs and self.is_current(facet, result.id):
                 view = result.outputs[facet]
                 if facet == "results":
                     self.last_results = view
+                if facet == "assessment":
+                    self.last_assessment, self.last_assessment_id = view, result.id
                 if facet in ("study", "columns"):
                     self.last_study = view
                 signals[facet].emit(view)
@@ -166,6 +197,17 @@ class Session(QObject):
                                      result.error_type))
         self._set_busy(bool(self._pending))
         self.requestFinished.emit(result.id)
+
+    def _on_assessed(self, result) -> None:
+        """The assessment that follows a fit: shown only if no newer request has been made since."""
+        current = self.is_current("assessment", result.id)
+        if current and "assessment" in result.outputs:
+            self.last_assessment = result.outputs["assessment"]
+            self.last_assessment_id = result.id
+            self.assessmentChanged.emit(self.last_assessment)
+        if result.error is not None and (result.unexpected or current):
+            self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path,
+                                     result.error_type))
 
     # ---- jobs (worker thread) -------------------------------------------------
     def _job_warmup(self):
@@ -345,3 +387,35 @@ class Session(QObject):
         if i == j:
             raise ModelError(f"Model {i + 1} was chosen twice; choose two different models to compare.")
         return {"comparison": present.comparison_view(self._ladder, i, j)}
+
+    def _job_assess(self, job_id, threshold):
+        """How good the model shown is, with its figures (worker thread; after the results were sent).
+
+        ``job_id`` is the request whose results this follows; when a newer
+        request has been made meanwhile it will send its own assessment, so
+        this one returns None at once instead of holding up the queue.
+        """
+        import dataclasses
+
+        if job_id is not None and self._floor["assessment"] > job_id:
+            return None
+        ladder = self._ladder
+        if self._study is None or ladder is None or ladder.current is None or not ladder.rungs:
+            self._assessed = None
+            return {"assessment": None}
+        from twofold.core import discrimination as disc
+        from twofold.core.assessment import assess
+        from twofold.gui import figures, present
+
+        fit = ladder.rungs[ladder.current].fit
+        cached = self._assessed
+        if cached is not None and cached[0] is fit:
+            # Only the threshold changed: the rest stands, figures included.
+            _, result, pictures = cached
+            table = disc.classification_table(fit.design.y, fit.fitted, threshold)
+            result = dataclasses.replace(result, classification=table)
+        else:
+            result = assess(self._study, fit, threshold=threshold)
+            pictures = figures.assessment_figures(result)
+        self._assessed = (fit, result, pictures)
+        return {"assessment": present.assessment_view(self._study, ladder, result, pictures)}

@@ -167,6 +167,14 @@ def run_snapshot(argv: list[str]) -> int:
         if window.model_pane.outcome is None or window.results_pane.view is None:
             print("twofold: no results to show; check --outcome and --predictor.", file=sys.stderr)
             return EXIT_USAGE
+        # The assessment follows the results as a second message: wait for it (briefly).
+        import time
+
+        newest = window.session._next_id
+        deadline = time.monotonic() + WAIT_MS / 1000
+        while window.session.last_assessment_id < newest and time.monotonic() < deadline:
+            app.processEvents()
+            time.sleep(0.01)
         # Let layouts settle before the picture.
         for _ in range(5):
             app.processEvents()

@@ -215,3 +215,39 @@ class Failure:
     def cancelled(self) -> bool:
         """Opening a file was stopped on purpose (by the user or by a newer file)."""
         return self.error_type == "ReadCancelled"
+
+
+@dataclass(frozen=True)
+class AssessmentView:
+    """How good the model shown is: worded texts, raw numbers and figures (PNG bytes).
+
+    ``values`` holds the core's raw numbers (keys "auc", "auc_ci_low",
+    "auc_ci_high", "brier", "scaled_brier", "calibration_slope",
+    "calibration_intercept", "hl_statistic", "hl_p_value", ...);
+    ``figures`` maps "roc", "calibration" and "influence" to PNG bytes made
+    on the worker thread, so the GUI thread only decodes them.
+    """
+
+    rung: int
+    title: str
+    auc_text: str
+    auc_reading: str
+    brier_text: str
+    calibration_text: str
+    calibration_note: str
+    hl_text: str
+    hl_note: str
+    pseudo_r2_text: str
+    drop_one: tuple = ()     # (column, likelihood-ratio text, Wald text, prefer the LR test?)
+    vif: tuple = ()          # (column, text, flagged)
+    vif_note: str = ""
+    sample_size_text: str = ""
+    sample_size_short: bool = False
+    influential: tuple = ()  # (file row number, Cook's distance text, leverage text)
+    classification_text: str = ""
+    threshold: float | None = None
+    threshold_note: str = ""
+    calibration_plot_note: str = ""
+    notes: tuple = ()
+    values: dict = field(default_factory=dict)
+    figures: dict = field(default_factory=dict)

@@ -32,6 +32,12 @@ class Job:
     coalesce: str | None = None
     clears_queue: bool = False
     on_error: object = None
+    #: Optional follow-up run after the main result has been sent (same id,
+    #: kind ``then_kind``): slower extras such as the model assessment, so the
+    #: main result is never held back by them.  It returns outputs, or None to
+    #: send nothing (e.g. when a newer request has made it pointless).
+    then: object = None
+    then_kind: str = "followup"
 
 
 @dataclass
@@ -43,6 +49,7 @@ class JobResult:
     unexpected: bool = False
     log_path: str = ""
     error_type: str = ""
+    followup: bool = False
 
 
 def log_exception(exc: BaseException | None = None) -> str:
@@ -133,9 +140,32 @@ class CoreWorker(QThread):
                 result.log_path = log_exception(exc)
                 result.outputs = self._after_error(job)
             finally:
-                with self._cond:
-                    self.running_id = None
+                if job.then is None:
+                    with self._cond:
+                        self.running_id = None
             self.jobDone.emit(result)
+            if job.then is not None:
+                self._run_followup(job, TwofoldError)
+
+    def _run_followup(self, job: Job, user_error) -> None:
+        """Run a job's follow-up and send its outputs as a second result with the same id."""
+        result = JobResult(job.id, job.then_kind, followup=True)
+        try:
+            outputs = job.then()
+            if outputs is None:
+                return
+            result.outputs = outputs
+        except user_error as exc:
+            result.error = str(exc)
+            result.error_type = type(exc).__name__
+        except Exception as exc:  # never let the thread die: log, report, carry on
+            result.error = f"{type(exc).__name__}: {exc}"
+            result.unexpected = True
+            result.log_path = log_exception(exc)
+        finally:
+            with self._cond:
+                self.running_id = None
+        self.jobDone.emit(result)
 
     @staticmethod
     def _after_error(job: Job) -> dict:

@@ -1,0 +1,160 @@
+"""The "How good is the model?" section shows the assessment the core computes, checked from outside.
+
+References: scikit-learn's ``roc_auc_score``, ``brier_score_loss`` and
+``recall_score`` on the core fit's fitted values; statsmodels' ``Logit``
+(fitted here on a pandas-built design) for the drop-one likelihood-ratio
+test; the core's own Hosmer-Lemeshow function for the statistic shown.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+import threading
+
+import pandas as pd
+import pytest
+
+from gui_helpers import READMISSION, WAIT_MS, choose_outcome, load, tick
+from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
+from twofold.core.study import Study
+from twofold.core.text import fmt_num
+from twofold.gui import session as session_module
+from twofold.gui.worker import JobResult
+
+PREDICTORS = ["age", "sex", "discharge_destination"]
+
+
+def wait_assessed(qtbot, window):
+    """Wait until the assessment of the newest request is on screen."""
+    s = window.session
+    newest = s._next_id
+    qtbot.waitUntil(lambda: not s.busy and s.last_assessment_id == newest
+                    and window.results_pane.assessment_box.view is not None, timeout=WAIT_MS)
+    return window.results_pane.assessment_box
+
+
+@pytest.fixture
+def readmission(qtbot, window):
+    load(qtbot, window, READMISSION)
+    choose_outcome(qtbot, window, "readmitted_30d")
+    return window
+
+
+def core_fit(predictors):
+    study = Study.from_file(READMISSION)
+    study.set_outcome("readmitted_30d")
+    return study.fit(predictors)
+
+
+def test_displayed_assessment_equals_outside_references(qtbot, readmission):
+    from sklearn.metrics import brier_score_loss, roc_auc_score
+
+    from twofold.core.calibration import hosmer_lemeshow
+
+    window = readmission
+    tick(qtbot, window, PREDICTORS)
+    box = wait_assessed(qtbot, window)
+    view = box.view
+    fit = core_fit(PREDICTORS)
+    y, p = fit.design.y, fit.fitted
+
+    auc = roc_auc_score(y, p)  # scikit-learn, outside the project
+    assert view.values["auc"] == pytest.approx(auc, rel=1e-9)
+    assert f"c statistic): {fmt_num(auc, 3)}," in box.auc.text()
+    assert view.values["brier"] == pytest.approx(brier_score_loss(y, p), rel=1e-9)  # scikit-learn
+
+    hl = hosmer_lemeshow(y, p, 10)  # the core's own test on the same fit
+    assert view.values["hl_statistic"] == pytest.approx(hl.statistic, rel=1e-12)
+    assert f"chi-square {fmt_num(hl.statistic, 2)} on" in box.hosmer.text()
+
+    # The limits notes stand beside the numbers they qualify.
+    assert APPARENT_CALIBRATION_NOTE in box.calibration.text()
+    assert HOSMER_LEMESHOW_NOTE in box.hosmer.text()
+    assert THRESHOLD_NOTE in box.classification.text()
+
+    # Drop-one likelihood-ratio test for "sex", against statsmodels on a design built with pandas.
+    import statsmodels.api as sm
+
+    frame = pd.read_csv(READMISSION)
+    outcome = frame["readmitted_30d"].map(lambda v: 1.0 if str(v).strip().lower() in ("1", "yes", "true") else 0.0)
+    assert outcome.sum() == fit.events  # the event coding read here matches the core's
+
+    def llf(cols):
+        X = pd.get_dummies(frame[cols], drop_first=True, dtype=float)
+        return sm.Logit(outcome.to_numpy(), sm.add_constant(X).to_numpy()).fit(disp=0).llf
+
+    g = 2 * (llf(PREDICTORS) - llf(["age", "discharge_destination"]))
+    sex = [d for d in view.drop_one if d[0] == "sex"]
+    assert len(sex) == 1
+    assert sex[0][1].startswith(f"G = {fmt_num(g, 2)} on 1 degree of freedom")
+    assert "likelihood-ratio test" in box.drop_one.text() and "Wald" in box.drop_one.text()
+
+    # The most influential records are listed by file row number (1-based).
+    assert len(view.influential) == 10
+    assert all(1 <= r <= len(frame) for r, _, _ in view.influential)
+
+    for key in ("roc", "calibration", "influence"):
+        pm = box.plots[key].pixmap()
+        assert pm is not None and not pm.isNull(), key
+        assert pm.width() > 100
+
+
+def test_threshold_box_updates_the_classification_table(qtbot, readmission):
+    from sklearn.metrics import recall_score
+
+    window = readmission
+    tick(qtbot, window, PREDICTORS)
+    box = wait_assessed(qtbot, window)
+    box.threshold.setValue(0.2)
+    qtbot.waitUntil(lambda: window.session.last_assessment_id == window.session._next_id
+                    and box.view.threshold == pytest.approx(0.2), timeout=WAIT_MS)
+    fit = core_fit(PREDICTORS)
+    y, p = fit.design.y, fit.fitted
+    called = (p >= 0.2).astype(int)
+    assert box.view.values["sensitivity"] == pytest.approx(recall_score(y, called))  # scikit-learn
+    assert box.view.values["specificity"] == pytest.approx(recall_score(1 - y, 1 - called))
+    assert "at least 0.20 positive" in box.classification.text()
+
+
+def test_a_superseded_assessment_never_overwrites_a_newer_one(qtbot, readmission, monkeypatch):
+    window = readmission
+    gate, started = threading.Event(), threading.Event()
+    original = session_module.Session._job_assess
+    calls = []
+
+    def slow_assess(self, job_id, threshold):
+        calls.append(job_id)
+        if len(calls) == 1:
+            started.set()
+            gate.wait(10)  # the older assessment finishes only after a newer tick was made
+        return original(self, job_id, threshold)
+
+    monkeypatch.setattr(session_module.Session, "_job_assess", slow_assess)
+    shown = []
+    window.session.assessmentChanged.connect(lambda v: shown.append(None if v is None else v.rung))
+    window.model_pane.set_ticked(["age"])  # request A: its assessment blocks
+    assert started.wait(10)
+    window.model_pane.set_ticked(["age", "sex"])  # request B
+    gate.set()
+    box = wait_assessed(qtbot, window)
+    assert shown == [1]  # only B's assessment (model 2) was shown
+    assert box.view.rung == 1 == window.results_pane.view.rung
+
+    # Delivered by hand, out of order: an older follow-up is ignored.
+    old = JobResult(calls[0], "assess", {"assessment": "stale"}, followup=True)
+    window.session._on_done(old)
+    assert box.view.rung == 1 and window.session.last_assessment != "stale"
+
+
+def test_matplotlib_is_not_imported_when_the_window_is_built(tmp_path):
+    code = ("import os, sys; os.environ['QT_QPA_PLATFORM'] = 'offscreen'; "
+            "from PySide6.QtWidgets import QApplication; app = QApplication([]); "
+            "from twofold.gui.window import MainWindow; w = MainWindow(remember=False); "
+            "print('matplotlib' in sys.modules); w.session.shutdown()")
+    env = {**os.environ, "TWOFOLD_HOME": str(tmp_path)}
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60, env=env)
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.strip().splitlines()[-1] == "False"
+
