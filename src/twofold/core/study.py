@@ -83,6 +83,8 @@ class Study:
         """The exact column name for ``name`` (or ``"A:B"`` for an interaction), else a ColumnError."""
         from twofold.core.terms import split_interaction
 
+        if name in self._columns:  # a real column whose name holds a colon is still itself
+            return name
         pair = split_interaction(name)
         if pair is not None:
             return ":".join(require_column(self._columns, part, self.source) for part in pair)
@@ -180,7 +182,7 @@ class Study:
         form = "linear" if linear or name not in self._splines else self._splines[name]
         key = (name, form)
         if key not in self._blocks:
-            pair = split_interaction(name)
+            pair = split_interaction(name) if name not in self._columns else None
             if pair is not None:
                 self._blocks[key] = interaction_block(self.block(pair[0], linear=True), self.block(pair[1], linear=True))
             elif name == self.outcome:
@@ -227,7 +229,7 @@ class Study:
         from twofold.core.terms import split_interaction
 
         for p in predictors:
-            pair = split_interaction(p)
+            pair = split_interaction(p) if p not in self._columns else None
             if pair is not None and not set(pair) <= set(predictors):
                 raise ModelError(f"The interaction {p} needs both {pair[0]} and {pair[1]} in the model as well; "
                                  "tick them too.")

@@ -1,0 +1,212 @@
+"""The coefficient table and the ladder table as CSV or XLSX files.
+
+Headers are plain words; numbers are written as numbers (numeric cells in a
+workbook, unquoted in CSV), missing or infinite ones as empty cells.  Any
+text cell that a spreadsheet could read as a formula (beginning with =, +, -,
+@, a tab or a carriage return, as listed by the OWASP guidance on CSV
+injection) gets a leading single quote, so opening the file never runs
+anything; a negative *number* stays a number, only text is changed.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+import re
+from pathlib import Path
+
+from twofold.core.errors import DataFileError
+
+#: Characters that make a spreadsheet treat a text cell as a formula (OWASP, CSV injection).
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+COEFFICIENT_HEADERS = ["predictor", "group", "compared with", "odds ratio", "95% CI low", "95% CI high",
+                       "p-value", "Wald z", "coefficient", "standard error"]
+PROFILE_HEADERS = ["95% profile CI low", "95% profile CI high"]
+LADDER_HEADERS = ["model", "predictors", "chosen", "coefficients", "rows used", "log-likelihood", "AIC", "BIC",
+                  "added", "removed", "likelihood-ratio G against the previous model", "degrees of freedom",
+                  "p-value"]
+
+#: Characters openpyxl refuses in a cell (control characters other than tab, newline, carriage return).
+_ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f]")
+
+#: Display formats in the workbook (the stored values keep full precision).
+_XLSX_FORMATS = {"odds ratio": "0.000", "95% CI low": "0.000", "95% CI high": "0.000",
+                 "95% profile CI low": "0.000", "95% profile CI high": "0.000", "Wald z": "0.00",
+                 "coefficient": "0.0000", "standard error": "0.0000", "log-likelihood": "0.00",
+                 "AIC": "0.0", "BIC": "0.0", "likelihood-ratio G against the previous model": "0.00"}
+
+
+def neutralise(text: str) -> str:
+    """Text that a spreadsheet shows as text: a leading ' before a formula-like start.
+
+    Leading spaces are looked through, since some programs ignore them before
+    a formula.
+    """
+    text = str(text)
+    if text.lstrip(" ").startswith(FORMULA_START) or text.startswith(FORMULA_START):
+        return "'" + text
+    return text
+
+
+def _cell(value):
+    """A value for a table cell: a finite number, None (empty), or neutralised text."""
+    import numpy as np
+
+    if value is None:
+        return None
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        x = float(value)
+        return x if math.isfinite(x) else None
+    return neutralise(value)
+
+
+def coefficient_table(record: dict) -> tuple[list[str], list[list]]:
+    """Headers and rows of the coefficient table from a ``twofold fit`` record.
+
+    One row per coefficient: the predictors first, then the intercept (its
+    odds-ratio cells stay empty: it is the baseline log odds, not a ratio).
+    """
+    profile = any("or_pl_low" in t for t in record["terms"])
+    headers = COEFFICIENT_HEADERS + (PROFILE_HEADERS if profile else [])
+    rows = []
+    for t in record["terms"]:
+        row = [t["column"], t["level"], t["reference"], t["odds_ratio"], t["or_ci_low"], t["or_ci_high"],
+               t["p_value"], t["z"], t["estimate"], t["std_error"]]
+        if profile:
+            row += [t.get("or_pl_low"), t.get("or_pl_high")]
+        rows.append(row)
+    i = record["intercept"]
+    row = ["intercept (baseline log odds)", None, None, None, None, None, i["p_value"], i["z"], i["estimate"],
+           i["std_error"]]
+    if profile:
+        row += [None, None]
+    rows.append(row)
+    return headers, rows
+
+
+def ladder_table(ladder) -> tuple[list[str], list[list]]:
+    """Headers and rows of the model ladder (a :class:`~twofold.core.ladder.Ladder`)."""
+    rows = []
+    for k, rung in enumerate(ladder.rungs):
+        t = rung.against_previous
+        rows.append([
+            k + 1, ", ".join(rung.predictors) or "(constant only)", "yes" if k == ladder.current else "",
+            rung.fit.n_params, rung.fit.n_used, rung.fit.llf, rung.fit.aic, rung.fit.bic,
+            ", ".join(rung.added), ", ".join(rung.removed),
+            None if t is None else t.g, None if t is None else t.df, None if t is None else t.p_value,
+        ])
+    return list(LADDER_HEADERS), rows
+
+
+def _refuse_data_file(path: Path, data) -> None:
+    if data is None:
+        return
+    try:
+        same = path.exists() and Path(data).exists() and os.path.samefile(path, data)
+    except OSError:
+        same = False
+    if same:
+        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
+                            "so choose another file name.")
+
+
+def _write_csv(path: Path, headers, rows) -> None:
+    # utf-8-sig: the byte-order mark makes spreadsheet programs read the file as UTF-8.
+    with open(path, "w", newline="", encoding="utf-8-sig") as fh:
+        writer = csv.writer(fh, quoting=csv.QUOTE_MINIMAL)
+        writer.writerow([neutralise(h) for h in headers])
+        for row in rows:
+            out = []
+            for v in row:
+                c = _cell(v)
+                out.append("" if c is None else (repr(c) if isinstance(c, float) else c))
+            writer.writerow(out)
+
+
+def _sheet(book, title, headers, rows, first=False):
+    from openpyxl.styles import Font
+
+    ws = book.active if first else book.create_sheet()
+    ws.title = title
+    ws.append([_ILLEGAL.sub("", neutralise(h)) for h in headers])
+    for cell in ws[1]:
+        cell.font = Font(bold=True)
+    for r, row in enumerate(rows, start=2):
+        for j, v in enumerate(row, start=1):
+            c = _cell(v)
+            cell = ws.cell(row=r, column=j)
+            if isinstance(c, str):
+                # Set the type explicitly: openpyxl would otherwise take text beginning with = as a formula.
+                cell.value = _ILLEGAL.sub("", c)
+                cell.data_type = "s"
+            else:
+                cell.value = c
+                fmt = _XLSX_FORMATS.get(headers[j - 1])
+                if fmt and c is not None:
+                    cell.number_format = fmt
+    ws.freeze_panes = "A2"
+    for j, h in enumerate(headers, start=1):
+        width = max([len(str(h))] + [len(str(_cell(row[j - 1]) or "")) for row in rows[:200]])
+        ws.column_dimensions[ws.cell(row=1, column=j).column_letter].width = min(max(10, width + 2), 60)
+    return ws
+
+
+def write_table(path, headers, rows, sheet: str = "coefficients", extra_sheets=(), data=None) -> Path:
+    """Write one table to ``.csv`` or ``.xlsx`` (chosen by the suffix).
+
+    Parameters
+    ----------
+    path : path
+    headers : list of str
+    rows : list of lists
+    sheet : str
+        Sheet title in a workbook.
+    extra_sheets : sequence of (title, headers, rows)
+        Further sheets (workbooks only).
+    data : path, optional
+        The data file, which is never overwritten.
+    """
+    path = Path(os.fspath(path))
+    _refuse_data_file(path, data)
+    suffix = path.suffix.lower()
+    try:
+        if suffix == ".csv":
+            _write_csv(path, headers, rows)
+        elif suffix == ".xlsx":
+            from openpyxl import Workbook
+
+            book = Workbook()
+            _sheet(book, sheet, headers, rows, first=True)
+            for title, h, r in extra_sheets:
+                _sheet(book, title, h, r)
+            book.save(path)
+        else:
+            raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{path.suffix or path.name}'; "
+                                "end the file name with .csv or .xlsx.")
+    except OSError as exc:
+        raise DataFileError(f"Could not write {path} ({exc.strerror}); choose a folder you can write to.") from None
+    return path
+
+
+def export_coefficients(result, path, ladder=None) -> Path:
+    """Write the coefficient table of an analysis (or of a ``twofold fit`` record) as CSV or XLSX.
+
+    In a workbook, a given ladder adds a second sheet with the models tried.
+    """
+    record = result if isinstance(result, dict) else result.record
+    data = None if isinstance(result, dict) else result.spec.data
+    headers, rows = coefficient_table(record)
+    extra = [("models",) + ladder_table(ladder)] if ladder is not None and getattr(ladder, "rungs", None) else []
+    return write_table(path, headers, rows, "coefficients", extra, data=data)
+
+
+def export_ladder(ladder, path, data=None) -> Path:
+    """Write the ladder table (one row per model tried) as CSV or XLSX."""
+    headers, rows = ladder_table(ladder)
+    return write_table(path, headers, rows, "models", data=data)

@@ -1,0 +1,1046 @@
+"""A report of one analysis for a committee: self-contained HTML or PDF.
+
+The report holds aggregate figures only: no row-level values, no identifiers,
+no dates from the data.  Every count of people in its descriptive tables,
+risk-group table and cross-tabulations passes through
+:mod:`twofold.core.privacy` (small counts hidden, with complementary
+suppression).  Record numbers of influential rows appear only when asked for.
+
+The content is built once as a list of blocks (headings, paragraphs, tables,
+figures) and then laid out as HTML (plots embedded as base64 PNG, inline
+CSS, no scripts, fonts, links or anything fetched from elsewhere) or as PDF
+(matplotlib's PdfPages: text pages with the plots drawn on them).  matplotlib
+is imported only inside the functions that draw, with the Agg canvas.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import os
+import platform
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from twofold.core.errors import DataFileError
+from twofold.core.privacy import DEFAULT_THRESHOLD, SUPPRESSED, is_small, protect_table, show_count, suppression_note
+from twofold.core.text import fmt_num, fmt_or, fmt_p
+
+#: Cook's distance above 4/n marks an influential record (common practice, a rule of thumb).
+COOKS_RULE = 4.0
+
+REFERENCES = {
+    "statsmodels": "Seabold S, Perktold J. Statsmodels: econometric and statistical modeling with Python. "
+                   "Proceedings of the 9th Python in Science Conference, 2010.",
+    "delong": "DeLong ER, DeLong DM, Clarke-Pearson DL. Comparing the areas under two or more correlated receiver "
+              "operating characteristic curves: a nonparametric approach. Biometrics 1988;44:837-845.",
+    "hl": "Hosmer DW, Lemeshow S. Goodness of fit tests for the multiple logistic regression model. "
+          "Communications in Statistics - Theory and Methods 1980;9:1043-1069.",
+    "vancalster": "Van Calster B, Nieboer D, Vergouwe Y, De Cock B, Pencina MJ, Steyerberg EW. A calibration "
+                  "hierarchy for risk models was defined: from utopia to empirical data. "
+                  "Journal of Clinical Epidemiology 2016;74:167-176.",
+    "peduzzi": "Peduzzi P, Concato J, Kemper E, Holford TR, Feinstein AR. A simulation study of the number of events "
+               "per variable in logistic regression analysis. Journal of Clinical Epidemiology 1996;49:1373-1379.",
+    "riley": "Riley RD, Ensor J, Snell KIE, et al. Calculating the sample size required for developing a clinical "
+             "prediction model. BMJ 2020;368:m441.",
+    "wilson": "Wilson EB. Probable inference, the law of succession, and statistical inference. "
+              "Journal of the American Statistical Association 1927;22:209-212.",
+    "cook": "Cook RD. Detection of influential observation in linear regression. Technometrics 1977;19:15-18.",
+    "fox": "Fox J, Monette G. Generalized collinearity diagnostics. "
+           "Journal of the American Statistical Association 1992;87:178-183.",
+    "hauck": "Hauck WW, Donner A. Wald's test as applied to hypotheses in logit analysis. "
+             "Journal of the American Statistical Association 1977;72:851-853.",
+    "firth": "Firth D. Bias reduction of maximum likelihood estimates. Biometrika 1993;80:27-38.",
+    "heinze": "Heinze G, Schemper M. A solution to the problem of separation in logistic regression. "
+              "Statistics in Medicine 2002;21:2409-2419.",
+    "puhr": "Puhr R, Heinze G, Nold M, Lusa L, Geroldinger A. Firth's logistic regression with rare events: accurate "
+            "effect estimates and predictions? Statistics in Medicine 2017;36:2302-2317.",
+    "venzon": "Venzon DJ, Moolgavkar SH. A method for computing profile-likelihood-based confidence intervals. "
+              "Applied Statistics 1988;37:87-94.",
+}
+
+
+# ---------------------------------------------------------------------------
+# content blocks
+# ---------------------------------------------------------------------------
+
+
+@dataclass
+class Heading:
+    text: str
+    level: int = 2
+
+
+@dataclass
+class Para:
+    text: str
+    style: str = "normal"  # normal | note | caution | warning | small
+
+
+@dataclass
+class Bullets:
+    items: list
+    style: str = "normal"
+
+
+@dataclass
+class Table:
+    headers: list
+    rows: list          # lists of str
+    align: str = ""     # one letter per column: l or r (default: first l, rest r)
+    caption: str = ""
+
+    def alignment(self) -> str:
+        return self.align or ("l" + "r" * (len(self.headers) - 1))
+
+
+@dataclass
+class Figure:
+    draw: object        # callable(ax)
+    caption: str
+    alt: str
+
+
+@dataclass
+class Report:
+    title: str
+    subtitle: str
+    blocks: list = field(default_factory=list)
+
+    def add(self, *blocks):
+        self.blocks.extend(blocks)
+
+    def text(self) -> str:
+        """All the words of the report (headings, paragraphs, table cells, captions), for checks."""
+        out = [self.title, self.subtitle]
+        for b in self.blocks:
+            if isinstance(b, (Heading, Para)):
+                out.append(b.text)
+            elif isinstance(b, Bullets):
+                out.extend(b.items)
+            elif isinstance(b, Table):
+                out.append(b.caption)
+                out.extend(b.headers)
+                out.extend(c for row in b.rows for c in row)
+            elif isinstance(b, Figure):
+                out.extend([b.caption, b.alt])
+        return "\n".join(out)
+
+
+# ---------------------------------------------------------------------------
+# plots (aggregate only)
+# ---------------------------------------------------------------------------
+
+
+def _draw_roc(fpr, tpr, auc):
+    fpr, tpr = np.asarray(fpr, dtype=float), np.asarray(tpr, dtype=float)
+
+    def draw(ax):
+        ax.plot([0, 1], [0, 1], linestyle="--", color="0.6", linewidth=1, label="no better than chance")
+        ax.plot(fpr, tpr, color="#1f5f8b", linewidth=1.8, label=f"this model (area {auc:.3f})")
+        ax.set_xlim(0, 1)
+        ax.set_ylim(0, 1)
+        ax.set_aspect("equal")
+        ax.set_xlabel("1 - specificity (share of non-events flagged)")
+        ax.set_ylabel("sensitivity (share of events flagged)")
+        ax.legend(loc="lower right", fontsize=8, frameon=False)
+        ax.grid(True, color="0.92")
+    return draw
+
+
+def _draw_calibration(pred, obs, lo, hi, hidden_groups: int):
+    pred, obs, lo, hi = (np.asarray(v, dtype=float) for v in (pred, obs, lo, hi))
+
+    def draw(ax):
+        top = float(max([0.05] + list(hi) + list(pred))) if len(pred) else 1.0
+        top = min(1.0, top * 1.1)
+        ax.plot([0, top], [0, top], linestyle="--", color="0.6", linewidth=1, label="predicted = observed")
+        if len(pred):
+            # Clipped: a Wilson bound can sit a rounding error beyond the observed share.
+            err = [np.clip(obs - lo, 0, None), np.clip(hi - obs, 0, None)]
+            ax.errorbar(pred, obs, yerr=err, fmt="o", color="#1f5f8b", ecolor="#7aa6c2", capsize=3, markersize=5,
+                        label="risk group (95% interval)")
+        ax.set_xlim(0, top)
+        ax.set_ylim(0, top)
+        ax.set_aspect("equal")
+        ax.set_xlabel("mean predicted risk in the group")
+        ax.set_ylabel("observed share with the event")
+        ax.legend(loc="upper left", fontsize=8, frameon=False)
+        ax.grid(True, color="0.92")
+        if hidden_groups:
+            ax.text(0.98, 0.02, f"{hidden_groups} group(s) with suppressed counts not shown", transform=ax.transAxes,
+                    ha="right", va="bottom", fontsize=7, color="0.35")
+    return draw
+
+
+def _png(draw, width=5.0, height=4.2) -> bytes:
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure as MplFigure
+
+    fig = MplFigure(figsize=(width, height), dpi=110)
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot(1, 1, 1)
+    draw(ax)
+    fig.tight_layout()
+    buf = io.BytesIO()
+    # No "Software" entry: the PNG carries no text beyond the pixels.
+    fig.savefig(buf, format="png", metadata={"Software": None})
+    return buf.getvalue()
+
+
+# ---------------------------------------------------------------------------
+# building the content
+# ---------------------------------------------------------------------------
+
+
+def _label(t: dict) -> tuple[str, str]:
+    if t.get("level") is None:
+        return t["column"], "per unit"
+    if t.get("reference") is None:
+        return t["column"], str(t["level"])
+    return t["column"], f"{t['level']} (compared with {t['reference']})"
+
+
+def _ci(lo, hi, f=fmt_or) -> str:
+    return f"{f(lo)} to {f(hi)}"
+
+
+def _pct(a, b) -> str:
+    return f"{100.0 * a / b:.1f}%" if b else "n/a"
+
+
+def _versions() -> list[list[str]]:
+    import importlib.metadata as md
+
+    from twofold import __version__
+
+    rows = [["Twofold", __version__], ["Python", platform.python_version()]]
+    for name in ("numpy", "scipy", "pandas", "statsmodels", "matplotlib"):
+        try:
+            rows.append([name, md.version(name)])
+        except md.PackageNotFoundError:
+            rows.append([name, "not installed"])
+    return rows
+
+
+def _data_section(rep: Report, record: dict, threshold: int, what: str = "model") -> None:
+    rep.add(Heading("The records"))
+    read, used = record["rows_read"], record["rows_used"]
+    left = read - used
+    small_left = is_small(left, threshold)
+    rows = [
+        ["Rows read from the file", SUPPRESSED if small_left else f"{read:,}"],
+        ["Rows without an outcome", show_count(record["rows_missing_outcome"], threshold)],
+        ["Rows left out (no outcome, or a predictor missing)", show_count(left, threshold)],
+        [f"Rows used by the {what}", f"{used:,}"],
+        ["Events among them", f"{record['events']:,} ({_pct(record['events'], used)})"],
+        ["Non-events among them", f"{record['nonevents']:,} ({_pct(record['nonevents'], used)})"],
+    ]
+    rep.add(Table(["", "count"], rows, "lr"))
+    if small_left:
+        rep.add(Para("Fewer than the suppression limit of rows were left out, so the number of rows read is "
+                     "suppressed too: with both totals shown, the small number could be worked out.", "note"))
+    missing = [[c, show_count(n, threshold)] for c, n in record["missing_by_column"].items()]
+    if any(n for n in record["missing_by_column"].values()):
+        rep.add(Table(["predictor", "rows missing it (among rows with an outcome)"], missing, "lr",
+                      "A row can miss several predictors, so these can add up to more than the rows left out."))
+    else:
+        rep.add(Para("No predictor value was missing among the rows with an outcome."))
+    if is_small(record["events"], threshold) or is_small(record["nonevents"], threshold):
+        rep.add(Para(f"The {'events' if is_small(record['events'], threshold) else 'non-events'} number "
+                     f"{threshold} or fewer people; they are shown because no model can be described without "
+                     "them, so check the local rules before sharing this report.", "warning"))
+
+
+def _describe_predictors(rep: Report, fit, threshold: int) -> None:
+    """Numeric predictors by outcome (mean, SD, median, quartiles) and categorical ones cross-tabulated."""
+    X, y = fit.design.X, fit.design.y
+    ev, ne = y == 1, y == 0
+    rep.add(Heading("The predictors among the rows used"))
+    numeric_rows = []
+    factor_tables = []
+    for block, sl in zip(fit.design.blocks, fit.design.slices):
+        if block.kind == "interaction":
+            continue  # its columns are products of the predictors already described
+        if block.kind in ("numeric", "spline"):
+            x = X[:, sl.start]  # a spline's first column is the value itself
+            distinct = np.unique(x)
+            if len(distinct) == 2:
+                factor_tables.append((block.column, [f"{v:g}" for v in distinct],
+                                      [x == v for v in distinct], None))
+                continue
+            cells = [block.column]
+            for mask in (ev, ne):
+                v = x[mask]
+                if is_small(len(v), threshold) or not len(v):
+                    cells += [SUPPRESSED, SUPPRESSED]
+                    continue
+                q1, med, q3 = np.percentile(v, [25, 50, 75])
+                sd = float(np.std(v, ddof=1)) if len(v) > 1 else float("nan")
+                cells += [f"{fmt_num(float(v.mean()), 2)} ({fmt_num(sd, 2)})",
+                          f"{fmt_num(float(med), 1)} ({fmt_num(float(q1), 1)} to {fmt_num(float(q3), 1)})"]
+            numeric_rows.append(cells)
+        elif block.kind == "factor":
+            vals = X[:, sl]
+            masks = [vals.sum(axis=1) == 0] + [vals[:, j] == 1 for j in range(block.width)]
+            labels = [f"{block.reference} (reference)"] + [str(lvl) for lvl in block.levels]
+            factor_tables.append((block.column, labels, masks, block.reference))
+    if numeric_rows:
+        rep.add(Table(["predictor", "events: mean (SD)", "events: median (quartiles)",
+                       "non-events: mean (SD)", "non-events: median (quartiles)"], numeric_rows, "lrrrr",
+                      "SD: standard deviation; quartiles: the 25th and 75th percentiles."))
+    for column, labels, masks, _ref in factor_tables:
+        counts = np.array([[int((m & ev).sum()), int((m & ne).sum())] for m in masks])
+        prot = protect_table(counts, threshold)
+        shown = prot.as_text()
+        rows = []
+        for i, label in enumerate(labels):
+            e, total = prot.cell(i, 0), prot.row_total(i)
+            share = _pct(e, total) if e is not None and total is not None else SUPPRESSED
+            rows.append([label, shown[i][0], shown[i][1], shown[i][2], share])
+        m = len(labels)
+        rows.append(["all rows used", shown[m][0], shown[m][1], shown[m][2], _pct(counts[:, 0].sum(), counts.sum())])
+        rep.add(Table([f"{column}", "events", "non-events", "total", "share with the event"], rows, "lrrrr",
+                      f"Rows used by the model, by group of {column} and outcome."))
+
+
+def _coefficient_section(rep: Report, record: dict, fit) -> None:
+    rep.add(Heading("The chosen model"))
+    method = record.get("method", "maximum likelihood")
+    preds = ", ".join(record["predictors"]) or "no predictors"
+    rep.add(Para(f"Outcome: {record['outcome']} (event: {record['event']}). Predictors: {preds}. "
+                 f"Fitted by {method} on {record['rows_used']:,} rows with {record['parameters']} coefficients "
+                 f"(intercept included)."))
+    ov = record["overall"]
+    if ov and ov["df"]:
+        rep.add(Para(f"Likelihood-ratio test of the model against the overall event rate alone: "
+                     f"G = {fmt_num(ov['g'], 2)} on {ov['df']} degrees of freedom, p-value {fmt_p(ov['p_value'])}."))
+    rep.add(Para(f"Log-likelihood {fmt_num(record['log_likelihood'], 2)} (event rate alone "
+                 f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
+                 f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
+                 f"{fmt_num(record['events_per_parameter'], 1)} of the rarer outcome per coefficient besides "
+                 "the intercept."))
+    profile = any("or_pl_low" in t for t in record["terms"])
+    headers = ["predictor", "group", "odds ratio", "95% interval"] + (["95% profile interval"] if profile else []) \
+        + ["p-value", "Wald z", "coefficient", "standard error"]
+    rows = []
+    for t in record["terms"]:
+        col, group = _label(t)
+        row = [col, group, fmt_or(t["odds_ratio"]), _ci(t["or_ci_low"], t["or_ci_high"])]
+        if profile:
+            row.append(_ci(t.get("or_pl_low"), t.get("or_pl_high")))
+        row += [fmt_p(t["p_value"]), fmt_num(t["z"], 2), fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4)]
+        rows.append(row)
+    i = record["intercept"]
+    rows.append(["intercept", "baseline log odds", "", ""] + ([""] if profile else [])
+                + [fmt_p(i["p_value"]), fmt_num(i["z"], 2), fmt_num(i["estimate"], 4), fmt_num(i["std_error"], 4)])
+    rep.add(Table(headers, rows, "ll" + "r" * (len(headers) - 2),
+                  "Odds ratios with 95% Wald intervals; the Wald z tests that a coefficient is zero. "
+                  "A numeric predictor's odds ratio is per unit of the column."))
+    if record["dropped_columns"]:
+        rep.add(Para("Left out as constant or exactly determined by other predictors: "
+                     + ", ".join(record["dropped_columns"]) + ".", "note"))
+    if record["term_tests"]:
+        rep.add(Table(["predictor (all its groups together)", "Wald chi-square", "degrees of freedom", "p-value"],
+                      [[t["column"], fmt_num(t["statistic"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                       for t in record["term_tests"]]))
+    a = record.get("assessment") or {}
+    if a.get("drop_one"):
+        rows = [[t["column"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"]), fmt_num(t["wald"], 2),
+                 fmt_p(t["wald_p_value"]), "yes" if t["prefer_lr"] else ""] for t in a["drop_one"]]
+        rep.add(Table(["predictor", "likelihood-ratio G", "degrees of freedom", "p-value", "Wald chi-square",
+                       "p-value", "report the likelihood-ratio test"], rows,
+                      caption="Each predictor tested by refitting without it on the same rows, beside its Wald "
+                              "test. Where the two disagree, or the estimate is so large that the Wald test "
+                              "loses power (Hauck & Donner 1977), the likelihood-ratio test is the one to report."))
+    if record.get("nonlinearity"):
+        rep.add(Table(["predictor", "knots", "likelihood-ratio G", "degrees of freedom", "p-value"],
+                      [[t["column"], str(len(t["knots"])), fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                       for t in record["nonlinearity"]],
+                      caption="Curved effects: each restricted cubic spline tested against a straight line on the "
+                              "same rows. The spline's coefficients have no direct reading on their own."))
+    if record.get("interaction_tests"):
+        rep.add(Table(["interaction", "likelihood-ratio G", "degrees of freedom", "p-value"],
+                      [[t["term"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                       for t in record["interaction_tests"]],
+                      caption="Each interaction tested by refitting without it on the same rows. With an "
+                              "interaction, the odds ratio of either predictor depends on the other."))
+    nested = record.get("nested")
+    if nested:
+        smaller = ", ".join(nested["smaller_predictors"]) or "no predictors"
+        rep.add(Para(f"Smaller model ({smaller}) against this one on the same {nested['rows']:,} rows: "
+                     f"likelihood-ratio G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
+                     f"p-value {fmt_p(nested['p_value'])}."))
+
+
+def _ladder_section(rep: Report, ladder) -> None:
+    rep.add(Heading("Models tried"))
+    rows = []
+    for k, rung in enumerate(ladder.rungs):
+        t = rung.against_previous
+        change = "; ".join(x for x in (("added " + ", ".join(rung.added)) if rung.added else "",
+                                        ("removed " + ", ".join(rung.removed)) if rung.removed else "") if x)
+        rows.append([
+            f"{k + 1}{' (chosen)' if k == ladder.current else ''}", ", ".join(rung.predictors) or "none",
+            str(rung.fit.n_params), fmt_num(rung.fit.aic, 1), fmt_num(rung.fit.bic, 1), change or "",
+            "" if t is None else f"G = {fmt_num(t.g, 2)}, {t.df} df, p-value {fmt_p(t.p_value)}",
+        ])
+    n_rows = len(ladder.rows) if ladder.rows is not None else 0
+    rep.add(Table(["model", "predictors", "coefficients", "AIC", "BIC", "change from the one before",
+                   "likelihood-ratio test against the one before"], rows, "llrrrll",
+                  f"Every model was fitted on the same {n_rows:,} rows, so nested ones can be compared by the "
+                  "likelihood-ratio test; lower AIC and BIC are better, and a difference under 2 is small."))
+
+
+def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshold: int, frozen: bool,
+                        include_records: bool) -> None:
+    rep.add(Heading("How well the model separates and predicts" + (" on these records" if frozen else
+                                                                  " on the records it was fitted to")))
+    lo, hi = a["auc_ci"]
+    rep.add(Heading("Discrimination", 3))
+    rep.add(Para(f"Area under the ROC curve (c statistic) {fmt_num(a['auc'], 3)}, 95% interval {fmt_num(lo, 3)} to "
+                 f"{fmt_num(hi, 3)} (DeLong et al. 1988): the chance that a randomly chosen person with the event "
+                 "has a higher predicted risk than one without; 0.5 is a coin toss and 1 perfect."))
+    roc = assessment.roc
+    rep.add(Figure(_draw_roc(roc.fpr, roc.tpr, a["auc"] or float("nan")), "ROC curve over all risk thresholds.",
+                   f"ROC curve of the model; area under the curve {fmt_num(a['auc'], 3)}."))
+    rep.add(Heading("Calibration", 3))
+    cal_text = (f"Calibration slope {fmt_num(a['calibration_slope'], 3)} and calibration-in-the-large "
+                f"{fmt_num(a['calibration_intercept'], 3)}")
+    if frozen and a.get("calibration_slope_ci"):
+        s_lo, s_hi = a["calibration_slope_ci"]
+        i_lo, i_hi = a["calibration_intercept_ci"]
+        cal_text += (f" (95% intervals {fmt_num(s_lo, 3)} to {fmt_num(s_hi, 3)} and {fmt_num(i_lo, 3)} to "
+                     f"{fmt_num(i_hi, 3)})")
+    rep.add(Para(cal_text + " (Van Calster et al. 2016)."), Para(a["calibration_note"], "note"))
+    groups = assessment.groups
+    if groups is not None:
+        ev = np.rint(np.asarray(groups.observed) * np.asarray(groups.n)).astype(int)
+        counts = np.column_stack([ev, np.asarray(groups.n) - ev])
+        prot = protect_table(counts, threshold)
+        shown = prot.as_text()
+        rows, keep = [], []
+        for g in range(len(ev)):
+            ok = prot.cell(g, 0) is not None and prot.cell(g, 1) is not None and prot.row_total(g) is not None
+            # A group with hidden counts also hides its mean predicted risk: with the group size, the mean
+            # and the Hosmer-Lemeshow statistic published, the hidden count could be solved for.
+            rows.append([str(g + 1), shown[g][2], fmt_num(float(groups.mean_predicted[g]), 3) if ok else SUPPRESSED,
+                         shown[g][0], shown[g][1],
+                         fmt_num(float(groups.observed[g]), 3) if ok else SUPPRESSED,
+                         _ci(float(groups.ci_low[g]), float(groups.ci_high[g]), lambda v: fmt_num(v, 3))
+                         if ok else SUPPRESSED])
+            keep.append(ok)
+        keep = np.array(keep, dtype=bool)
+        rep.add(Figure(_draw_calibration(np.asarray(groups.mean_predicted)[keep], np.asarray(groups.observed)[keep],
+                                         np.asarray(groups.ci_low)[keep], np.asarray(groups.ci_high)[keep],
+                                         int((~keep).sum())),
+                       f"Observed against predicted risk in {groups.groups_used} groups of predicted risk "
+                       "(about equal numbers of people each), with 95% Wilson intervals; points on the dashed "
+                       "line are perfectly calibrated.",
+                       "Calibration plot: observed share with the event against mean predicted risk, by risk group."))
+        rows.append(["all", shown[-1][2], "", shown[-1][0], shown[-1][1], "", ""])
+        rep.add(Table(["risk group", "people", "mean predicted risk", "events", "non-events", "observed share",
+                       "95% interval of the share"], rows, caption="Groups from lowest to highest predicted risk."))
+    rep.add(Para(f"Brier score {fmt_num(a['brier'], 4)} (mean squared difference between predicted risk and "
+                 f"outcome; lower is better); scaled Brier score {fmt_num(a['scaled_brier'], 3)} (1 - Brier / "
+                 "Brier of the event rate alone)."))
+    hl = a.get("hosmer_lemeshow")
+    if hl:
+        rep.add(Para(f"Hosmer-Lemeshow test over {hl['groups']} risk groups (Hosmer & Lemeshow 1980): "
+                     f"{fmt_num(hl['statistic'], 2)} on {hl['df']} degrees of freedom, p-value "
+                     f"{fmt_p(hl['p_value'])}."), Para(hl["note"], "note"))
+    rep.add(Para(f"Pseudo R-squared: McFadden {fmt_num(a['mcfadden_r2'], 3)}, Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, "
+                 f"Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, Tjur {fmt_num(a['tjur_r2'], 3)}."))
+    v = record.get("validation")
+    if v and not frozen:
+        rep.add(Heading("Corrected for optimism (bootstrap)", 3))
+        rep.add(Para(f"Refitting the model in {v.get('completed')} bootstrap resamples (Efron's optimism "
+                     f"correction): area under the ROC curve {fmt_num(v.get('auc_apparent'), 3)} on the records "
+                     f"themselves, {fmt_num(v.get('auc_corrected'), 3)} after correction; calibration slope "
+                     f"{fmt_num(v.get('calibration_slope_corrected'), 3)} after correction (below 1 means the "
+                     f"model's risks will be too extreme on new patients); Brier score "
+                     f"{fmt_num(v.get('brier_corrected'), 4)} after correction."))
+    c = a.get("classification")
+    if c:
+        k = c["counts"]
+        prot = protect_table([[k["true_positives"], k["false_negatives"]],
+                              [k["false_positives"], k["true_negatives"]]], threshold)
+        s = prot.as_text()
+        rep.add(Heading(f"At a risk threshold of {c['threshold']:g}", 3))
+        rep.add(Table(["", "flagged (risk at or above the threshold)", "not flagged", "total"],
+                      [["events", *s[0]], ["non-events", *s[1]], ["total", *s[2]]]))
+        if prot.any_hidden:
+            rep.add(Para("Sensitivity, specificity and predictive values are not shown because some counts of "
+                         "the table are suppressed and they would reveal them.", "note"))
+        else:
+            rep.add(Para(f"Sensitivity {fmt_num(c['sensitivity'], 3)}, specificity {fmt_num(c['specificity'], 3)}, "
+                         f"positive predictive value {fmt_num(c['ppv'], 3)}, negative predictive value "
+                         f"{fmt_num(c['npv'], 3)}."))
+        rep.add(Para(c["note"], "note"))
+    if frozen:
+        return
+    if a.get("vif"):
+        flagged = [v["column"] for v in a["vif"] if v.get("flagged")]
+        rows = [[v["column"], fmt_num(v["value"], 2), str(v["df"])] for v in a["vif"]]
+        rep.add(Heading("Overlap between predictors", 3))
+        rep.add(Table(["predictor", "variance inflation", "degrees of freedom"], rows,
+                      caption="Generalised variance inflation (Fox & Monette 1992), squared to the scale of an "
+                              "ordinary variance inflation factor; above 10 (common practice) the estimates are "
+                              "unstable because the predictors overlap."
+                              + (f" Above 10: {', '.join(flagged)}." if flagged else " None is above 10.")))
+    ss = a.get("sample_size")
+    rep.add(Heading("Sample size", 3))
+    epp = record["events_per_parameter"]
+    text = (f"{fmt_num(epp, 1)} of the rarer outcome per coefficient besides the intercept; fewer than 10 "
+            "(a rule of thumb, Peduzzi et al. 1996) warns of unstable estimates.")
+    if ss:
+        text += (f" The criteria of Riley et al. (2020), with this model's own Cox-Snell R-squared, ask for at least "
+                 f"{ss['n_minimum']:,} records for {ss['parameters']} coefficients; this analysis used "
+                 f"{record['rows_used']:,}"
+                 + (", fewer than needed, so expect the model to look better here than on new patients."
+                    if record["rows_used"] < ss["n_minimum"] else "."))
+    rep.add(Para(text))
+    _influence_section(rep, assessment, record, threshold, include_records)
+
+
+def _influence_section(rep: Report, assessment, record: dict, threshold: int, include_records: bool) -> None:
+    infl = assessment.influence
+    rep.add(Heading("Influential records", 3))
+    if infl is None:
+        rep.add(Para("Influence could not be computed for this fit."))
+        return
+    d = np.asarray(infl.cooks_distance, dtype=float)
+    n = len(d)
+    cut = COOKS_RULE / n if n else float("nan")
+    above = int(np.sum(d > cut))
+    largest = float(np.nanmax(d)) if n and np.isfinite(d).any() else float("nan")
+    count = show_count(above, threshold)
+    rep.add(Para(f"Records with a Cook's distance above 4/n = {fmt_num(cut, 5)} (a rule of thumb, common practice; "
+                 f"Cook 1977): {count} of {n:,}. The largest Cook's distance is {fmt_num(largest, 4)}. "
+                 "Records above the rule are worth checking for data errors; they are not to be removed for "
+                 "being influential alone."))
+    if include_records:
+        top = assessment.influential(10)
+        if top:
+            rep.add(Table(["row of the data file", "Cook's distance", "leverage"],
+                          [[str(r["row"]), fmt_num(r["cooks_distance"], 4), fmt_num(r["leverage"], 4)] for r in top],
+                          "lrr", "The ten records with the largest Cook's distance, listed because the report "
+                                 "was asked to include record numbers."))
+
+
+def _clean_notices(notices: list[dict], record: dict, threshold: int) -> list[str]:
+    """The warnings' messages, with the row-count message rebuilt so that small counts stay hidden."""
+    out = []
+    for n in notices:
+        if n["code"] == "rows_dropped" and "missing_by_column" in record:
+            left = record["rows_read"] - record["rows_used"]
+            parts = [f"{show_count(record['rows_missing_outcome'], threshold)} with no outcome"] \
+                if record["rows_missing_outcome"] else []
+            parts += [f"{show_count(k, threshold)} missing '{c}'" for c, k in record["missing_by_column"].items() if k]
+            msg = (f"{show_count(left, threshold)} rows were left out ({'; '.join(parts) or 'missing values'}); "
+                   "results describe the complete rows only.")
+            if msg not in out:
+                out.append(msg)
+        elif n["message"] not in out:
+            out.append(n["message"])
+    return out
+
+
+def _methods(rep: Report, record: dict, frozen: bool, firth: bool, profile: bool, ladder: bool) -> None:
+    refs = ["statsmodels", "delong", "vancalster", "wilson", "hl"]
+    rep.add(Heading("Methods"))
+    if frozen:
+        text = ("A logistic model saved earlier was applied, unchanged, to these records: its coefficients and the "
+                "coding of each predictor (the same reference groups) were reused and nothing was refitted. ")
+    elif firth:
+        text = ("The model is a logistic regression fitted by Firth's penalised likelihood (Firth 1993), which "
+                "keeps estimates finite when a predictor separates the outcome; its tests are penalised "
+                "likelihood-ratio tests (Heinze & Schemper 2002) and its predicted risks have the intercept "
+                "corrected so that they average to the event rate (Puhr et al. 2017). ")
+        refs += ["firth", "heinze", "puhr"]
+    else:
+        text = ("The model is a logistic regression fitted by maximum likelihood (Newton's method, with the "
+                "statsmodels library). ")
+    if not frozen:
+        text += ("Each coefficient is tested by its Wald z statistic and given a 95% Wald interval for its odds "
+                 "ratio; the groups of a categorical predictor are tested together by a joint Wald test; the model "
+                 "as a whole, each predictor, and any smaller model are tested by likelihood-ratio tests (twice the "
+                 "difference in log-likelihood, against a chi-square distribution). ")
+        if profile:
+            text += "Profile-likelihood intervals (Venzon & Moolgavkar 1988) are given beside the Wald ones. "
+            refs.append("venzon")
+        if ladder:
+            text += "All models tried were fitted on the same rows, so that nested ones can be compared. "
+    text += ("Discrimination is the area under the ROC curve with the standard error of DeLong et al. (1988); "
+             "calibration is shown by observed against predicted risk in groups of predicted risk (Wilson "
+             "intervals), the calibration slope and calibration-in-the-large (Van Calster et al. 2016), the Brier "
+             "score and the Hosmer-Lemeshow test (Hosmer & Lemeshow 1980). ")
+    if not frozen:
+        text += ("The number of events per coefficient is compared with the rule of thumb of Peduzzi et al. (1996) "
+                 "and the number of records with the criteria of Riley et al. (2020); influence is summarised by "
+                 "Cook's distance (Cook 1977) and overlap between predictors by generalised variance inflation "
+                 "(Fox & Monette 1992); the Wald and likelihood-ratio tests are compared as Hauck & Donner (1977) "
+                 "advise. ")
+        refs += ["peduzzi", "riley", "cook", "fox", "hauck"]
+    text += "Rows with a missing outcome or predictor value were left out (complete-case analysis)."
+    rep.add(Para(text))
+    rep.add(Heading("Sources", 3), Bullets([REFERENCES[k] for k in dict.fromkeys(refs)], "small"))
+
+
+def _closing(rep: Report, record: dict, notices: list[str], threshold: int) -> None:
+    rep.add(Heading("Warnings"))
+    if notices:
+        rep.add(Bullets(notices, "warning"))
+    else:
+        rep.add(Para("None."))
+    rep.add(Heading("Privacy"), Para(suppression_note(threshold)),
+            Para("The report holds aggregate figures only: no values of single records, no identifiers and no "
+                 "dates from the data. Plots show groups and the overall ROC curve, not single records.", "note"))
+    rep.add(Heading("Software"), Table(["program", "version"], _versions(), "ll"))
+    rep.add(Para(record["caution"], "caution"))
+
+
+def _header(record: dict, data_path, frozen: bool) -> Report:
+    from twofold import __version__
+
+    kind = "Saved model applied to new records" if frozen else "Logistic model"
+    title = f"{kind}: {record['outcome']} (event: {record['event']})"
+    when = _dt.date.today().isoformat()
+    sub = f"Written by Twofold {__version__} on {when}."
+    rep = Report(title, sub)
+    if data_path is not None:
+        p = Path(data_path)
+        try:
+            from twofold.core.session import file_sha256
+
+            digest = file_sha256(p)
+        except OSError:
+            digest = "not available"
+        rep.add(Para(f"Data file: {p.name}; SHA-256 checksum {digest} (identifies the exact file analysed).", "small"))
+    rep.add(Para(record["caution"], "caution"))
+    return rep
+
+
+def _as_ladder(result, ladder):
+    if ladder is None or hasattr(ladder, "rungs"):
+        return ladder if ladder is None or len(ladder.rungs) else None
+    from twofold.core.session import ladder_from_lists
+
+    return ladder_from_lists(result.study, ladder, list(result.fit.design.predictors))
+
+
+def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, include_records: bool = False) -> Report:
+    """The content of the report of an analysis, or of a saved model applied to new records.
+
+    Parameters
+    ----------
+    result : AnalysisResult or FrozenResult
+    ladder : Ladder or list of lists of str, optional
+        The models tried (a table of them is added).
+    suppress_below : int
+        Counts of people from 1 up to this number are shown as suppressed
+        (default 10, so 1-10 are hidden; 0 switches suppression off).
+    include_records : bool
+        List the row numbers of the most influential records.
+    """
+    threshold = int(suppress_below)
+    record = result.record
+    frozen = bool(getattr(result, "frozen", False))
+    rep = _header(record, result.data if frozen else result.spec.data, frozen)
+    a = record.get("assessment") or {}
+    if frozen:
+        preds = ", ".join(record["predictors"]) or "no predictors"
+        rep.add(Para(f"The saved model ({record['method']}; predictors: {preds}) was applied without refitting."))
+        _data_section(rep, record, threshold, what="saved model")
+        _assessment_section(rep, a, result.assessment, record, threshold, True, include_records)
+        notices = _clean_notices(record["warnings"] + a.get("notes", []), record, threshold)
+        _methods(rep, record, True, False, False, False)
+        _closing(rep, record, notices, threshold)
+        return rep
+    lad = _as_ladder(result, ladder)
+    _data_section(rep, record, threshold)
+    _describe_predictors(rep, result.fit, threshold)
+    if lad is not None:
+        _ladder_section(rep, lad)
+    _coefficient_section(rep, record, result.fit)
+    if a:
+        _assessment_section(rep, a, result.assessment, record, threshold, False, include_records)
+    notes = list(record["warnings"]) + list(a.get("notes", []))
+    if lad is not None:
+        notes += [n.as_dict() for n in lad.notices]
+    notices = _clean_notices(notes, record, threshold)
+    _methods(rep, record, False, bool(result.spec.firth), any("or_pl_low" in t for t in record["terms"]),
+             lad is not None)
+    _closing(rep, record, notices, threshold)
+    return rep
+
+
+# ---------------------------------------------------------------------------
+# HTML
+# ---------------------------------------------------------------------------
+
+_CSS = """
+body { font-family: system-ui, "Segoe UI", Helvetica, Arial, sans-serif; color: #1d1d1d; max-width: 58em;
+       margin: 2em auto; padding: 0 1.2em; line-height: 1.45; font-size: 15px; }
+h1 { font-size: 1.5em; margin-bottom: 0.2em; }
+h2 { font-size: 1.2em; border-bottom: 1px solid #c9c9c9; padding-bottom: 0.2em; margin-top: 1.8em; }
+h3 { font-size: 1.02em; margin-top: 1.3em; }
+table { border-collapse: collapse; margin: 0.6em 0 0.3em; font-size: 0.9em; }
+th, td { padding: 0.25em 0.7em; border-bottom: 1px solid #e2e2e2; vertical-align: top; }
+th { text-align: left; border-bottom: 1px solid #8a8a8a; font-weight: 600; }
+td.r, th.r { text-align: right; font-variant-numeric: tabular-nums; }
+caption { caption-side: bottom; text-align: left; font-size: 0.85em; color: #555; padding-top: 0.3em; }
+p.note, p.small, ul.small { font-size: 0.88em; color: #444; }
+p.caution { border-left: 4px solid #b07d00; background: #fbf6e9; padding: 0.5em 0.8em; }
+p.warning, ul.warning li { color: #7a2a00; }
+figure { margin: 1em 0; }
+figure img { max-width: 30em; width: 100%; height: auto; }
+figcaption { font-size: 0.85em; color: #555; }
+.subtitle { color: #555; margin-top: 0; }
+@media print { body { max-width: none; margin: 0; } h2 { page-break-after: avoid; } table, figure { page-break-inside: avoid; } }
+"""
+
+
+def render_html(rep: Report) -> str:
+    """The report as one self-contained HTML page (no scripts, links, fonts or external files)."""
+    e = html.escape
+    out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+           f"<title>{e(rep.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
+           f"<h1>{e(rep.title)}</h1>", f'<p class="subtitle">{e(rep.subtitle)}</p>']
+    for b in rep.blocks:
+        if isinstance(b, Heading):
+            out.append(f"<h{b.level}>{e(b.text)}</h{b.level}>")
+        elif isinstance(b, Para):
+            out.append(f'<p class="{b.style}">{e(b.text)}</p>')
+        elif isinstance(b, Bullets):
+            out.append(f'<ul class="{b.style}">' + "".join(f"<li>{e(i)}</li>" for i in b.items) + "</ul>")
+        elif isinstance(b, Table):
+            al = b.alignment()
+            cls = lambda j: ' class="r"' if j < len(al) and al[j] == "r" else ""  # noqa: E731
+            parts = ["<table>"]
+            if b.caption:
+                parts.append(f"<caption>{e(b.caption)}</caption>")
+            parts.append("<thead><tr>" + "".join(f"<th{cls(j)}>{e(h)}</th>" for j, h in enumerate(b.headers))
+                         + "</tr></thead><tbody>")
+            for row in b.rows:
+                parts.append("<tr>" + "".join(f"<td{cls(j)}>{e(str(c))}</td>" for j, c in enumerate(row)) + "</tr>")
+            parts.append("</tbody></table>")
+            out.append("".join(parts))
+        elif isinstance(b, Figure):
+            data = base64.b64encode(_png(b.draw)).decode("ascii")
+            out.append(f'<figure><img src="data:image/png;base64,{data}" alt="{e(b.alt)}">'
+                       f"<figcaption>{e(b.caption)}</figcaption></figure>")
+    out += ["</body>", "</html>"]
+    return "\n".join(out) + "\n"
+
+
+# ---------------------------------------------------------------------------
+# PDF
+# ---------------------------------------------------------------------------
+
+_PAGE_W, _PAGE_H = 8.27 * 72, 11.69 * 72   # A4 in points
+_MARGIN = 54.0
+_STYLES = {  # size, weight, colour
+    "title": (15, "bold", "#1d1d1d"), "h2": (12.5, "bold", "#1d1d1d"), "h3": (10.5, "bold", "#1d1d1d"),
+    "normal": (9, "normal", "#1d1d1d"), "note": (8.3, "normal", "#444444"), "small": (7.8, "normal", "#444444"),
+    "caution": (9, "normal", "#6b4c00"), "warning": (9, "normal", "#7a2a00"), "cell": (7.6, "normal", "#1d1d1d"),
+    "head": (7.6, "bold", "#1d1d1d"), "caption": (7.4, "normal", "#555555"), "footer": (7, "normal", "#777777"),
+}
+
+
+class _Pdf:
+    """A tiny top-to-bottom layout engine on matplotlib figures, one per A4 page."""
+
+    def __init__(self, pages, footer: str):
+        self.pages = pages
+        self.footer = footer
+        self.fig = None
+        self.y = 0.0
+        self.page_no = 0
+        self._fonts = {}
+        self._advance = {}
+        self.new_page()
+
+    # ---- text measurement ---------------------------------------------
+    def width(self, text: str, style: str) -> float:
+        """Width in points: the sum of the glyphs' unhinted advances (kerning ignored, under 1%)."""
+        from matplotlib.font_manager import FontProperties, findfont, get_font
+        from matplotlib.ft2font import LoadFlags
+
+        size, weight, _ = _STYLES[style]
+        font = self._fonts.get((size, weight))
+        if font is None:
+            font = get_font(findfont(FontProperties(family="DejaVu Sans", weight=weight)))
+            self._fonts[(size, weight)] = font
+        total = 0.0
+        for ch in text:
+            key = (ch, size, weight)
+            adv = self._advance.get(key)
+            if adv is None:
+                font.set_size(size, 72)
+                glyph = font.load_char(ord(ch) if ch not in "\n\t" else 32, flags=LoadFlags.NO_HINTING)
+                adv = self._advance[key] = glyph.linearHoriAdvance / 65536.0
+            total += adv
+        return total * 1.01
+
+    def wrap(self, text: str, style: str, width: float) -> list[str]:
+        lines = []
+        for para in str(text).split("\n"):
+            words = para.split(" ")
+            line = ""
+            for word in words:
+                trial = word if not line else f"{line} {word}"
+                if self.width(trial, style) <= width:
+                    line = trial
+                    continue
+                if line:
+                    lines.append(line)
+                # A word longer than the line (a checksum) is cut where it must.
+                while self.width(word, style) > width and len(word) > 1:
+                    k = len(word)
+                    while k > 1 and self.width(word[:k], style) > width:
+                        k -= 1
+                    lines.append(word[:k])
+                    word = word[k:]
+                line = word
+            lines.append(line)
+        return lines
+
+    # ---- pages --------------------------------------------------------
+    def new_page(self):
+        from matplotlib.figure import Figure as MplFigure
+
+        if self.fig is not None:
+            self.finish_page()
+        self.fig = MplFigure(figsize=(_PAGE_W / 72, _PAGE_H / 72))
+        self.page_no += 1
+        self.y = _MARGIN
+
+    def finish_page(self):
+        self.text_at(_MARGIN, _PAGE_H - _MARGIN / 2, f"{self.footer} - page {self.page_no}", "footer")
+        self.pages.savefig(self.fig)
+        self.fig = None
+
+    def need(self, height: float):
+        if self.y + height > _PAGE_H - _MARGIN:
+            self.new_page()
+
+    def text_at(self, x: float, y: float, text: str, style: str, ha="left"):
+        size, weight, colour = _STYLES[style]
+        self.fig.text(x / _PAGE_W, 1 - y / _PAGE_H, text, fontsize=size, fontweight=weight, color=colour,
+                      va="top", ha=ha, family="DejaVu Sans")
+
+    def line(self, x0, x1, y, colour="0.55", width=0.6):
+        from matplotlib.lines import Line2D
+
+        self.fig.add_artist(Line2D([x0 / _PAGE_W, x1 / _PAGE_W], [1 - y / _PAGE_H] * 2, color=colour,
+                                   linewidth=width, transform=self.fig.transFigure))
+
+    # ---- blocks -------------------------------------------------------
+    def paragraph(self, text: str, style: str = "normal", indent: float = 0.0, after: float = 5.0, bullet=False):
+        size = _STYLES[style][0]
+        lh = size * 1.35
+        width = _PAGE_W - 2 * _MARGIN - indent - (10 if bullet else 0)
+        lines = self.wrap(text, style, width)
+        for k, ln in enumerate(lines):
+            self.need(lh)
+            if bullet and k == 0:
+                self.text_at(_MARGIN + indent, self.y, "-", style)
+            self.text_at(_MARGIN + indent + (10 if bullet else 0), self.y, ln, style)
+            self.y += lh
+        self.y += after
+
+    def heading(self, text: str, level: int):
+        style = "h2" if level <= 2 else "h3"
+        size = _STYLES[style][0]
+        self.need(size * 1.4 + 90)  # keep a heading with what follows it
+        self.y += 6 if level <= 2 else 3
+        self.paragraph(text, style, after=2)
+        if level <= 2:
+            self.line(_MARGIN, _PAGE_W - _MARGIN, self.y - 1, "0.7")
+            self.y += 3
+
+    def table(self, t: Table):
+        avail = _PAGE_W - 2 * _MARGIN
+        pad = 6.0
+        ncol = len(t.headers)
+        natural, minimal = [], []
+        al = t.alignment()
+        for j in range(ncol):
+            keep_whole = j < len(al) and al[j] == "r"
+            cells = [(str(t.headers[j]), "head")] + [(str(r[j]), "cell") for r in t.rows]
+            natural.append(max(self.width(c, st) for c, st in cells) + pad + 1.0)
+            # Short cells of number columns ("1.013 to 1.025", "below 0.001") are kept on one line.
+            minimal.append(max(self.width(w, st) for c, st in cells
+                               for w in ([c] if keep_whole and len(c) <= 16 and st == "cell" else c.split(" ")))
+                           + pad + 1.0)
+        if sum(natural) <= avail:
+            widths = natural
+        elif sum(minimal) <= avail:
+            # Every word fits whole; the room left goes to the columns that want it most.
+            spare = avail - sum(minimal)
+            want = [n - m for n, m in zip(natural, minimal)]
+            total = sum(want) or 1.0
+            widths = [m + spare * w / total for m, w in zip(minimal, want)]
+        else:
+            # Short columns (numbers) keep their width; the long-worded ones share the rest and break words.
+            short = [m <= 70.0 for m in minimal]
+            rest = avail - sum(m for m, sh in zip(minimal, short) if sh)
+            long_total = sum(m for m, sh in zip(minimal, short) if not sh) or 1.0
+            widths = [m if sh else max(30.0, m * rest / long_total) for m, sh in zip(minimal, short)]
+        al = t.alignment()
+        lh = _STYLES["cell"][0] * 1.3
+
+        def row_lines(cells, style):
+            out = []
+            for j, c in enumerate(cells):
+                c = str(c)
+                room = max(widths[j] - pad, 10)
+                out.append([c] if len(c) <= 16 and self.width(c, style) <= room + 0.5 else self.wrap(c, style, room))
+            return out
+
+        def draw_row(lines, style):
+            height = max(len(ls) for ls in lines) * lh + 3
+            x = _MARGIN
+            for j, ls in enumerate(lines):
+                for k, ln in enumerate(ls):
+                    if al[j] == "r" if j < len(al) else False:
+                        self.text_at(x + widths[j] - pad / 2, self.y + k * lh, ln, style, ha="right")
+                    else:
+                        self.text_at(x + pad / 2 - 3, self.y + k * lh, ln, style)
+                x += widths[j]
+            self.y += height
+
+        head = row_lines(t.headers, "head")
+        head_h = max(len(ls) for ls in head) * lh + 3
+        total_w = sum(widths)
+
+        def draw_head():
+            draw_row(head, "head")
+            self.line(_MARGIN, _MARGIN + total_w, self.y - 1.5)
+
+        first = row_lines(t.rows[0], "cell") if t.rows else [[""]]
+        self.need(head_h + max(len(ls) for ls in first) * lh + 6)
+        draw_head()
+        for row in t.rows:
+            lines = row_lines(row, "cell")
+            h = max(len(ls) for ls in lines) * lh + 3
+            if self.y + h > _PAGE_H - _MARGIN:
+                self.new_page()
+                draw_head()
+            draw_row(lines, "cell")
+        self.line(_MARGIN, _MARGIN + total_w, self.y - 1.5, "0.8", 0.4)
+        self.y += 3
+        if t.caption:
+            self.paragraph(t.caption, "caption", after=6)
+        else:
+            self.y += 5
+
+    def figure(self, f: Figure):
+        w, h, below = 250.0, 200.0, 34.0   # axes size, and room under them for ticks and the axis label
+        self.need(h + below + 30)
+        bottom = self.y + h
+        ax = self.fig.add_axes([(_MARGIN + 50) / _PAGE_W, 1 - bottom / _PAGE_H, w / _PAGE_W, (h - 10) / _PAGE_H])
+        f.draw(ax)
+        for item in [ax.xaxis.label, ax.yaxis.label] + ax.get_xticklabels() + ax.get_yticklabels():
+            item.set_fontsize(7.5)
+        self.y = bottom + below
+        self.paragraph(f.caption, "caption", after=8)
+
+
+def render_pdf(rep: Report, path: Path) -> None:
+    """Lay the report out on A4 pages and write it as PDF (text kept as text, plots as vector drawings)."""
+    import matplotlib
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    from twofold import __version__
+
+    meta = {"Title": rep.title, "Creator": f"Twofold {__version__}",
+            "Producer": f"Twofold {__version__} with matplotlib {matplotlib.__version__}", "CreationDate": None}
+    # TrueType fonts (type 42) keep the text selectable and searchable.
+    with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}), \
+            PdfPages(path, metadata=meta) as pages:
+        pdf = _Pdf(pages, "Twofold report: " + rep.title)
+        pdf.paragraph(rep.title, "title", after=2)
+        pdf.paragraph(rep.subtitle, "note", after=8)
+        for b in rep.blocks:
+            if isinstance(b, Heading):
+                pdf.heading(b.text, b.level)
+            elif isinstance(b, Para):
+                pdf.paragraph(b.text, b.style)
+            elif isinstance(b, Bullets):
+                for item in b.items:
+                    pdf.paragraph(item, b.style if b.style in _STYLES else "normal", after=2, bullet=True)
+                pdf.y += 4
+            elif isinstance(b, Table):
+                pdf.table(b)
+            elif isinstance(b, Figure):
+                pdf.figure(b)
+        pdf.finish_page()
+
+
+# ---------------------------------------------------------------------------
+# entry point
+# ---------------------------------------------------------------------------
+
+
+def _data_path(result):
+    return result.data if getattr(result, "frozen", False) else result.spec.data
+
+
+def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESHOLD,
+                 include_records: bool = False) -> Path:
+    """Write the report of an analysis as ``.html`` or ``.pdf`` (chosen by the suffix).
+
+    Parameters
+    ----------
+    result : AnalysisResult or FrozenResult
+    path : path
+        Ends in .html/.htm or .pdf.
+    ladder : Ladder or list of lists of str, optional
+    suppress_below : int
+        Counts of 1 up to this many people are suppressed (default 10).
+    include_records : bool
+        Also list the row numbers of the most influential records.
+
+    Raises
+    ------
+    DataFileError
+        Another suffix, the data file itself as the target, or a folder that
+        cannot be written.
+    """
+    path = Path(os.fspath(path))
+    data = Path(os.fspath(_data_path(result)))
+    try:
+        same = path.exists() and data.exists() and os.path.samefile(path, data)
+    except OSError:
+        same = False
+    if same:
+        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
+                            "so choose another file name.")
+    suffix = path.suffix.lower()
+    if suffix not in (".html", ".htm", ".pdf"):
+        raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{path.suffix or path.name}'; "
+                            "end the file name with .html or .pdf.")
+    rep = build_report(result, ladder=ladder, suppress_below=suppress_below, include_records=include_records)
+    try:
+        if suffix == ".pdf":
+            tmp = path.with_name(f".{path.name}.tmp")
+            try:
+                render_pdf(rep, tmp)
+                os.replace(tmp, path)
+            finally:
+                if tmp.exists():
+                    tmp.unlink()
+        else:
+            from twofold.core.session import atomic_write_text
+
+            atomic_write_text(path, render_html(rep))
+    except OSError as exc:
+        raise DataFileError(f"Could not write the report {path} ({exc.strerror}); "
+                            "choose a folder you can write to.") from None
+    return path

@@ -1,0 +1,933 @@
+"""Session files: one analysis saved as plain JSON, read back with strict checks.
+
+A session file is Twofold's own format, JSON text only (never pickle or any
+other format that can run code when read).  Its fields:
+
+``format``           always ``"twofold-session"``
+``schema_version``   1
+``saved_by``         Twofold version that wrote it
+``saved_at``         UTC time of saving (ISO 8601)
+``data``             path of the data file (relative paths are relative to
+                     the session file's folder); the data file is only ever
+                     read
+``data_sha256``      SHA-256 of the data file when saved
+``data_rows``        data rows it had
+``sheet``            workbook sheet, or null
+``outcome``, ``event``
+``predictors``       the chosen model's predictors
+``smaller``          predictors of the smaller model of the nested test, or null
+``references``       reference level in force for every categorical predictor used
+``roles``            role of every predictor column used, plus the user's changes
+``firth``, ``profile_ci``, ``threshold``   the options
+``splines``          knots (3, 4 or 5) per predictor modelled by a spline
+``interactions``     two-way interactions, each ``"A:B"``
+``validate``, ``seed``   bootstrap repetitions (or null) and their seed
+``ladder``           the models tried, each a list of predictors
+``chosen``           index (from 0) of the chosen model in ``ladder``
+``model``            the chosen model as numbers: ``outcome``, ``event``,
+                     ``method``, ``names``, ``coefficients``, ``covariance``
+                     (null where not estimable) and ``terms`` (per predictor:
+                     ``column``, ``kind``, ``levels``, ``reference``, ``range``,
+                     ``knots`` for a spline, ``of`` for an interaction)
+
+The keys ``data`` ... ``seed`` are those of
+:meth:`~twofold.core.analysis.AnalysisSpec.as_dict`, so a session is a
+superset of the spec it was made from.
+
+:func:`load_session` refuses anything else in one sentence: other types,
+unknown keys, numbers too large or not finite, strings and lists beyond
+generous caps, nesting deeper than the format uses, text that is not JSON.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import math
+import os
+import re
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from twofold.core.errors import ColumnError, DataFileError, Notice
+
+FORMAT = "twofold-session"
+SCHEMA_VERSION = 1
+
+#: Caps that no genuine session comes near.
+MAX_FILE_BYTES = 32 * 1024 * 1024
+MAX_DEPTH = 8            # the format itself nests 5 deep (model -> terms -> term -> range)
+MAX_STRING = 4096        # characters in any string (paths included)
+MAX_NAME = 1000          # characters in a column name or level
+MAX_PREDICTORS = 500
+MAX_LADDER = 500
+MAX_LEVELS = 5000
+MAX_PARAMETERS = 1000
+MAX_INTEGER_DIGITS = 18
+MAX_ABS_NUMBER = 1e300
+MAX_ROWS = 10 ** 12
+
+#: Data files Twofold reads; anything else named as data is refused.
+DATA_SUFFIXES = (".csv", ".tsv", ".tab", ".txt", ".dat", ".xlsx", ".xlsm")
+
+def _spec_keys() -> tuple:
+    """The fields of AnalysisSpec, so a session always carries every one of them."""
+    from dataclasses import fields
+
+    from twofold.core.analysis import AnalysisSpec
+
+    return tuple(f.name for f in fields(AnalysisSpec))
+
+
+def _spec_defaults() -> dict:
+    """Spec fields that have a default, with that default (fresh copies of lists and dicts)."""
+    from dataclasses import MISSING, fields
+
+    from twofold.core.analysis import AnalysisSpec
+
+    out = {}
+    for f in fields(AnalysisSpec):
+        if f.default is not MISSING:
+            out[f.name] = f.default
+        elif f.default_factory is not MISSING:
+            out[f.name] = f.default_factory()
+    return out
+
+
+SPEC_KEYS = _spec_keys()
+#: Spec fields this module checks one by one; any others (added to AnalysisSpec later) get a generic check.
+CHECKED_SPEC_KEYS = ("data", "outcome", "predictors", "event", "smaller", "references", "roles", "sheet", "firth",
+                     "profile_ci", "threshold", "splines", "interactions", "validate", "seed")
+KEYS = ("format", "schema_version", "saved_by", "saved_at",
+        *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model")
+TERM_KEYS = ("column", "kind", "levels", "reference", "range", "knots", "of")
+ROLE_VALUES = ("numeric", "binary", "categorical", "identifier", "date", "excluded")
+
+
+class SessionFileError(DataFileError):
+    """A session file that cannot be used, explained in one sentence."""
+
+
+# ---------------------------------------------------------------------------
+# making a session
+# ---------------------------------------------------------------------------
+
+
+def file_sha256(path) -> str:
+    """SHA-256 of a file's bytes, read in chunks (the file is opened read-only)."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def _rungs_of(ladder) -> list[list[str]]:
+    if ladder is None:
+        return []
+    rungs = getattr(ladder, "rungs", ladder)
+    return [list(getattr(r, "predictors", r)) for r in rungs]
+
+
+def session_from_result(result, ladder=None) -> dict:
+    """The session of an analysis (an :class:`~twofold.core.analysis.AnalysisResult`).
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    ladder : Ladder or list of lists of str, optional
+        The models tried; default: the smaller model (when there is one) and
+        the chosen one.  The chosen model is added if the ladder lacks it.
+
+    Returns
+    -------
+    dict
+        The session, ready for :func:`save_session`.
+    """
+    from twofold import __version__
+    from twofold.core.predict import frozen_model
+    from twofold.core.summary import plain_value
+
+    spec, study, fit = result.spec, result.study, result.fit
+    data = Path(os.fspath(spec.data)).resolve()
+    predictors = list(fit.design.predictors)
+    smaller = None if spec.smaller is None else [study.column(p) for p in spec.smaller]
+    rungs = _rungs_of(ladder)
+    if not rungs:
+        rungs = ([smaller] if smaller is not None else []) + [predictors]
+    chosen = next((i for i, r in enumerate(rungs) if r == predictors), None)
+    if chosen is None:
+        chosen = next((i for i, r in enumerate(rungs) if set(r) == set(predictors)), None)
+    if chosen is None:
+        rungs.append(predictors)
+        chosen = len(rungs) - 1
+    used = [p for p in dict.fromkeys([p for r in rungs for p in r] + predictors) if ":" not in p]
+    references = {str(k): plain_value(v) for k, v in spec.references.items()}
+    for name in used:
+        block = study.block(name, linear=True)
+        if block.kind == "factor":
+            references[name] = plain_value(block.reference)
+    roles = {str(k): str(getattr(v, "value", v)) for k, v in spec.roles.items()}
+    columns = study.columns
+    for name in used:
+        roles[name] = columns[name].role.value
+    model = frozen_model(fit, study.outcome, study.event)
+    session = {
+        "format": FORMAT,
+        "schema_version": SCHEMA_VERSION,
+        "saved_by": f"twofold {__version__}",
+        "saved_at": _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
+        "data": str(data),
+        "outcome": study.outcome,
+        "predictors": predictors,
+        "event": plain_value(study.event),
+        "smaller": smaller,
+        "references": references,
+        "roles": roles,
+        "sheet": spec.sheet,
+        "firth": bool(spec.firth),
+        "profile_ci": bool(spec.profile_ci),
+        "threshold": None if spec.threshold is None else float(spec.threshold),
+        "splines": {study.column(k): int(v) for k, v in spec.splines.items()},
+        "interactions": [study.column(t) for t in spec.interactions],
+        "validate": None if spec.validate is None else int(spec.validate),
+        "seed": None if spec.seed is None else int(spec.seed),
+        "data_sha256": file_sha256(data),
+        "data_rows": int(study.n_rows),
+        "ladder": rungs,
+        "chosen": int(chosen),
+        "model": model.as_dict(),
+    }
+    for key, value in spec.as_dict().items():
+        # Fields added to AnalysisSpec after this module was written are carried as they are.
+        session.setdefault(key, value)
+    validate_session(session)
+    return session
+
+
+def spec_from_session(session: dict, data=None):
+    """The :class:`~twofold.core.analysis.AnalysisSpec` a session describes.
+
+    Parameters
+    ----------
+    session : dict
+        As returned by :func:`load_session` or :func:`session_from_result`.
+    data : path, optional
+        Another data file with the same columns (default: the session's own).
+    """
+    from twofold.core.analysis import AnalysisSpec
+
+    return AnalysisSpec(
+        data=str(data if data is not None else session["data"]),
+        outcome=session["outcome"],
+        predictors=list(session["predictors"]),
+        event=session["event"],
+        smaller=None if session["smaller"] is None else list(session["smaller"]),
+        references=dict(session["references"]),
+        roles=dict(session["roles"]),
+        sheet=session["sheet"],
+        firth=session["firth"],
+        profile_ci=session["profile_ci"],
+        threshold=session["threshold"],
+        splines=dict(session["splines"]),
+        interactions=list(session["interactions"]),
+        validate=session["validate"],
+        seed=session["seed"],
+        **{k: session[k] for k in SPEC_KEYS if k not in CHECKED_SPEC_KEYS and k in session},
+    )
+
+
+def frozen_from_session(session: dict):
+    """The saved model of a session as a :class:`~twofold.core.predict.FrozenModel`."""
+    from twofold.core.predict import FrozenModel
+
+    return FrozenModel.from_dict(session["model"])
+
+
+def ladder_from_lists(study, rungs, chosen=None):
+    """A :class:`~twofold.core.ladder.Ladder` of the given models fitted on ``study``, on common rows.
+
+    ``chosen`` (a predictor list) becomes the current model when it is one of
+    the rungs; otherwise the last rung is.
+    """
+    from twofold.core.ladder import Ladder
+
+    ladder = Ladder(study)
+    for rung in rungs:
+        ladder.add(list(rung))
+    if chosen is not None:
+        for i, rung in enumerate(ladder.rungs):
+            if list(rung.predictors) == list(chosen) or set(rung.predictors) == set(chosen):
+                ladder.select(i)
+                break
+    return ladder
+
+
+def session_columns(session: dict) -> list[str]:
+    """Every column a session names, outcome first."""
+    names = [session["outcome"], *session["predictors"], *(session["smaller"] or [])]
+    for rung in session["ladder"]:
+        names.extend(rung)
+    names.extend(session["references"])
+    names.extend(session["roles"])
+    names.extend(t["column"] for t in session["model"]["terms"])
+    names.extend(session["splines"])
+    out = []
+    for name in names:
+        # An interaction names two columns.
+        out.extend(part.strip() for part in name.split(":")) if ":" in name else out.append(name)
+    return list(dict.fromkeys(out))
+
+
+def check_data(session: dict, path=None, frame=None) -> list[Notice]:
+    """Notices about a data file against a session.
+
+    ``data_changed`` when its SHA-256 differs from the saved one ("the data
+    file changed since the session was saved"), and one ``column_missing``
+    per column the session names that the file lacks.
+
+    Parameters
+    ----------
+    session : dict
+    path : path, optional
+        The data file (default: the session's own).
+    frame : pandas.DataFrame, optional
+        The file already read (saves reading it again for its columns).
+    """
+    path = Path(os.fspath(path if path is not None else session["data"]))
+    require_data_file(path)
+    notices = []
+    if file_sha256(path) != session["data_sha256"]:
+        notices.append(Notice(
+            "data_changed",
+            f"The data file changed since the session was saved ({path.name} had {session['data_rows']:,} rows "
+            "then), so results can differ from the saved ones.",
+        ))
+    if frame is None:
+        from twofold.core.io import read_table
+
+        frame = read_table(path, sheet=session["sheet"]).frame
+    present = {str(c) for c in frame.columns}
+    for name in session_columns(session):
+        if name not in present:
+            notices.append(Notice("column_missing", f"The column '{name}' named in the session is missing from "
+                                  f"{path.name}.", subjects=(name,)))
+    return notices
+
+
+def require_data_file(path: Path) -> Path:
+    """Refuse a data path that is not an ordinary, existing data file (devices, folders, other types)."""
+    if path.suffix.lower() not in DATA_SUFFIXES:
+        raise DataFileError(f"{path} is not a data file Twofold reads (CSV, TSV, TXT or XLSX); "
+                            "choose the data file of the analysis.")
+    try:
+        resolved = path.resolve(strict=True)
+    except (OSError, RuntimeError):
+        raise DataFileError(f"The data file {path} does not exist; give its new place with --data.") from None
+    if not resolved.is_file():
+        raise DataFileError(f"{path} is not an ordinary file; give the data file with --data.")
+    return resolved
+
+
+def missing_columns_error(notices, path) -> ColumnError | None:
+    """One ColumnError naming every missing column among ``notices``, or None."""
+    names = [n.subjects[0] for n in notices if n.code == "column_missing"]
+    if not names:
+        return None
+    shown = ", ".join(f"'{c}'" for c in names[:8]) + (" ..." if len(names) > 8 else "")
+    return ColumnError(f"{Path(path).name} lacks {'the column' if len(names) == 1 else 'the columns'} {shown} that "
+                       "the saved analysis uses; rename them back or choose an extract with the same columns.")
+
+
+# ---------------------------------------------------------------------------
+# writing
+# ---------------------------------------------------------------------------
+
+
+def _umask() -> int:
+    """The process umask, read without changing it where the system allows (Linux), else 0o022."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    return 0o022
+
+
+def atomic_write_text(path, text: str, private: bool = False) -> None:
+    """Write through a temporary file in the same folder, then os.replace: never a half-written file.
+
+    The file gets ordinary permissions (0o666 less the umask), or owner-only
+    ones when ``private`` (autosaves).
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if not sys.platform.startswith("win"):
+            os.chmod(tmp, 0o600 if private else 0o666 & ~_umask())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def save_session(session: dict, path) -> Path:
+    """Write a session file atomically (temporary file, then ``os.replace``).
+
+    A data path inside the session file's folder is written relative to it,
+    so the folder can be moved as a whole.
+
+    Raises
+    ------
+    SessionFileError
+        When the session is not valid, or ``path`` is the data file.
+    DataFileError
+        When the folder cannot be written.
+    """
+    path = Path(os.fspath(path))
+    validate_session(session)
+    data = Path(session["data"])
+    if _same_file(path, data) or (not data.is_absolute() and _same_file(path, path.parent / data)):
+        raise SessionFileError(f"{path} is the data file itself; Twofold never writes to the data, "
+                               "so choose another file name for the session.")
+    out = dict(session)
+    try:
+        rel = data.resolve().relative_to(path.parent.resolve())
+        out["data"] = rel.as_posix()
+    except (ValueError, OSError):
+        pass
+    text = json.dumps(out, indent=1, ensure_ascii=False, allow_nan=False)
+    try:
+        atomic_write_text(path, text + "\n")
+    except OSError as exc:
+        raise DataFileError(f"Could not write the session file {path} ({exc.strerror}); "
+                            "choose a folder you can write to.") from None
+    return path
+
+
+# ---------------------------------------------------------------------------
+# reading, strictly
+# ---------------------------------------------------------------------------
+
+
+def _bad(path, what: str) -> SessionFileError:
+    return SessionFileError(f"The session file {Path(path).name} cannot be used: {what}; "
+                            "open the data file and save the session again from Twofold.")
+
+
+def _max_depth(text: str) -> int:
+    """Deepest nesting of [ and { outside strings, without recursion."""
+    stripped = re.sub(r'"(?:[^"\\]|\\.)*"', '""', text)
+    brackets = np.frombuffer(re.sub(r"[^\[\]{}]", "", stripped).encode("ascii"), dtype=np.uint8)
+    if not brackets.size:
+        return 0
+    step = np.where((brackets == ord("[")) | (brackets == ord("{")), 1, -1)
+    return int(np.cumsum(step).max())
+
+
+def _parse(text: str, path) -> object:
+    def no_constant(name):
+        raise _bad(path, f"it holds {name}, which is not a number")
+
+    def checked_int(digits: str):
+        if len(digits.lstrip("-")) > MAX_INTEGER_DIGITS:
+            raise _bad(path, f"it holds a whole number of {len(digits.lstrip('-'))} digits, far too large")
+        return int(digits)
+
+    def checked_float(s: str):
+        x = float(s)
+        if not math.isfinite(x) or abs(x) > MAX_ABS_NUMBER:
+            raise _bad(path, f"it holds the number {s[:30]}, which is too large")
+        return x
+
+    def no_duplicates(pairs):
+        out = {}
+        for k, v in pairs:
+            if k in out:
+                raise _bad(path, f"the key '{k[:40]}' appears twice")
+            out[k] = v
+        return out
+
+    return json.loads(text, parse_constant=no_constant, parse_int=checked_int, parse_float=checked_float,
+                      object_pairs_hook=no_duplicates)
+
+
+def load_session(path) -> dict:
+    """Read and check a session file; nothing in it is ever run.
+
+    Relative data paths are resolved against the session file's folder.  The
+    data file itself is not opened here.
+
+    Raises
+    ------
+    SessionFileError
+        With one sentence saying what is wrong, for any file that is not a
+        valid session of this schema version.
+    """
+    path = Path(os.fspath(path))
+    if not path.is_file():
+        raise SessionFileError(f"The session file {path} does not exist or is not a file; check the name and folder.")
+    size = path.stat().st_size
+    if size > MAX_FILE_BYTES:
+        raise _bad(path, f"it is {size / 1e6:.0f} MB, far larger than any session")
+    with open(path, "rb") as fh:
+        raw = fh.read(MAX_FILE_BYTES + 1)
+    if raw[:2] in (b"\x80\x02", b"\x80\x03", b"\x80\x04", b"\x80\x05") or raw[:1] == b"\x80":
+        raise _bad(path, "it is a Python pickle, which Twofold never reads because loading one can run code")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise _bad(path, "it is not text (a session is JSON text)") from None
+    if not text.strip():
+        raise _bad(path, "it is empty")
+    if _max_depth(text) > MAX_DEPTH:
+        raise _bad(path, f"it nests lists or objects more than {MAX_DEPTH} deep, which no session does")
+    try:
+        session = _parse(text, path)
+    except SessionFileError:
+        raise
+    except (ValueError, RecursionError) as exc:
+        where = f" (line {exc.lineno}, column {exc.colno})" if isinstance(exc, json.JSONDecodeError) else ""
+        raise _bad(path, f"it is not valid JSON{where}") from None
+    validate_session(session, path)
+    data = Path(session["data"])
+    if not data.is_absolute():
+        session["data"] = str((path.parent / data).resolve())
+    return session
+
+
+def _type_name(v) -> str:
+    return {str: "text", bool: "true/false", int: "a number", float: "a number", list: "a list",
+            dict: "an object", type(None): "null"}.get(type(v), type(v).__name__)
+
+
+class _Checker:
+    """Checks one session, raising one sentence at the first problem."""
+
+    def __init__(self, path):
+        self.path = path or "(unsaved)"
+
+    def fail(self, what):
+        raise _bad(self.path, what)
+
+    def text(self, v, where, cap=MAX_STRING, empty=False):
+        if not isinstance(v, str):
+            self.fail(f"'{where}' should be text, not {_type_name(v)}")
+        if len(v) > cap:
+            self.fail(f"'{where}' is {len(v):,} characters long, more than the {cap:,} allowed")
+        if not empty and not v.strip():
+            self.fail(f"'{where}' is empty")
+        if "\x00" in v:
+            self.fail(f"'{where}' holds a NUL character")
+        return v
+
+    def name(self, v, where):
+        if not isinstance(v, str):
+            self.fail(f"{where} should be a column name (text), not {_type_name(v)}")
+        return self.text(v, where, MAX_NAME)
+
+    def names(self, v, where, cap=MAX_PREDICTORS, empty_ok=True):
+        if not isinstance(v, list):
+            self.fail(f"'{where}' should be a list of column names, not {_type_name(v)}")
+        if len(v) > cap:
+            self.fail(f"'{where}' lists {len(v):,} items, more than the {cap:,} allowed")
+        if not v and not empty_ok:
+            self.fail(f"'{where}' is empty")
+        for item in v:
+            self.name(item, f"an entry of '{where}'")
+        if len(set(v)) != len(v):
+            self.fail(f"'{where}' names a column twice")
+        return v
+
+    def value(self, v, where, allow_none=True):
+        """An outcome value or level: text, a finite number or (when allowed) null."""
+        if v is None and allow_none:
+            return v
+        if isinstance(v, bool) or not isinstance(v, (str, int, float)):
+            self.fail(f"'{where}' should be text or a number, not {_type_name(v)}")
+        if isinstance(v, str):
+            self.text(v, where, MAX_NAME, empty=True)
+        return v
+
+    def boolean(self, v, where):
+        if not isinstance(v, bool):
+            self.fail(f"'{where}' should be true or false, not {_type_name(v)}")
+        return v
+
+    def integer(self, v, where, low, high):
+        if isinstance(v, bool) or not isinstance(v, int):
+            self.fail(f"'{where}' should be a whole number, not {_type_name(v)}")
+        if not low <= v <= high:
+            self.fail(f"'{where}' is {v}, outside {low} to {high}")
+        return v
+
+    def number(self, v, where, allow_none=False):
+        if v is None and allow_none:
+            return v
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            self.fail(f"'{where}' should be a number, not {_type_name(v)}")
+        if not math.isfinite(float(v)) or abs(float(v)) > MAX_ABS_NUMBER:
+            self.fail(f"'{where}' is not an ordinary finite number")
+        return v
+
+    def obj(self, v, where):
+        if not isinstance(v, dict):
+            self.fail(f"'{where}' should be an object, not {_type_name(v)}")
+        return v
+
+
+def validate_session(session, path=None) -> dict:
+    """Check every field of a session (types, sizes, consistency); raise SessionFileError at the first problem."""
+    c = _Checker(path)
+    if not isinstance(session, dict):
+        c.fail(f"it holds {_type_name(session)} where a session object was expected")
+    if session.get("format") != FORMAT:
+        if "format" not in session:
+            c.fail("it has no 'format' marker, so it is not a Twofold session")
+        c.fail(f"its format is {str(session.get('format'))[:40]!r}, not a Twofold session")
+    version = session.get("schema_version")
+    if isinstance(version, bool) or not isinstance(version, int):
+        c.fail(f"'schema_version' should be a whole number, not {_type_name(version)}")
+    if version != SCHEMA_VERSION:
+        if isinstance(version, int) and version > SCHEMA_VERSION:
+            raise SessionFileError(f"The session file {Path(path or '(unsaved)').name} has schema version {version}, "
+                                   f"newer than this Twofold reads ({SCHEMA_VERSION}); update Twofold to open it.")
+        c.fail(f"its schema version {version} is not one Twofold knows")
+    unknown = [k for k in session if k not in KEYS]
+    for key, default in _spec_defaults().items():
+        # A spec option added after a session was written takes its default (no effect).
+        session.setdefault(key, default)
+    if unknown:
+        c.fail(f"it has the unknown field '{str(unknown[0])[:40]}'")
+    missing = [k for k in KEYS if k not in session]
+    if missing:
+        c.fail(f"the field '{missing[0]}' is missing")
+
+    c.text(session["saved_by"], "saved_by", 200)
+    c.text(session["saved_at"], "saved_at", 100)
+    data = c.text(session["data"], "data")
+    if re.match(r"^[a-zA-Z][a-zA-Z0-9+.-]*://", data) or data.lower().startswith(("file:", "data:")):
+        c.fail("'data' is a web address or URL, but the data must be a file on this computer")
+    if Path(data).suffix.lower() not in DATA_SUFFIXES:
+        c.fail(f"'data' names {Path(data).name[:60]!r}, which is not a data file Twofold reads (CSV, TSV, TXT or XLSX)")
+    sha = c.text(session["data_sha256"], "data_sha256", 64)
+    if not re.fullmatch(r"[0-9a-f]{64}", sha):
+        c.fail("'data_sha256' is not a SHA-256 checksum")
+    c.integer(session["data_rows"], "data_rows", 0, MAX_ROWS)
+    if session["sheet"] is not None:
+        c.text(session["sheet"], "sheet", MAX_NAME)
+    outcome = c.name(session["outcome"], "'outcome'")
+    predictors = c.names(session["predictors"], "predictors")
+    c.value(session["event"], "event")
+    if session["smaller"] is not None:
+        smaller = c.names(session["smaller"], "smaller")
+        extra = [p for p in smaller if p not in predictors]
+        if extra:
+            c.fail(f"the smaller model's '{extra[0][:60]}' is not among the predictors")
+    refs = c.obj(session["references"], "references")
+    if len(refs) > MAX_PREDICTORS:
+        c.fail("'references' has more entries than allowed")
+    for k, v in refs.items():
+        c.name(k, "a key of 'references'")
+        c.value(v, f"references of {k[:60]}", allow_none=False)
+    roles = c.obj(session["roles"], "roles")
+    if len(roles) > MAX_PREDICTORS:
+        c.fail("'roles' has more entries than allowed")
+    for k, v in roles.items():
+        c.name(k, "a key of 'roles'")
+        if v not in ROLE_VALUES:
+            c.fail(f"the role of '{k[:60]}' is {str(v)[:40]!r}, not one of {', '.join(ROLE_VALUES)}")
+    c.boolean(session["firth"], "firth")
+    c.boolean(session["profile_ci"], "profile_ci")
+    if session["threshold"] is not None:
+        t = c.number(session["threshold"], "threshold")
+        if not 0 < t < 1:
+            c.fail("'threshold' should be a risk between 0 and 1")
+    splines = c.obj(session["splines"], "splines")
+    if len(splines) > MAX_PREDICTORS:
+        c.fail("'splines' has more entries than allowed")
+    for k, v in splines.items():
+        c.name(k, "a key of 'splines'")
+        if isinstance(v, bool) or v not in (3, 4, 5):
+            c.fail(f"the spline of '{k[:60]}' should have 3, 4 or 5 knots")
+    interactions = c.names(session["interactions"], "interactions")
+    for t in interactions:
+        if len([part for part in t.split(":") if part.strip()]) != 2:
+            c.fail(f"the interaction {t[:60]!r} should name two predictors as A:B")
+    if session["validate"] is not None:
+        c.integer(session["validate"], "validate", 1, 100_000)
+    if session["seed"] is not None:
+        c.integer(session["seed"], "seed", -(2 ** 63), 2 ** 63 - 1)
+    for key in SPEC_KEYS:
+        if key not in CHECKED_SPEC_KEYS:
+            _plain_json(c, session[key], key)
+    ladder = session["ladder"]
+    if not isinstance(ladder, list):
+        c.fail(f"'ladder' should be a list of models, not {_type_name(ladder)}")
+    if not ladder or len(ladder) > MAX_LADDER:
+        c.fail(f"'ladder' should list between 1 and {MAX_LADDER} models")
+    for rung in ladder:
+        c.names(rung, "ladder")
+    chosen = c.integer(session["chosen"], "chosen", 0, len(ladder) - 1)
+    if set(ladder[chosen]) != set(predictors):
+        c.fail("the chosen model of the ladder does not have the session's predictors")
+    if outcome in predictors:
+        c.fail("the outcome is also listed as a predictor")
+    _validate_model(c, session["model"], outcome, predictors)
+    return session
+
+
+def _plain_json(c: _Checker, value, where: str) -> None:
+    """A generic check for spec fields without a dedicated one: plain JSON within the caps."""
+    if value is None or isinstance(value, bool):
+        return
+    if isinstance(value, (int, float)):
+        c.number(value, where)
+    elif isinstance(value, str):
+        c.text(value, where, empty=True)
+    elif isinstance(value, list):
+        if len(value) > MAX_LEVELS:
+            c.fail(f"'{where}' lists more items than allowed")
+        for v in value:
+            _plain_json(c, v, where)
+    elif isinstance(value, dict):
+        if len(value) > MAX_LEVELS:
+            c.fail(f"'{where}' has more entries than allowed")
+        for k, v in value.items():
+            c.text(k, f"a key of '{where}'", MAX_NAME)
+            _plain_json(c, v, where)
+    else:
+        c.fail(f"'{where}' holds {_type_name(value)}")
+
+
+def _validate_model(c: _Checker, model, outcome, predictors) -> None:
+    c.obj(model, "model")
+    keys = ("outcome", "event", "method", "names", "coefficients", "covariance", "terms")
+    extra = [k for k in model if k not in keys]
+    if extra:
+        c.fail(f"the model has the unknown field '{str(extra[0])[:40]}'")
+    absent = [k for k in keys if k not in model]
+    if absent:
+        c.fail(f"the model's field '{absent[0]}' is missing")
+    if c.name(model["outcome"], "the model's 'outcome'") != outcome:
+        c.fail("the model's outcome is not the session's outcome")
+    c.value(model["event"], "the model's event")
+    c.text(model["method"], "the model's method", 100)
+    names = model["names"]
+    if not isinstance(names, list) or not names or len(names) > MAX_PARAMETERS:
+        c.fail(f"the model's 'names' should list 1 to {MAX_PARAMETERS} coefficients")
+    for n in names:
+        c.text(n, "a coefficient name", 2 * MAX_NAME + 2)
+    if names[0] != "intercept":
+        c.fail("the model's first coefficient is not the intercept")
+    k = len(names)
+    coef = model["coefficients"]
+    if not isinstance(coef, list) or len(coef) != k:
+        c.fail("the model's 'coefficients' do not match its names")
+    for v in coef:
+        c.number(v, "a coefficient", allow_none=True)
+    cov = model["covariance"]
+    if not isinstance(cov, list) or len(cov) != k:
+        c.fail("the model's 'covariance' is not a square table matching its coefficients")
+    for row in cov:
+        if not isinstance(row, list) or len(row) != k:
+            c.fail("the model's 'covariance' is not a square table matching its coefficients")
+        for v in row:
+            c.number(v, "a covariance entry", allow_none=True)
+    terms = model["terms"]
+    if not isinstance(terms, list) or len(terms) > MAX_PREDICTORS:
+        c.fail("the model's 'terms' should be a list of predictors")
+    made = ["intercept"]
+    seen = {}
+    for t in terms:
+        c.obj(t, "a model term")
+        if set(t) != set(TERM_KEYS):
+            c.fail("a model term does not have exactly the fields " + ", ".join(TERM_KEYS))
+        col = c.text(t["column"], "a model term's column", 2 * MAX_NAME + 1)
+        kind = t["kind"]
+        if kind not in ("numeric", "factor", "spline", "interaction"):
+            c.fail(f"the kind of term '{col[:60]}' should be numeric, factor, spline or interaction")
+        levels = t["levels"]
+        if not isinstance(levels, list) or len(levels) > MAX_LEVELS:
+            c.fail(f"the levels of '{col[:60]}' should be a list of at most {MAX_LEVELS:,} groups")
+        for v in levels:
+            c.value(v, f"a level of '{col[:60]}'", allow_none=kind == "interaction")
+        if kind in ("numeric", "spline"):
+            if t["reference"] is not None or (kind == "numeric" and levels):
+                c.fail(f"the numeric term '{col[:60]}' has groups")
+            rng = t["range"]
+            if rng is not None:
+                if not isinstance(rng, list) or len(rng) != 2:
+                    c.fail(f"the range of '{col[:60]}' should be two numbers")
+                lo, hi = (c.number(v, f"the range of '{col[:60]}'") for v in rng)
+                if lo > hi:
+                    c.fail(f"the range of '{col[:60]}' runs backwards")
+        elif t["range"] is not None:
+            c.fail(f"the term '{col[:60]}' has a range but is not a number")
+        if kind == "spline":
+            knots = t["knots"]
+            if not isinstance(knots, list) or not 3 <= len(knots) <= 5 or len(levels) != len(knots) - 2:
+                c.fail(f"the spline '{col[:60]}' should have 3 to 5 knots and one label per non-linear column")
+            values = [c.number(k, f"a knot of '{col[:60]}'") for k in knots]
+            if any(b <= a for a, b in zip(values, values[1:])):
+                c.fail(f"the knots of '{col[:60]}' are not increasing")
+        elif t["knots"] is not None:
+            c.fail(f"the term '{col[:60]}' has knots but is not a spline")
+        if kind == "factor":
+            c.value(t["reference"], f"the reference of '{col[:60]}'", allow_none=False)
+        if kind == "interaction":
+            of = t["of"]
+            if not isinstance(of, list) or len(of) != 2 or f"{of[0]}:{of[1]}" != col:
+                c.fail(f"the interaction '{col[:60]}' should name its two predictors")
+            if any(seen.get(x) not in ("numeric", "factor", "spline") for x in of):
+                c.fail(f"the interaction '{col[:60]}' comes before or without its predictors")
+            widths = [1 if seen[x] != "factor" else len(next(tt for tt in terms if tt["column"] == x)["levels"])
+                      for x in of]
+            if len(levels) != widths[0] * widths[1]:
+                c.fail(f"the interaction '{col[:60]}' has the wrong number of columns")
+        elif t["of"] is not None:
+            c.fail(f"the term '{col[:60]}' names predictors but is not an interaction")
+        seen[col] = kind
+        if kind == "numeric":
+            made.append(col)
+        elif kind == "spline":
+            made.append(col)
+            made.extend(f"{col}[{lvl}]" for lvl in levels)
+        else:
+            made.extend(col if lvl is None else f"{col}[{lvl}]" for lvl in levels)
+    if [t["column"] for t in terms] != list(predictors):
+        c.fail("the model's terms are not the session's predictors")
+    stray = [n for n in names if n not in made]
+    if stray:
+        c.fail(f"the model names a coefficient '{stray[0][:60]}' that its terms do not make")
+
+
+# ---------------------------------------------------------------------------
+# autosave
+# ---------------------------------------------------------------------------
+
+
+def _autosave_dir() -> Path:
+    from twofold.paths import app_dir
+
+    folder = app_dir() / "autosave"
+    folder.mkdir(parents=True, exist_ok=True)
+    return folder
+
+
+def autosave_path(pid: int | None = None) -> Path:
+    """Where this process (or process ``pid``) keeps its autosaved session."""
+    return _autosave_dir() / f"session-{os.getpid() if pid is None else int(pid)}.json"
+
+
+def _lock_path(pid: int | None = None) -> Path:
+    return _autosave_dir() / f"running-{os.getpid() if pid is None else int(pid)}.lock"
+
+
+def start_autosave() -> Path:
+    """Mark this process as running (a small lock file with its pid); call once at start."""
+    lock = _lock_path()
+    atomic_write_text(lock, json.dumps({"pid": os.getpid(), "started": _dt.datetime.now(
+        _dt.timezone.utc).replace(microsecond=0).isoformat()}) + "\n", private=True)
+    return lock
+
+
+def autosave(session: dict) -> Path:
+    """Save the session to this process's autosave file (atomically), marking the process as running."""
+    if not _lock_path().exists():
+        start_autosave()
+    path = autosave_path()
+    validate_session(session)
+    atomic_write_text(path, json.dumps(session, indent=1, ensure_ascii=False, allow_nan=False) + "\n", private=True)
+    return path
+
+
+def clean_exit() -> None:
+    """On a clean exit: remove this process's autosave and its lock."""
+    for p in (autosave_path(), _lock_path()):
+        try:
+            p.unlink()
+        except FileNotFoundError:
+            pass
+
+
+def _pid_alive(pid: int) -> bool:
+    """Whether a process with this id is running (never sends it a signal that acts)."""
+    if pid <= 0:
+        return False
+    if sys.platform.startswith("win"):
+        import ctypes
+
+        kernel32 = ctypes.windll.kernel32  # type: ignore[attr-defined]
+        handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
+        if not handle:
+            return False
+        try:
+            code = ctypes.c_ulong()
+            ok = kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
+            return bool(ok) and code.value == 259  # STILL_ACTIVE
+        finally:
+            kernel32.CloseHandle(handle)
+    try:
+        os.kill(pid, 0)  # signal 0: existence check only
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def recoverable() -> Path | None:
+    """The newest autosave left by a Twofold process that did not close cleanly, or None.
+
+    An autosave belongs to a live process when that process's lock file is
+    present and the pid is running; those (and this process's own) are left
+    alone.
+    """
+    found = []
+    for p in _autosave_dir().glob("session-*.json"):
+        m = re.fullmatch(r"session-(\d+)\.json", p.name)
+        if not m:
+            continue
+        pid = int(m.group(1))
+        if pid == os.getpid():
+            continue
+        if _lock_path(pid).exists() and _pid_alive(pid):
+            continue
+        found.append(p)
+    if not found:
+        return None
+    return max(found, key=lambda p: p.stat().st_mtime)
+
+
+def discard_autosave(path) -> None:
+    """Remove a recovered (or declined) autosave and the lock of the process that left it."""
+    path = Path(path)
+    m = re.fullmatch(r"session-(\d+)\.json", path.name)
+    targets = [path] + ([_lock_path(int(m.group(1)))] if m else [])
+    for p in targets:
+        try:
+            p.unlink()
+        except FileNotFoundError:
+            pass

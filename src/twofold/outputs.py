@@ -1,0 +1,293 @@
+"""Command-line glue for what an analysis leaves behind: sessions, reports, tables, re-runs, predictions.
+
+``twofold fit ... --session-out/--report/--table-out`` ends in
+:func:`write_fit_outputs`; ``twofold rerun`` and ``twofold predict`` are
+:func:`run_rerun` and :func:`run_predict`.  The work itself is done in
+:mod:`twofold.core.session`, :mod:`twofold.core.report`,
+:mod:`twofold.core.export` and :mod:`twofold.core.predict`.  Errors print one
+sentence on stderr and exit 2; nothing here ever writes to a data file.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+from twofold.cli import EXIT_USAGE, _Parser
+
+def _same_file(a, b) -> bool:
+    try:
+        a, b = Path(a), Path(b)
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except (OSError, TypeError):
+        return False
+
+
+def _refuse_data_targets(outputs, data, session_file=None) -> None:
+    """Refuse any output path that is the data file (or the session file being read)."""
+    from twofold.core.errors import DataFileError
+
+    for out in outputs:
+        if not out or out == "-":
+            continue
+        if _same_file(out, data) or Path(out).resolve() == Path(data).resolve():
+            raise DataFileError(f"{out} is the data file itself; Twofold never writes to the data, "
+                                "so choose another file name.")
+        if session_file is not None and _same_file(out, session_file):
+            raise DataFileError(f"{out} is the session file being read; choose another file name for the output.")
+
+
+def write_fit_outputs(result, session=None, report=None, table=None, ladder=None) -> list[Path]:
+    """Write the session file, the report and the coefficient table of a fit (each optional).
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    session, report, table : path, optional
+        Session file (JSON), report (.html or .pdf), table (.csv or .xlsx).
+    ladder : Ladder or list of lists of str, optional
+        The models tried, kept in the session and shown in the report.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+
+    Raises
+    ------
+    TwofoldError
+        An output path that is the data file, an unknown suffix, a folder that
+        cannot be written.
+    """
+    from twofold.core.errors import DataFileError
+
+    _refuse_data_targets([session, report, table], result.spec.data)
+    # Suffixes are checked before anything is written, so a wrong one leaves no half set of files.
+    if report and Path(report).suffix.lower() not in (".html", ".htm", ".pdf"):
+        raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{Path(report).suffix or report}'; "
+                            "end the file name with .html or .pdf.")
+    if table and Path(table).suffix.lower() not in (".csv", ".xlsx"):
+        raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{Path(table).suffix or table}'; "
+                            "end the file name with .csv or .xlsx.")
+    written = []
+    if session:
+        from twofold.core.session import save_session, session_from_result
+
+        written.append(save_session(session_from_result(result, ladder=ladder), session))
+    if table:
+        from twofold.core.export import export_coefficients
+
+        lad = ladder if ladder is None or hasattr(ladder, "rungs") else None
+        written.append(export_coefficients(result, table, ladder=lad))
+    if report:
+        from twofold.core.report import write_report
+
+        written.append(write_report(result, report, ladder=ladder))
+    return written
+
+
+# ---------------------------------------------------------------------------
+# twofold rerun
+# ---------------------------------------------------------------------------
+
+
+def _rerun_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="twofold rerun",
+                description="Apply a saved analysis to a new extract with the same columns.")
+    p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
+    p.add_argument("--data", metavar="NEW", help="the new extract (default: the session's own data file)")
+    p.add_argument("--frozen", action="store_true",
+                   help="do not refit: apply the saved model unchanged and report how it performs on the new rows")
+    p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
+    p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    return p
+
+
+def _emit_json(record: dict, target: str) -> None:
+    from twofold.core.errors import DataFileError
+
+    text = json.dumps(record, indent=2, ensure_ascii=False, allow_nan=False)
+    if target == "-":
+        sys.stdout.write(text + "\n")
+        return
+    try:
+        Path(target).write_text(text + "\n", encoding="utf-8")
+    except OSError as exc:
+        raise DataFileError(f"Could not write {target} ({exc.strerror}); choose a folder you can write to.") from None
+
+
+def _frozen_text(record: dict, source: str) -> str:
+    from twofold.core.text import fmt_num, fmt_p
+
+    a = record["assessment"]
+    lo, hi = a["auc_ci"]
+    s_lo, s_hi = a["calibration_slope_ci"]
+    i_lo, i_hi = a["calibration_intercept_ci"]
+    lines = [
+        f"Saved model of '{record['outcome']}' applied unchanged to {source} (no refitting)",
+        f"  Rows: {record['rows_read']:,} read, {record['rows_used']:,} used, {record['events']:,} events.",
+        f"  Area under the ROC curve {fmt_num(a['auc'], 3)} (95% interval {fmt_num(lo, 3)} to {fmt_num(hi, 3)}, DeLong).",
+        f"  Calibration slope {fmt_num(a['calibration_slope'], 3)} (95% interval {fmt_num(s_lo, 3)} to {fmt_num(s_hi, 3)}); "
+        f"calibration-in-the-large {fmt_num(a['calibration_intercept'], 3)} ({fmt_num(i_lo, 3)} to {fmt_num(i_hi, 3)}).",
+        f"    {a['calibration_note']}",
+        f"  Brier score {fmt_num(a['brier'], 4)} (scaled {fmt_num(a['scaled_brier'], 3)}).",
+    ]
+    hl = a.get("hosmer_lemeshow")
+    if hl:
+        lines.append(f"  Hosmer-Lemeshow test over {hl['groups']} risk groups: {fmt_num(hl['statistic'], 2)} on {hl['df']} "
+                     f"degrees of freedom, p-value {fmt_p(hl['p_value'])}.")
+    groups = a.get("calibration_groups")
+    if groups:
+        lines.append("  Risk groups (people, mean predicted risk, observed share):")
+        for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
+            lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
+    if record["warnings"]:
+        lines.append("Warnings")
+        lines.extend(f"  - {w['message']}" for w in record["warnings"])
+    lines.append("")
+    lines.append("Caution: " + record["caution"])
+    return "\n".join(lines) + "\n"
+
+
+def _note(message: str) -> None:
+    print(f"twofold: note: {message}", file=sys.stderr)
+
+
+def run_rerun(argv: list[str]) -> int:
+    """``twofold rerun SESSION [--data NEW] [--frozen] [--report PATH] [--json PATH|-]``: returns the exit code."""
+    args = _rerun_parser().parse_args(argv)
+    from twofold.core.errors import TwofoldError
+
+    try:
+        record, source = _rerun(args)
+    except TwofoldError as exc:
+        print(f"twofold: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    if args.json:
+        try:
+            _emit_json(record, args.json)
+        except TwofoldError as exc:
+            print(f"twofold: {exc}", file=sys.stderr)
+            return EXIT_USAGE
+    elif record.get("frozen"):
+        sys.stdout.write(_frozen_text(record, source))
+    else:
+        from twofold.core.text import describe
+
+        sys.stdout.write(describe(record, source))
+    return 0
+
+
+def _rerun(args):
+    from twofold.core import session as ses
+    from twofold.core.io import read_table
+
+    session = ses.load_session(args.session)
+    own = args.data is None
+    data = Path(session["data"] if own else args.data)
+    ses.require_data_file(data)
+    _refuse_data_targets([args.report, args.json], data, session_file=args.session)
+    table = read_table(data, sheet=session["sheet"])
+    notices = ses.check_data(session, data, frame=table.frame)
+    needed = set([session["outcome"], *session["predictors"], *(session["smaller"] or [])])
+    if args.frozen:
+        needed |= {t["column"] for t in session["model"]["terms"]}
+    hard = [n for n in notices if n.code == "column_missing" and n.subjects[0] in needed]
+    error = ses.missing_columns_error(hard, data)
+    if error is not None:
+        raise error
+    for n in notices:
+        if n.code == "data_changed" and own:
+            _note(n.message)
+        elif n.code == "column_missing" and n not in hard:
+            _note(n.message[:-1] + "; the models that use it are left out of the report.")
+    if args.frozen:
+        from twofold.core.predict import evaluate_frozen
+
+        result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
+                                 threshold=session["threshold"])
+        if args.report:
+            from twofold.core.report import write_report
+
+            write_report(result, args.report)
+        return result.record, result.source
+    from twofold.core.analysis import run_analysis
+    from twofold.core.study import Study
+
+    spec = ses.spec_from_session(session, data)
+    study = Study(table)
+    result = run_analysis(spec, study=study)
+    if args.report:
+        from twofold.core.report import write_report
+
+        present = {str(c) for c in table.frame.columns}
+        rungs = [r for r in session["ladder"] if all(c in present for c in r)]
+        ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"]) if len(rungs) > 1 else None
+        write_report(result, args.report, ladder=ladder)
+    return result.record, result.study.source
+
+
+# ---------------------------------------------------------------------------
+# twofold predict
+# ---------------------------------------------------------------------------
+
+
+def _predict_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="twofold predict",
+                description="Predicted risk for one described patient from a saved model.")
+    p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
+    p.add_argument("--value", action="append", default=[], metavar="COLUMN=VALUE",
+                   help="the patient's value of one predictor (repeat for each)")
+    p.add_argument("--json", metavar="PATH|-", help="write the result as JSON to PATH, or to standard output with -")
+    return p
+
+
+def _values(items) -> dict:
+    from twofold.core.errors import ModelError
+
+    out = {}
+    for item in items:
+        if "=" not in item:
+            raise ModelError(f"--value {item!r} should look like COLUMN=VALUE, for example age=70.")
+        column, value = item.split("=", 1)
+        column = column.strip()
+        if column in out:
+            raise ModelError(f"'{column}' is given twice; give each predictor once.")
+        out[column] = value.strip()
+    return out
+
+
+def run_predict(argv: list[str]) -> int:
+    """``twofold predict SESSION --value COLUMN=VALUE ... [--json PATH|-]``: returns the exit code."""
+    args = _predict_parser().parse_args(argv)
+    from twofold.core.errors import TwofoldError
+
+    try:
+        from twofold.core.predict import predict
+        from twofold.core.session import frozen_from_session, load_session
+        from twofold.core.summary import CAUTION, plain_value
+
+        session = load_session(args.session)
+        _refuse_data_targets([args.json], session["data"], session_file=args.session)
+        model = frozen_from_session(session)
+        values = _values(args.value)
+        pred = predict(model, values)
+        record = {**pred.as_dict(), "outcome": model.outcome, "event": plain_value(model.event),
+                  "values": values, "caution": CAUTION}
+        if args.json:
+            _emit_json(record, args.json)
+            return 0
+    except TwofoldError as exc:
+        print(f"twofold: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    from twofold.core.text import fmt_num
+
+    shown = ", ".join(f"{k} = {v}" for k, v in values.items())
+    sys.stdout.write(
+        f"Predicted risk of {model.outcome} = {plain_value(model.event)} for {shown}: {fmt_num(100 * pred.probability, 1)}% "
+        f"(95% interval {fmt_num(100 * pred.ci_low, 1)}% to {fmt_num(100 * pred.ci_high, 1)}%).\n"
+        f"Caution: {CAUTION}\n")
+    return 0

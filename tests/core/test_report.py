@@ -1,0 +1,196 @@
+"""The committee report: aggregate figures only, self-contained, and figures that match outside references."""
+
+from __future__ import annotations
+
+import base64
+import importlib.metadata as md
+import platform
+import re
+import shutil
+import subprocess
+import zlib
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from sklearn.metrics import roc_auc_score
+
+from twofold.core.analysis import AnalysisSpec, run_analysis
+from twofold.core.errors import TwofoldError
+from twofold.core.privacy import SUPPRESSED
+from twofold.core.report import Table, build_report, write_report
+
+ROOT = Path(__file__).resolve().parents[2]
+READMIT = ROOT / "sample_studies" / "readmission_synthetic.csv"
+WOUND = ROOT / "sample_studies" / "wound_infection_synthetic.csv"
+PREDICTORS = ["age", "sex", "discharge_destination", "lives_alone", "comorbidity_score"]
+LADDER = [["age"], ["age", "sex"], PREDICTORS]
+
+
+@pytest.fixture(scope="module")
+def result():
+    return run_analysis(AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=PREDICTORS,
+                                     smaller=["age", "sex"], threshold=0.2))
+
+
+@pytest.fixture(scope="module")
+def written(result, tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    html = write_report(result, folder / "report.html", ladder=LADDER)
+    pdf = write_report(result, folder / "report.pdf", ladder=LADDER)
+    return html, pdf
+
+
+@pytest.fixture(scope="module")
+def identifiers():
+    frame = pd.read_csv(READMIT, dtype=str)
+    return list(frame.admission_id), sorted(set(frame.admission_date))
+
+
+def _pdf_text(path: Path) -> str:
+    """The PDF's text: pdftotext (poppler) when installed, else the decompressed content streams."""
+    if shutil.which("pdftotext"):
+        return subprocess.run(["pdftotext", str(path), "-"], capture_output=True, text=True, check=True).stdout
+    raw = path.read_bytes()
+    out = []
+    for m in re.finditer(rb"stream\r?\n(.*?)\r?\nendstream", raw, re.S):
+        try:
+            out.append(zlib.decompress(m.group(1)).decode("latin-1"))
+        except zlib.error:
+            pass
+    return "\n".join(out)
+
+
+def test_html_holds_no_identifiers_dates_scripts_or_links(written, identifiers):
+    html = written[0].read_text(encoding="utf-8")
+    ids, dates = identifiers
+    assert not [i for i in ids if i in html]
+    assert not [d for d in dates if d in html]
+    low = html.lower()
+    for banned in ("<script", "http://", "https://", "@font-face", "url(", "<link", "<iframe", "src=\"http"):
+        assert banned not in low, banned
+    images = re.findall(r'<img src="([^"]+)"', html)
+    assert len(images) == 2 and all(src.startswith("data:image/png;base64,") for src in images)
+    for src in images:
+        png = base64.b64decode(src.split(",", 1)[1])
+        assert png[:8] == b"\x89PNG\r\n\x1a\n"
+        assert b"http" not in png  # no software link in the PNG's text chunks
+
+
+def test_pdf_holds_no_identifiers_dates_or_links(written, identifiers):
+    pdf = written[1]
+    text = _pdf_text(pdf)
+    assert "Area under the ROC curve" in text  # the extraction works
+    ids, dates = identifiers
+    assert not [i for i in ids if i in text]
+    assert not [d for d in dates if d in text]
+    assert b"http" not in pdf.read_bytes()
+
+
+def test_figures_match_outside_references(result, written):
+    html = written[0].read_text(encoding="utf-8")
+    fit = result.fit
+    # AUC: scikit-learn's roc_auc_score on the fitted risks.
+    auc = roc_auc_score(fit.design.y, fit.fitted)
+    assert f"Area under the ROC curve (c statistic) {auc:.3f}" in html
+    # Odds ratios: statsmodels Logit on the complete rows.
+    frame = pd.read_csv(READMIT)[PREDICTORS + ["readmitted_30d"]].dropna()
+    X = pd.DataFrame({"const": 1.0, "age": frame.age, "M": (frame.sex == "M").astype(float)})
+    for lvl in ("home_with_support", "care_home", "other_hospital"):
+        X[lvl] = (frame.discharge_destination == lvl).astype(float)
+    X["alone"] = (frame.lives_alone == "yes").astype(float)
+    X["comorbidity_score"] = frame.comorbidity_score
+    ref = sm.Logit(frame.readmitted_30d, X).fit(disp=0)
+    assert result.record["rows_used"] == len(frame)
+    for name, level in (("care_home", "care_home (compared with home)"), ("alone", "yes (compared with no)")):
+        lo, hi = np.exp(ref.conf_int().loc[name])
+        assert (f"<td>{level}</td><td class=\"r\">{np.exp(ref.params[name]):.3f}</td>"
+                f"<td class=\"r\">{lo:.3f} to {hi:.3f}</td>") in html
+    # Cross-tab of a categorical predictor by outcome: pandas crosstab on the rows used.
+    tab = pd.crosstab(frame.discharge_destination, frame.readmitted_30d)
+    for level in ("home_with_support", "care_home"):
+        e, ne = int(tab.loc[level, 1]), int(tab.loc[level, 0])
+        assert f"<td>{level}</td><td class=\"r\">{e:,}</td><td class=\"r\">{ne:,}</td>" in html
+    # Influence summary: statsmodels' GLM Cook's distance, counted above 4/n (common practice).
+    design = result.fit.design.X[:, result.fit.kept]
+    glm = sm.GLM(result.fit.design.y, design, family=sm.families.Binomial()).fit()
+    cooks = glm.get_influence().cooks_distance[0]
+    above = int(np.sum(cooks > 4 / len(cooks)))
+    assert f"{above:,} of {len(cooks):,}" in html
+    assert "row of the data file" not in html  # no record numbers unless asked
+
+
+def test_contents_a_committee_needs(result, written):
+    html = written[0].read_text(encoding="utf-8")
+    for needle in ("Models tried", "The chosen model", "odds ratio", "95% interval", "by construction",
+                   "Hosmer-Lemeshow test", "Hosmer &amp; Lemeshow 1980", "DeLong et al. (1988)",
+                   "Van Calster et al. 2016", "Peduzzi et al. (1996)", "Riley et al. (2020)", "statsmodels",
+                   "Cook&#x27;s distance above 4/n", "Warnings", "lives_alone", "suppressed",
+                   "Centers for Medicare &amp; Medicaid Services"):
+        assert needle in html, needle
+    assert html.count("These figures describe statistical associations") == 2  # top and bottom
+    # Software versions, from the installed packages' own metadata.
+    assert f"<td>Python</td><td>{platform.python_version()}</td>" in html
+    for name in ("numpy", "scipy", "pandas", "statsmodels"):
+        assert f"<td>{name}</td><td>{md.version(name)}</td>" in html
+    assert "<td>Twofold</td>" in html
+    rep = build_report(result, ladder=LADDER)
+    assert "*" not in rep.text()  # no significance stars
+    warnings = [b for b in rep.blocks if getattr(b, "style", None) == "warning"]
+    assert warnings and "lives_alone" in warnings[0].items[0]
+
+
+@pytest.fixture(scope="module")
+def rare(tmp_path_factory):
+    """A made-up study where one ward has only six people (seeded)."""
+    rng = np.random.default_rng(7)
+    n = 900
+    ward = np.array(["east"] * 500 + ["west"] * 394 + ["annex"] * 6)
+    age = rng.normal(60, 12, n).round()
+    y = (rng.random(n) < 1 / (1 + np.exp(-(-3 + 0.03 * age)))).astype(int)
+    y[-6:] = [1, 0, 0, 1, 0, 0]
+    path = tmp_path_factory.mktemp("rare") / "rare.csv"
+    pd.DataFrame({"ward": ward, "age": age, "died": y}).to_csv(path, index=False)
+    return run_analysis(AnalysisSpec(data=str(path), outcome="died", predictors=["age", "ward"]))
+
+
+def test_small_cells_are_suppressed_with_complements(rare):
+    rep = build_report(rare)
+    tab = next(b for b in rep.blocks if isinstance(b, Table) and b.headers[0] == "ward")
+    rows = {r[0].split(" (")[0]: r for r in tab.rows}
+    assert rows["annex"][1:4] == [SUPPRESSED] * 3  # 2 events, 4 non-events, 6 people
+    # Subtraction from the column totals must not recover them: each column hides another cell.
+    for j in (1, 2):
+        assert sum(r[j] == SUPPRESSED for r in tab.rows[:-1]) >= 2
+    assert rows["all rows used"][3] == "900"
+    text = rep.text()
+    assert "annex" in text
+    off = build_report(rare, suppress_below=0)
+    tab = next(b for b in off.blocks if isinstance(b, Table) and b.headers[0] == "ward")
+    assert [r for r in tab.rows if r[0] == "annex"][0][1:4] == ["2", "4", "6"]
+
+
+def test_records_only_when_asked(result, tmp_path):
+    path = write_report(result, tmp_path / "r.html", include_records=True)
+    html = path.read_text(encoding="utf-8")
+    assert "row of the data file" in html
+    top = result.assessment.influential(10)
+    assert f"<td>{top[0]['row']}</td>" in html
+
+
+def test_firth_methods_are_named(tmp_path):
+    res = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes",
+                                    predictors=["age", "wound_class"], firth=True))
+    html = write_report(res, tmp_path / "firth.html").read_text(encoding="utf-8")
+    assert "Firth 1993" in html and "Heinze &amp; Schemper 2002" in html and "Puhr et al. 2017" in html
+
+
+def test_suffix_and_data_file_are_refused(result):
+    with pytest.raises(TwofoldError, match=r"\.html or \.pdf"):
+        write_report(result, Path("report.docx"))
+    before = READMIT.read_bytes()
+    with pytest.raises(TwofoldError, match="data file itself"):
+        write_report(result, READMIT)
+    assert READMIT.read_bytes() == before
