@@ -284,7 +284,7 @@ def _fit_logistic(y, exog, start, offset=None):
     same likelihood.  Newton starts from perfect calibration (``start``),
     usually close to the answer.  Warnings are turned into notices.
     """
-    import statsmodels.api as sm
+    from statsmodels.discrete.discrete_model import Logit
     from statsmodels.tools.sm_exceptions import (
         ConvergenceWarning,
         PerfectSeparationError,
@@ -294,7 +294,7 @@ def _fit_logistic(y, exog, start, offset=None):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            res = sm.Logit(y, exog, offset=offset).fit(start_params=start, disp=0)
+            res = Logit(y, exog, offset=offset).fit(start_params=start, disp=0)
         except (np.linalg.LinAlgError, PerfectSeparationError) as exc:
             raise ModelError(
                 "The recalibration model could not be fitted because the linear "

@@ -448,7 +448,8 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
 
     with _one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
         warnings.simplefilter("always")
-        model = Logit(y, X, check_rank=False)
+        # hasconst=False skips statsmodels' constant search (a pass over the data); nothing we read depends on it.
+        model = Logit(y, X, check_rank=False, hasconst=False)
         try:
             res = model.fit(method="newton", start_params=b0, maxiter=maxiter, disp=0,
                             warn_convergence=False)

@@ -134,8 +134,8 @@ def influence_measures(X, y, params) -> InfluenceMeasures:
     the pseudo-inverse of the n x k weighted design, which is several times
     slower on large files; the values agree to round-off.
     """
-    import statsmodels.api as sm
-    from statsmodels.genmod.generalized_linear_model import GLMResults
+    from statsmodels.genmod import families
+    from statsmodels.genmod.generalized_linear_model import GLM, GLMResults
     from statsmodels.stats.outliers_influence import GLMInfluence
 
     X, y = _check_xy(X, y)
@@ -149,7 +149,7 @@ def influence_measures(X, y, params) -> InfluenceMeasures:
     w = expit(eta) * expit(-eta)
     h, cov = _hat_and_cov(X, w)
 
-    model = sm.GLM(y, X, family=sm.families.Binomial())
+    model = GLM(y, X, family=families.Binomial())
     # Binomial scale is 1; the normalised covariance is the inverse information.
     results = GLMResults(model, params, cov, 1.0)
     sw = np.sqrt(w)
