@@ -31,3 +31,15 @@ def log_dir() -> Path:
     path = app_dir() / "logs"
     path.mkdir(parents=True, exist_ok=True)
     return path
+
+
+def use_own_matplotlib_folder() -> None:
+    """Keep matplotlib's font cache in Twofold's own folder, not the user's general cache.
+
+    Called before matplotlib is first imported; a folder the user set with
+    ``MPLCONFIGDIR`` is respected.
+    """
+    if "MPLCONFIGDIR" not in os.environ:
+        folder = app_dir() / "matplotlib"
+        folder.mkdir(parents=True, exist_ok=True)
+        os.environ["MPLCONFIGDIR"] = str(folder)

@@ -15,6 +15,10 @@ is imported only inside the functions that draw, with the Agg canvas.
 
 from __future__ import annotations
 
+from twofold.paths import use_own_matplotlib_folder
+
+use_own_matplotlib_folder()  # before any matplotlib import: its cache goes to our own folder
+
 import base64
 import datetime as _dt
 import html

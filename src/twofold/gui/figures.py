@@ -11,6 +11,10 @@ Nothing here imports Qt.
 
 from __future__ import annotations
 
+from twofold.paths import use_own_matplotlib_folder
+
+use_own_matplotlib_folder()  # before any matplotlib import: its cache goes to our own folder
+
 import io
 
 import numpy as np
