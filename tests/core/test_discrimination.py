@@ -284,3 +284,15 @@ def test_classification_table_undefined_ratios_are_nan():
         classification_table(y, p, 1.5)
     with pytest.raises(TwofoldError):
         classification_table(y, p * 3, 0.5)
+
+
+def test_last_digit_noise_does_not_split_ties():
+    # Records with the same predictor values share one risk; a matrix product can leave them a unit in
+    # the last place apart.  Reference: scikit-learn's roc_auc_score on the exactly tied scores.
+    rng = np.random.default_rng(11)
+    y = rng.integers(0, 2, 400).astype(float)
+    base = rng.choice([0.1, 0.25, 0.4], 400)
+    noisy = base * (1.0 + rng.choice([-1.0, 0.0, 1.0], 400) * np.finfo(float).eps)
+    assert len(np.unique(noisy)) > 3  # the noise really splits them
+    assert auc_delong(y, noisy).auc == pytest.approx(roc_auc_score(y, base), abs=1e-15)
+    assert len(roc_points(y, noisy).fpr) == 3 + 1

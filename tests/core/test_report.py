@@ -49,17 +49,45 @@ def identifiers():
     return list(frame.admission_id), sorted(set(frame.admission_date))
 
 
+def _pdf_literal(body: bytes) -> str:
+    """One PDF literal string (PDF 1.7 reference, section 7.3.4.2), two-byte codes read as UTF-16."""
+    out = bytearray()
+    i = 0
+    while i < len(body):
+        c = body[i]
+        if c == 0x5C and i + 1 < len(body):  # backslash escape
+            nxt = body[i + 1]
+            octal = re.match(rb"[0-7]{1,3}", body[i + 1:i + 4])
+            if octal:
+                out.append(int(octal.group(0), 8) & 0xFF)
+                i += 1 + len(octal.group(0))
+                continue
+            out.append({0x6E: 10, 0x72: 13, 0x74: 9, 0x62: 8, 0x66: 12}.get(nxt, nxt))
+            i += 2
+            continue
+        out.append(c)
+        i += 1
+    raw = bytes(out)
+    if len(raw) % 2 == 0 and raw[:1] == b"\x00":
+        return raw.decode("utf-16-be", errors="replace")
+    return raw.decode("latin-1")
+
+
 def _pdf_text(path: Path) -> str:
-    """The PDF's text: pdftotext (poppler) when installed, else the decompressed content streams."""
+    """The PDF's text: pdftotext (poppler) when installed, else the strings shown by the content streams."""
     if shutil.which("pdftotext"):
         return subprocess.run(["pdftotext", str(path), "-"], capture_output=True, text=True, check=True).stdout
     raw = path.read_bytes()
     out = []
     for m in re.finditer(rb"stream\r?\n(.*?)\r?\nendstream", raw, re.S):
         try:
-            out.append(zlib.decompress(m.group(1)).decode("latin-1"))
+            content = zlib.decompress(m.group(1))
         except zlib.error:
-            pass
+            continue
+        # Each shown string or kerned array (Tj / TJ) becomes one line.
+        for shown in re.finditer(rb"(\[(?:[^\]\\]|\\.)*\]|\((?:[^()\\]|\\.)*\))\s*T[jJ]", content, re.S):
+            pieces = re.findall(rb"\(((?:[^()\\]|\\.)*)\)", shown.group(1), re.S)
+            out.append("".join(_pdf_literal(p) for p in pieces))
     return "\n".join(out)
 
 

@@ -131,15 +131,18 @@ class GuardedRun:
 
 
 def run_guarded(argv=(), *, module: str = "twofold.cli", code: str | None = None, env: dict | None = None,
-                cwd=None, timeout: float = 300) -> GuardedRun:
-    """Run ``python -m MODULE ARGV`` (or ``code``) with the network guard in place."""
+                cwd=None, timeout: float = 300, python: str | None = None) -> GuardedRun:
+    """Run ``python -m MODULE ARGV`` (or ``code``) with the network guard in place.
+
+    ``python`` is the interpreter to use (default: the one running the tests).
+    """
     with tempfile.TemporaryDirectory(prefix="twofold-guard-") as tmp:
         log = Path(tmp) / "attempts.jsonl"
         log.touch()
         body = code if code is not None else _RUN_MODULE.format(module=module, argv=[str(a) for a in argv])
         full_env = dict(os.environ if env is None else env)
         full_env["TWOFOLD_GUARD_LOG"] = str(log)
-        proc = subprocess.run([sys.executable, "-c", _PRELUDE + "\n" + body], capture_output=True, text=True,
+        proc = subprocess.run([python or sys.executable, "-c", _PRELUDE + "\n" + body], capture_output=True, text=True,
                               env=full_env, cwd=cwd, timeout=timeout)
         records = [json.loads(line) for line in log.read_text(encoding="utf-8").splitlines() if line.strip()]
     return GuardedRun(proc.returncode, proc.stdout, proc.stderr, records)

@@ -219,6 +219,16 @@ def test_latin1_and_cp1252(corpus):
     assert t.frame["note"].iloc[0] == "\u201cseen\u201d 0"
 
 
+def test_latin1_found_only_far_into_the_file(tmp_path):
+    """The first 64 KB are plain ASCII; a Latin-1 letter near the end still decides the encoding."""
+    rows = "".join(f"{i},town {i % 7},{i % 2}\n" for i in range(6000))
+    path = tmp_path / "late.csv"
+    path.write_bytes(("id,town,died\n" + rows + "6000,Orl\xe9ans,1\n").encode("latin-1"))
+    assert path.stat().st_size > 70_000
+    t = read_table(path)
+    assert t.encoding == "latin-1" and t.frame["town"].iloc[-1] == "Orl\xe9ans" and len(t.frame) == 6001
+
+
 def test_decimal_comma_in_a_semicolon_file(corpus):
     t = read_table(corpus["decimal_comma"])
     assert t.delimiter == ";"

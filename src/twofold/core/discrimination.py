@@ -120,6 +120,17 @@ def _readonly(a: np.ndarray) -> np.ndarray:
 # ---------------------------------------------------------------------------
 
 
+def _tie_safe(scores: np.ndarray) -> np.ndarray:
+    """Scores rounded to 40 significant bits (about 12 decimal digits) before ranking.
+
+    Records with identical predictor values must tie, but the floating-point
+    sums that give their risks can leave them a unit or two in the last place
+    apart, which would break the tie one way or the other at random.
+    """
+    mant, expo = np.frexp(scores)
+    return np.ldexp(np.round(mant * 2.0**40) / 2.0**40, expo)
+
+
 def _placements(y: np.ndarray, scores: np.ndarray):
     """AUCs and DeLong placement values for ``k`` scores at once.
 
@@ -139,6 +150,7 @@ def _placements(y: np.ndarray, scores: np.ndarray):
     from scipy.stats import rankdata
 
     is_event = y == 1.0
+    scores = _tie_safe(scores)
     pos = scores[:, is_event]
     neg = scores[:, ~is_event]
     m = pos.shape[1]
@@ -511,11 +523,12 @@ def roc_points(y, score) -> RocCurve:
     yy = _outcome(y)
     s = _values(score, yy.size, "score")
     n1, n0 = _both_classes(yy)
-    order = np.argsort(-s, kind="stable")
+    key = _tie_safe(s)
+    order = np.lexsort((-s, -key))  # by rounded score, then the exact one, so each run ends on its lowest
     s_sorted = s[order]
     y_sorted = yy[order]
-    # Last position of each run of equal scores.
-    last = np.r_[np.flatnonzero(np.diff(s_sorted)), s_sorted.size - 1]
+    # Last position of each run of equal (rounded) scores.
+    last = np.r_[np.flatnonzero(np.diff(key[order])), s_sorted.size - 1]
     tps = np.cumsum(y_sorted)[last]
     fps = (last + 1) - tps
     tpr = np.r_[0.0, tps / n1]

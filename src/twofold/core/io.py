@@ -555,11 +555,12 @@ def _repeats(series) -> bool:
     present = series.dropna()
     if len(present) < 400:
         return False
-    values = set(present.unique())
+    values = set(present.to_numpy(dtype=object))
     if not 2 <= len(values) <= _CATEGORY_MAX:
         return False
     quarter = len(present) // 4
-    return all(set(present.iloc[i * quarter:(i + 1) * quarter].unique()) == values for i in range(4))
+    cells = present.to_numpy(dtype=object)
+    return all(set(cells[i * quarter:(i + 1) * quarter]) == values for i in range(4))
 
 
 def _is_bool_like(series) -> bool:
@@ -647,7 +648,8 @@ def _tidy(frame, source: str, flavour: str, generated: set):
         if known is not None and _is_text(new):
             factors[name] = known
     for name, new in changed.items():
-        frame[name] = new.to_numpy() if isinstance(new.dtype, np.dtype) else new.array
+        # A Series is taken as it is; a bare array would be checked and copied again.
+        frame[name] = new.set_axis(frame.index) if not new.index.equals(frame.index) else new
     rows_before = len(frame)
 
     notices: list[Notice] = []
@@ -754,15 +756,14 @@ def _tidy_text_column(name, col, flavour, found):
         if not _text_needs_work(uniques, flavour):
             return col, (codes, uniques)
         return _tidy_text(name, codes, uniques, flavour, found)
-    # Values mostly differ, as in an identifier: check the distinct values
+    # Values mostly differ, as in an identifier: one pass over the cells
     # (str.strip returns the very same object when there is nothing to strip).
-    uniques = pd.unique(values)
-    uniques = uniques[uniques == uniques]  # drops NaN, the only value unequal to itself
-    changed = any(u.strip() is not u for u in uniques)
+    changed = any(v.strip() is not v for v in values if v.__class__ is str)
+    present = [v for v in head if v.__class__ is str]
     # Exact missing markers are already missing (the parser saw to them).
-    if not (changed or _as_numbers(uniques[:200], flavour)[0] is not None
-            or any(v in _ERROR_SET for v in uniques[:_SAMPLE_ROWS])):
-        return col, (None, uniques)
+    if not (changed or _as_numbers(present[:200], flavour)[0] is not None
+            or any(v in _ERROR_SET for v in present)):
+        return col, None
     codes, uniques = pd.factorize(values)
     return _tidy_text(name, codes, np.asarray(uniques, dtype=object), flavour, found)
 
@@ -802,9 +803,12 @@ def _tidy_text(name, codes, uniques, flavour, found):
     labels[gone] = np.nan
     if 1 < keep.sum() <= _MERGE_MAX_LEVELS:
         labels = _merge_variants(name, codes, labels, keep, found)
-    # Codes into the distinct final values (merging made some labels equal).
+    # Codes into the distinct final values (merging or markers made some labels equal or missing).
     label_codes, distinct = pd.factorize(labels)
-    final = np.append(label_codes, -1)[codes]  # code -1 stays missing
+    if len(label_codes) and (label_codes == np.arange(len(label_codes))).all():
+        final = codes  # nothing merged or dropped: the codes stand
+    else:
+        final = np.append(label_codes, -1)[codes]  # code -1 stays missing
     labels = np.append(np.asarray(distinct, dtype=object), np.nan)
     return _text_series(labels[final], name), (final, labels[:-1])
 
@@ -814,11 +818,21 @@ def _text_series(values, name):
     import numpy as np
     import pandas as pd
 
-    dtype = pd.Series([], dtype="str").dtype
-    if getattr(dtype, "storage", None) == "python":
-        # Builds the array with a single type check, faster than the general constructor.
-        return pd.Series(pd.arrays.StringArray(values, dtype=dtype), name=name, copy=False)
+    global _EMPTY_TEXT
+    if _EMPTY_TEXT is None:
+        dtype = pd.Series([], dtype="str").dtype
+        _EMPTY_TEXT = (pd.arrays.StringArray(np.array([], dtype=object), dtype=dtype)
+                       if getattr(dtype, "storage", None) == "python" else False)
+    if _EMPTY_TEXT is not False:
+        try:
+            # The values are known to be str or NaN, so pandas' per-cell check is skipped.
+            return pd.Series(_EMPTY_TEXT._from_backing_data(values), name=name, copy=False)
+        except AttributeError:  # another pandas: build it the general way
+            pass
     return pd.Series(values, dtype="str", name=name)
+
+
+_EMPTY_TEXT = None
 
 
 def _merge_variants(name, codes, labels, keep, found):

@@ -259,6 +259,9 @@ def describe_column(name: str, series) -> ColumnInfo:
         n_missing = int((codes < 0).sum()) if codes is not None else int(series.isna().sum())
         if codes is None and len(uniques) <= limit:
             codes, uniques = pd.factorize(values)
+    elif is_number and not is_bool and values.dtype.kind in "iu" and n > limit and (np.diff(values) > 0).all():
+        # Increasing whole numbers, like record numbers: all different, no hashing needed.
+        codes, uniques, n_missing = None, values, 0
     elif is_date or len(pd.unique(values[:10_000])) <= limit:
         # Probably few values: codes give the counts too.
         codes, uniques = pd.factorize(values)
@@ -266,9 +269,11 @@ def describe_column(name: str, series) -> ColumnInfo:
     else:
         # Probably many: finding the distinct values alone is cheaper.
         uniques = pd.unique(values)
-        present = ~pd.isna(uniques)
-        uniques = uniques[present] if not present.all() else uniques
-        n_missing = int(series.isna().sum())
+        # NaN is the one value unequal to itself (a cheaper test than isna on objects).
+        present = uniques == uniques if uniques.dtype == object else ~pd.isna(uniques)
+        complete = bool(present.all())
+        uniques = uniques if complete else uniques[present]
+        n_missing = 0 if complete else int(series.isna().sum())
         if len(uniques) <= limit:
             codes, uniques = pd.factorize(values)
     if is_date:
@@ -294,10 +299,10 @@ def describe_column(name: str, series) -> ColumnInfo:
     if n_levels == 2:
         return make(Role.BINARY, "two distinct values")
     if is_number:
-        present = values if not n_missing else values[codes >= 0] if codes is not None else values[~np.isnan(values)]
-        whole = bool((present == np.round(present)).all())
-        if whole and n_levels == n_present and n_present > MAX_CATEGORY_LEVELS and _ID_NAME.search(name):
-            return make(Role.IDENTIFIER, "a different whole number in every row, like a record number")
+        if n_levels == n_present and n_present > MAX_CATEGORY_LEVELS and _ID_NAME.search(name):
+            present = values if not n_missing else values[~np.isnan(values)]
+            if bool((present == np.round(present)).all()):
+                return make(Role.IDENTIFIER, "a different whole number in every row, like a record number")
         return make(Role.NUMERIC, "numbers")
     first = values[:200] if not n_missing else values[codes >= 0][:200] if codes is not None \
         else values[~pd.isna(values)][:200]
