@@ -43,6 +43,7 @@ class Session(QObject):
     requestFinished = Signal(int)     # id of every request that completed (shown or not)
     loadStarted = Signal(str)         # a file is being opened: ticks would apply to the old one
     loadProgress = Signal(float)      # share of the file read so far, 0 to 1
+    modellingReady = Signal(int, object)  # (request id, payload) of a model-shape request
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -142,6 +143,23 @@ class Session(QObject):
         return self._submit("assess", lambda: self._job_assess(None, t), facets=("assessment",),
                             coalesce="assess")
 
+    # ---- model-shape hook (used by twofold.gui.modelling_ui) ----------------
+    def run_modelling(self, fn) -> int:
+        """Run ``fn(study, ladder, add)`` on the worker and refresh the results; returns the id.
+
+        ``add(predictors)`` appends a rung as ticking does; ``fn`` returns a
+        payload sent with :attr:`modellingReady` on the GUI thread.
+        """
+        return self._submit("modelling", lambda: self._job_modelling(fn), facets=("results",),
+                            on_error=self._snapshot_results)
+
+    def _job_modelling(self, fn):
+        study = self._require_study()
+        payload = fn(study, self._ladder, self._add)
+        out = self._flush(also=("results",))
+        out["modelling"] = payload
+        return out
+
     def _submit(self, kind, fn, facets, coalesce=None, clears_queue=False, on_error=None) -> int:
         self._next_id += 1
         job_id = self._next_id
@@ -192,6 +210,8 @@ class Session(QObject):
                 if facet in ("study", "columns"):
                     self.last_study = view
                 signals[facet].emit(view)
+        if "modelling" in result.outputs:  # model-shape hook: the dialog checks the id itself
+            self.modellingReady.emit(result.id, result.outputs["modelling"])
         if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
             self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path,
                                      result.error_type))

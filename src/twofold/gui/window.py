@@ -154,6 +154,13 @@ class MainWindow(QMainWindow):
             act.triggered.connect(lambda _=False, t=target: t().setFocus(Qt.FocusReason.ShortcutFocusReason))
             go.addAction(act)
 
+        # ---- "Model shape" menu (twofold.gui.modelling_ui) ----
+        shape_menu = bar.addMenu("Model &shape")
+        self.model_shape_action = QAction("Curved effects, interactions and &validation\u2026", self)
+        self.model_shape_action.triggered.connect(self.open_model_shape)
+        shape_menu.addAction(self.model_shape_action)
+        self.model_shape_dialog = None
+
         help_menu = bar.addMenu("&Help")
         keys = QAction("&Keyboard use", self)
         keys.setShortcut(QKeySequence.StandardKey.HelpContents)
@@ -366,6 +373,16 @@ class MainWindow(QMainWindow):
         if path:
             if not self.grab().save(path, "PNG"):
                 self.show_failure(Failure("picture", f"Could not write {path}; choose a folder you can write to."))
+
+    def open_model_shape(self):
+        """Show the model-shape dialog (one per window, kept between openings)."""
+        from twofold.gui.modelling_ui import ModelShapeDialog
+
+        if self.model_shape_dialog is None:
+            self.model_shape_dialog = ModelShapeDialog(self.session, self)
+        self.model_shape_dialog.show()
+        self.model_shape_dialog.raise_()
+        return self.model_shape_dialog
 
     def _keyboard_help(self) -> None:
         QMessageBox.information(self, "Keyboard use", (

@@ -1,0 +1,456 @@
+"""The "Model shape" dialog: curved effects, interactions and bootstrap validation.
+
+Spline and interaction requests go through :meth:`Session.run_modelling`, so
+they run on the single core worker and the results pane updates as for any
+fit.  The bootstrap runs on its own thread (:class:`BootstrapThread`) on a
+fit that is only read, so fits keep running meanwhile; a cancelled run
+changes nothing that is shown.
+"""
+
+from __future__ import annotations
+
+import threading
+
+from PySide6.QtCore import QThread, Signal
+from PySide6.QtGui import QPixmap
+from PySide6.QtWidgets import (
+    QComboBox, QDialog, QFormLayout, QGroupBox, QHBoxLayout, QLabel, QLineEdit, QProgressBar, QPushButton,
+    QSpinBox, QTableWidget, QTableWidgetItem, QTabWidget, QVBoxLayout, QWidget,
+)
+
+#: Shapes offered for a numeric predictor: label and knots (None: straight line).
+SHAPES = (("Straight line", None), ("Spline with 3 knots", 3), ("Spline with 4 knots", 4),
+          ("Spline with 5 knots", 5))
+
+INTERACTION_NOTE = ("Once two predictors interact, the odds ratio of one depends on the value of the "
+                    "other, so a single main-effect odds ratio no longer answers the question; read the "
+                    "odds ratios in this table instead.")
+
+
+# ---- worker-side jobs (run on the core worker thread; no Qt here) ------------------
+def _current_fit(ladder):
+    from twofold.core.errors import ModelError
+
+    if ladder is None or ladder.current is None or not ladder.rungs:
+        raise ModelError("There is no model yet; choose the outcome and tick at least one predictor first.")
+    return ladder.rungs[ladder.current]
+
+
+def spline_job(column: str, knots: int | None):
+    """A job for :meth:`Session.run_modelling`: set the shape of ``column`` and refit."""
+
+    def job(study, ladder, add):
+        from twofold.core.modelling import effect_curve, nonlinearity_tests
+
+        rung = _current_fit(ladder)
+        name = study.column(column)
+        study.set_spline(name, knots)
+        if name in ladder.used_predictors:
+            ladder.refit()
+        else:
+            add(list(rung.predictors) + [name])
+        fit = ladder.rungs[ladder.current].fit
+        tests = [t for t in nonlinearity_tests(study, fit) if t.term == name]
+        curve = effect_curve(fit, name)
+        return {"kind": "spline", "column": name, "knots": knots, "tests": tests,
+                "png": effect_figure(curve, knots), "fit": fit}
+
+    return job
+
+
+def interaction_job(focus: str, other: str, at=None):
+    """A job: add ``focus:other`` (and both main effects) as a new rung, with its test and odds ratios."""
+
+    def job(study, ladder, add):
+        from twofold.core.errors import ModelError
+        from twofold.core.modelling import conditional_odds_ratios, interaction_tests
+
+        rung = _current_fit(ladder)
+        a, b = study.column(focus), study.column(other)
+        if a == b:
+            raise ModelError("An interaction needs two different predictors; choose another second predictor.")
+        term = f"{a}:{b}"
+        preds = list(rung.predictors)
+        same = [p for p in preds if p in (f"{a}:{b}", f"{b}:{a}")]
+        if not same:
+            preds += [p for p in (a, b) if p not in preds] + [term]
+            add(preds)
+        else:
+            term = same[0]
+        fit = ladder.rungs[ladder.current].fit
+        tests = [t for t in interaction_tests(study, fit) if t.term == term]
+        table = conditional_odds_ratios(fit, a, b, at=at)
+        return {"kind": "interaction", "term": term, "tests": tests, "table": table, "fit": fit}
+
+    return job
+
+
+def current_fit_job(study, ladder, add):
+    """A job returning the fit of the model shown (for the bootstrap, which only reads it)."""
+    return {"kind": "current", "fit": _current_fit(ladder).fit}
+
+
+def effect_figure(curve: dict, knots) -> bytes:
+    """Odds ratio against the reference value, with its 95% band: exp((b(x) - b(ref))' beta)."""
+    from twofold.gui import figures
+
+    fig = figures._new_figure()
+    ax = fig.add_subplot()
+    x = curve["x"]
+    ax.fill_between(x, curve["low"], curve["high"], color=figures.BLUE, alpha=0.2, linewidth=0,
+                    label="95% confidence band")
+    ax.plot(x, curve["odds_ratio"], color=figures.BLUE, linewidth=1.8,
+            label="straight line" if knots is None else f"spline, {knots} knots")
+    ax.axhline(1.0, color=figures.BLACK, linestyle="--", linewidth=0.8)
+    ax.axvline(curve["reference"], color=figures.ORANGE, linestyle=":", linewidth=1.2,
+               label=f"reference value {curve['reference']:g}")
+    ax.set_yscale("log")
+    ax.set_xlabel(curve["column"])
+    ax.set_ylabel("Odds ratio against the reference value")
+    ax.legend(loc="best", fontsize="small", frameon=False)
+    return figures._png(fig)
+
+
+# ---- the bootstrap thread ---------------------------------------------------------
+class BootstrapThread(QThread):
+    """Runs :func:`bootstrap_validation` on a read-only fit, off the GUI and core threads."""
+
+    progressed = Signal(int, int)
+    done = Signal(object)        # Validation
+    cancelled = Signal()
+    failed = Signal(str)
+
+    def __init__(self, fit, repetitions: int, seed: int | None, parent=None):
+        super().__init__(parent)
+        self.fit, self.repetitions, self.seed = fit, repetitions, seed
+        self._stop = threading.Event()
+        self.thread_ident: int | None = None
+
+    def cancel(self) -> None:
+        self._stop.set()
+
+    def run(self) -> None:  # noqa: D401 - QThread entry point
+        from twofold.core.errors import TwofoldError
+        from twofold.core.modelling import ValidationCancelled, bootstrap_validation
+
+        self.thread_ident = threading.get_ident()
+        try:
+            v = bootstrap_validation(self.fit, self.repetitions, seed=self.seed,
+                                     progress=lambda d, t: self.progressed.emit(d, t),
+                                     cancelled=self._stop.is_set)
+        except ValidationCancelled:
+            self.cancelled.emit()
+        except TwofoldError as exc:
+            self.failed.emit(str(exc))
+        except Exception as exc:  # never lose a failure silently
+            from twofold.gui.worker import log_exception
+
+            self.failed.emit(f"{type(exc).__name__}: {exc} (details in {log_exception(exc)})")
+        else:
+            self.done.emit(v)
+
+
+# ---- the dialog ---------------------------------------------------------------------
+class ModelShapeDialog(QDialog):
+    """Curved effects, interactions and bootstrap validation of the model shown."""
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.setWindowTitle("Model shape")
+        self.setAccessibleName("Model shape")
+        self._wanted: dict[str, int] = {}   # newest request id per part of the dialog
+        self.spline_result = None
+        self.interaction_result = None
+        self.validation = None
+        self.boot_thread: BootstrapThread | None = None
+
+        tabs = QTabWidget()
+        tabs.addTab(self._build_spline(), "Curved effect")
+        tabs.addTab(self._build_interaction(), "Interaction")
+        tabs.addTab(self._build_bootstrap(), "Bootstrap validation")
+        self.tabs = tabs
+        self.status = QLabel("")
+        self.status.setWordWrap(True)
+        lay = QVBoxLayout(self)
+        lay.addWidget(tabs)
+        lay.addWidget(self.status)
+
+        session.modellingReady.connect(self._on_ready)
+        session.failed.connect(self._on_failed)
+        session.columnsChanged.connect(self._fill_columns)
+        session.studyLoaded.connect(self._fill_columns)
+        if session.last_study is not None:
+            self._fill_columns(session.last_study)
+
+    # ---- building
+    def _build_spline(self) -> QWidget:
+        w = QWidget()
+        form = QFormLayout()
+        self.spline_column = QComboBox()
+        self.spline_column.setAccessibleName("Numeric predictor")
+        self.shape_combo = QComboBox()
+        self.shape_combo.setAccessibleName("Shape of the effect")
+        for text, knots in SHAPES:
+            self.shape_combo.addItem(text, knots)
+        self.apply_shape = QPushButton("Apply and refit")
+        self.apply_shape.clicked.connect(self.apply_spline)
+        form.addRow("Numeric predictor", self.spline_column)
+        form.addRow("Shape", self.shape_combo)
+        self.nonlinear_label = QLabel("")
+        self.nonlinear_label.setWordWrap(True)
+        self.effect_picture = QLabel()
+        self.effect_picture.setAccessibleName("Effect plot")
+        lay = QVBoxLayout(w)
+        lay.addLayout(form)
+        lay.addWidget(self.apply_shape)
+        lay.addWidget(self.nonlinear_label)
+        lay.addWidget(self.effect_picture, 1)
+        return w
+
+    def _build_interaction(self) -> QWidget:
+        w = QWidget()
+        form = QFormLayout()
+        self.focus_combo = QComboBox()
+        self.focus_combo.setAccessibleName("Predictor whose odds ratio is shown")
+        self.other_combo = QComboBox()
+        self.other_combo.setAccessibleName("Predictor it depends on")
+        self.at_edit = QLineEdit()
+        self.at_edit.setPlaceholderText("quartiles if left empty, e.g. 40, 60, 80")
+        self.at_edit.setAccessibleName("Values of the second predictor")
+        form.addRow("Odds ratio of", self.focus_combo)
+        form.addRow("at values of", self.other_combo)
+        form.addRow("Values (numeric only)", self.at_edit)
+        self.apply_interaction = QPushButton("Add the interaction and refit")
+        self.apply_interaction.clicked.connect(self.add_interaction)
+        self.interaction_label = QLabel("")
+        self.interaction_label.setWordWrap(True)
+        self.or_table = QTableWidget(0, 3)
+        self.or_table.setHorizontalHeaderLabels(["At", "Odds ratio", "95% confidence interval"])
+        self.or_table.setAccessibleName("Odds ratios at values of the second predictor")
+        self.note = QLabel("")
+        self.note.setWordWrap(True)
+        lay = QVBoxLayout(w)
+        lay.addLayout(form)
+        lay.addWidget(self.apply_interaction)
+        lay.addWidget(self.interaction_label)
+        lay.addWidget(self.or_table, 1)
+        lay.addWidget(self.note)
+        return w
+
+    def _build_bootstrap(self) -> QWidget:
+        w = QWidget()
+        form = QFormLayout()
+        self.reps_spin = QSpinBox()
+        self.reps_spin.setRange(1, 100_000)
+        self.reps_spin.setValue(200)
+        self.reps_spin.setAccessibleName("Repetitions")
+        self.seed_spin = QSpinBox()
+        self.seed_spin.setRange(0, 2_000_000_000)
+        self.seed_spin.setValue(20240101)
+        self.seed_spin.setAccessibleName("Seed")
+        form.addRow("Repetitions", self.reps_spin)
+        form.addRow("Seed (same seed, same answer)", self.seed_spin)
+        self.run_boot = QPushButton("Run the bootstrap")
+        self.run_boot.clicked.connect(self.start_bootstrap)
+        self.cancel_boot = QPushButton("Cancel")
+        self.cancel_boot.setEnabled(False)
+        self.cancel_boot.clicked.connect(self.cancel_bootstrap)
+        buttons = QHBoxLayout()
+        buttons.addWidget(self.run_boot)
+        buttons.addWidget(self.cancel_boot)
+        self.boot_bar = QProgressBar()
+        self.boot_bar.setAccessibleName("Bootstrap progress")
+        box = QGroupBox("How well the model would do on new patients")
+        grid = QFormLayout(box)
+        self.boot_labels = {}
+        for key, text in (("auc", "Area under the ROC curve"), ("slope", "Calibration slope"),
+                          ("brier", "Brier score")):
+            lab = QLabel("not run yet")
+            lab.setAccessibleName(text)
+            self.boot_labels[key] = lab
+            grid.addRow(text, lab)
+        lay = QVBoxLayout(w)
+        lay.addLayout(form)
+        lay.addLayout(buttons)
+        lay.addWidget(self.boot_bar)
+        lay.addWidget(box)
+        lay.addStretch(1)
+        return w
+
+    def _fill_columns(self, view) -> None:
+        if view is None or not hasattr(view, "columns"):
+            return
+        roles = {c.name: c.role for c in view.columns}
+        names = [n for n in view.candidates if n != view.outcome]
+        numeric = [n for n in names if roles.get(n) == "numeric"]
+        for combo, items in ((self.spline_column, numeric), (self.focus_combo, names), (self.other_combo, names)):
+            keep = combo.currentText()
+            combo.blockSignals(True)
+            combo.clear()
+            combo.addItems(items)
+            if keep in items:
+                combo.setCurrentText(keep)
+            combo.blockSignals(False)
+
+    # ---- requests
+    def apply_spline(self, column: str | None = None, knots="from-combo") -> int:
+        """Give ``column`` the chosen shape and refit the ladder; returns the request id."""
+        column = column or self.spline_column.currentText()
+        if knots == "from-combo":
+            knots = self.shape_combo.currentData()
+        self.status.setText("Refitting\u2026")
+        rid = self.session.run_modelling(spline_job(column, knots))
+        self._wanted["spline"] = rid
+        return rid
+
+    def add_interaction(self, focus: str | None = None, other: str | None = None, at=None) -> int:
+        """Add the interaction of two predictors as a new model; returns the request id."""
+        focus = focus or self.focus_combo.currentText()
+        other = other or self.other_combo.currentText()
+        if at is None and self.at_edit.text().strip():
+            try:
+                at = [float(v) for v in self.at_edit.text().replace(";", ",").split(",") if v.strip()]
+            except ValueError:
+                self.status.setText("Write the values as numbers separated by commas, e.g. 40, 60, 80.")
+                return 0
+        self.status.setText("Refitting\u2026")
+        rid = self.session.run_modelling(interaction_job(focus, other, at))
+        self._wanted["interaction"] = rid
+        return rid
+
+    def start_bootstrap(self, repetitions: int | None = None, seed: int | None = None) -> int:
+        """Ask the worker for the model shown, then validate it on the bootstrap thread."""
+        if self.boot_thread is not None and self.boot_thread.isRunning():
+            return 0
+        if repetitions is not None:
+            self.reps_spin.setValue(int(repetitions))
+        if seed is not None:
+            self.seed_spin.setValue(int(seed))
+        self.run_boot.setEnabled(False)
+        self.cancel_boot.setEnabled(True)
+        self.boot_bar.setRange(0, 0)
+        self.status.setText("Getting the model shown\u2026")
+        rid = self.session.run_modelling(current_fit_job)
+        self._wanted["bootstrap"] = rid
+        return rid
+
+    def cancel_bootstrap(self) -> None:
+        """Stop the bootstrap; the validation shown before stays."""
+        self._wanted.pop("bootstrap", None)
+        if self.boot_thread is not None:
+            self.boot_thread.cancel()
+        else:
+            self._boot_idle("The bootstrap was cancelled; the results shown before are unchanged.")
+
+    # ---- answers
+    def _on_ready(self, rid: int, payload) -> None:
+        if not isinstance(payload, dict):
+            return
+        kind = payload.get("kind")
+        part = "bootstrap" if kind == "current" else kind
+        if self._wanted.get(part) != rid:
+            return  # superseded by a newer request of the same part
+        if kind == "spline":
+            self._show_spline(payload)
+        elif kind == "interaction":
+            self._show_interaction(payload)
+        elif kind == "current":
+            self._launch(payload["fit"])
+
+    def _on_failed(self, failure) -> None:
+        if getattr(failure, "kind", "") != "modelling":
+            return
+        self.status.setText(failure.message)
+        if "bootstrap" in self._wanted and self.boot_thread is None:
+            self._wanted.pop("bootstrap")
+            self._boot_idle(failure.message)
+
+    def _show_spline(self, payload) -> None:
+        from twofold.core.text import fmt_num, fmt_p
+
+        self.spline_result = payload
+        col = payload["column"]
+        if payload["knots"] is None or not payload["tests"]:
+            self.nonlinear_label.setText(f"{col} now has a straight-line effect (one odds ratio per unit).")
+        else:
+            t = payload["tests"][0]
+            knots = ", ".join(f"{k:g}" for k in t.knots)
+            self.nonlinear_label.setText(
+                f"Is the effect of {col} curved? Likelihood-ratio test of the spline against a straight "
+                f"line: G = {fmt_num(t.g)} on {t.df} degrees of freedom, p {fmt_p(t.p_value)}. "
+                f"Knots at {knots}.")
+        pix = QPixmap()
+        pix.loadFromData(payload["png"], "PNG")
+        self.effect_picture.setPixmap(pix)
+        self.status.setText("The model was refitted; the results pane shows it.")
+
+    def _show_interaction(self, payload) -> None:
+        from twofold.core.text import fmt_num, fmt_or, fmt_p
+
+        self.interaction_result = payload
+        term = payload["term"]
+        if payload["tests"]:
+            t = payload["tests"][0]
+            self.interaction_label.setText(
+                f"Does adding {term.replace(':', ' by ')} improve the model? Likelihood-ratio test against the "
+                f"model without it: G = {fmt_num(t.g)} on {t.df} degrees of freedom, p {fmt_p(t.p_value)}.")
+        rows = payload["table"]
+        self.or_table.setRowCount(len(rows))
+        for r, row in enumerate(rows):
+            at = row["at"]
+            where = f"{row['other']} = {at:g}" if isinstance(at, float) else f"{row['other']} = {at}"
+            if row["level"] is not None:
+                where = f"{row['focus']} {row['level']}, {where}"
+            for c, text in enumerate((where, fmt_or(row["odds_ratio"]),
+                                      f"{fmt_or(row['or_ci_low'])} to {fmt_or(row['or_ci_high'])}")):
+                self.or_table.setItem(r, c, QTableWidgetItem(text))
+        self.or_table.resizeColumnsToContents()
+        self.note.setText(INTERACTION_NOTE)
+        self.status.setText("The interaction was added as a new model; the results pane shows it.")
+
+    def _launch(self, fit) -> None:
+        thread = BootstrapThread(fit, self.reps_spin.value(), self.seed_spin.value(), self)
+        thread.progressed.connect(self._on_boot_progress)
+        thread.done.connect(self._on_boot_done)
+        thread.cancelled.connect(
+            lambda: self._boot_idle("The bootstrap was cancelled; the results shown before are unchanged."))
+        thread.failed.connect(self._boot_idle)
+        thread.finished.connect(self._on_thread_finished)
+        self.boot_thread = thread
+        self.boot_bar.setRange(0, thread.repetitions)
+        self.boot_bar.setValue(0)
+        self.status.setText("Running the bootstrap\u2026")
+        thread.start()
+
+    def _on_boot_progress(self, done: int, total: int) -> None:
+        self.boot_bar.setValue(done)
+
+    def _on_boot_done(self, v) -> None:
+        from twofold.core.text import fmt_num
+
+        self.validation = v
+        self.boot_labels["auc"].setText(
+            f"{fmt_num(v.auc_corrected)} corrected for optimism ({fmt_num(v.auc_apparent)} on the same data)")
+        self.boot_labels["slope"].setText(
+            f"{fmt_num(v.calibration_slope_corrected)} corrected (1 on the same data by construction)")
+        self.boot_labels["brier"].setText(
+            f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the same data)")
+        extra = f"; {v.failed} resamples could not be fitted" if v.failed else ""
+        self._boot_idle(f"Bootstrap done: {v.completed} of {v.repetitions} resamples used{extra}.")
+
+    def _boot_idle(self, message: str) -> None:
+        self.run_boot.setEnabled(True)
+        self.cancel_boot.setEnabled(False)
+        self.boot_bar.setRange(0, 1)
+        self.boot_bar.setValue(0)
+        self.status.setText(message)
+
+    def _on_thread_finished(self) -> None:
+        self.boot_thread = None
+
+    def done(self, result: int) -> None:  # closing the dialog stops a running bootstrap
+        if self.boot_thread is not None:
+            self.boot_thread.cancel()
+            self.boot_thread.wait(10_000)
+        super().done(result)
