@@ -127,3 +127,13 @@ def test_cancel_keeps_previous_validation_and_loop_stays_responsive(qtbot, windo
     assert {k: lab.text() for k, lab in dialog.boot_labels.items()} == texts
     assert "cancelled" in dialog.status.text()
     assert dialog.run_boot.isEnabled()
+
+
+def test_closing_the_window_stops_a_running_bootstrap(qtbot, window, dialog):
+    dialog.start_bootstrap(100_000, 5)
+    qtbot.waitUntil(lambda: dialog.boot_thread is not None and dialog.boot_bar.value() > 0, timeout=WAIT_MS)
+    thread = dialog.boot_thread
+    assert thread.isRunning()
+    window.close()
+    # close() returns only after the bootstrap thread has ended (it is cancelled between resamples).
+    assert thread.isFinished()

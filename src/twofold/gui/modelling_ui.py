@@ -343,6 +343,19 @@ class ModelShapeDialog(QDialog):
         else:
             self._boot_idle("The bootstrap was cancelled; the results shown before are unchanged.")
 
+    def shutdown(self, wait_ms: int = 5000) -> bool:
+        """Stop a running bootstrap and wait for its thread (the main window is closing).
+
+        Returns whether the thread has ended.  Cancelling is checked between
+        resamples, so the wait is about one refit.
+        """
+        self._wanted.pop("bootstrap", None)
+        thread = self.boot_thread
+        if thread is None or not thread.isRunning():
+            return True
+        thread.cancel()
+        return thread.wait(wait_ms)
+
     # ---- answers
     def _on_ready(self, rid: int, payload) -> None:
         if not isinstance(payload, dict):

@@ -400,6 +400,8 @@ class MainWindow(QMainWindow):
             "The data file is only read, never changed, and nothing leaves this computer."))
 
     def closeEvent(self, event) -> None:
+        if self.model_shape_dialog is not None:
+            self.model_shape_dialog.shutdown()  # a bootstrap must not outlive the window
         self.session.shutdown()
         super().closeEvent(event)
 
