@@ -50,6 +50,8 @@ def test_spline_shows_core_nonlinearity_test(qtbot, window, dialog):
     assert shown.g == pytest.approx(ref.g, rel=1e-8)
     assert f"{shown.g:.3f}"[:4] in dialog.nonlinear_label.text()
     assert not dialog.effect_picture.pixmap().isNull()
+    assert dialog.shape_combo.currentData() == 4  # the shape list shows the shape now in the model
+    assert "2 degrees of freedom" in dialog.nonlinear_label.text()
     # The refit went through the request path: the results pane shows the spline model.
     assert window.session.is_current("results", rid)
     assert any("age" in str(line) for line in window.results_pane.view.lines)
@@ -98,6 +100,8 @@ def test_bootstrap_matches_core_with_same_seed(qtbot, window, dialog):
     ref = bootstrap_validation(fit, 20, seed=7)
     assert v.auc_corrected == pytest.approx(ref.auc_corrected, rel=1e-9)
     assert dialog.boot_labels["auc"].text().startswith(fmt_num(ref.auc_corrected))
+    assert f"optimism of {fmt_num(ref.auc_optimism)}" in dialog.boot_labels["auc"].text()
+    assert dialog.boot_bar.value() == dialog.boot_bar.maximum()  # a finished run shows a full bar
 
 
 def test_cancel_keeps_previous_validation_and_loop_stays_responsive(qtbot, window, dialog):

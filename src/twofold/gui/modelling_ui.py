@@ -105,10 +105,29 @@ def effect_figure(curve: dict, knots) -> bytes:
     ax.axvline(curve["reference"], color=figures.ORANGE, linestyle=":", linewidth=1.2,
                label=f"reference value {curve['reference']:g}")
     ax.set_yscale("log")
+    _plain_log_ticks(ax, min(curve["low"]), max(curve["high"]))
     ax.set_xlabel(curve["column"])
-    ax.set_ylabel("Odds ratio against the reference value")
+    ax.set_ylabel("Odds ratio (log scale)")
+    ax.set_title(f"Against {curve['column']} = {curve['reference']:g}", fontsize="medium")
     ax.legend(loc="best", fontsize="small", frameon=False)
     return figures._png(fig)
+
+
+def _plain_log_ticks(ax, low: float, high: float) -> None:
+    """Odds-ratio ticks written as plain numbers (0.5, 1, 2), not powers of ten."""
+    from matplotlib.ticker import FixedLocator, FuncFormatter, NullLocator
+
+    candidates = [0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 4, 5, 10, 20, 50, 100]
+    ticks = [t for t in candidates if low / 1.05 <= t <= high * 1.05] or [1]
+    if len(ticks) > 7:
+        ticks = ticks[::2] if 1 in ticks[::2] else ticks[1::2]
+    ax.yaxis.set_major_locator(FixedLocator(ticks))
+    ax.yaxis.set_minor_locator(NullLocator())
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+
+
+def _df(df: int) -> str:
+    return f"{df} degree{'' if df == 1 else 's'} of freedom"
 
 
 # ---- the bootstrap thread ---------------------------------------------------------
@@ -292,6 +311,9 @@ class ModelShapeDialog(QDialog):
             if keep in items:
                 combo.setCurrentText(keep)
             combo.blockSignals(False)
+        # The second predictor of an interaction starts on another column than the first.
+        if self.other_combo.count() > 1 and self.other_combo.currentText() == self.focus_combo.currentText():
+            self.other_combo.setCurrentIndex(1 if self.focus_combo.currentIndex() == 0 else 0)
 
     # ---- requests
     def apply_spline(self, column: str | None = None, knots="from-combo") -> int:
@@ -391,11 +413,15 @@ class ModelShapeDialog(QDialog):
             knots = ", ".join(f"{k:g}" for k in t.knots)
             self.nonlinear_label.setText(
                 f"Is the effect of {col} curved? Likelihood-ratio test of the spline against a straight "
-                f"line: G = {fmt_num(t.g)} on {t.df} degrees of freedom, p {fmt_p(t.p_value)}. "
+                f"line: G = {fmt_num(t.g)} on {_df(t.df)}, p {fmt_p(t.p_value)}. "
                 f"Knots at {knots}.")
         pix = QPixmap()
         pix.loadFromData(payload["png"], "PNG")
         self.effect_picture.setPixmap(pix)
+        # The shape list shows the shape now in the model, not the default.
+        index = self.shape_combo.findData(payload["knots"])
+        if index >= 0:
+            self.shape_combo.setCurrentIndex(index)
         self.status.setText("The model was refitted; the results pane shows it.")
 
     def _show_interaction(self, payload) -> None:
@@ -407,7 +433,7 @@ class ModelShapeDialog(QDialog):
             t = payload["tests"][0]
             self.interaction_label.setText(
                 f"Does adding {term.replace(':', ' by ')} improve the model? Likelihood-ratio test against the "
-                f"model without it: G = {fmt_num(t.g)} on {t.df} degrees of freedom, p {fmt_p(t.p_value)}.")
+                f"model without it: G = {fmt_num(t.g)} on {_df(t.df)}, p {fmt_p(t.p_value)}.")
         rows = payload["table"]
         self.or_table.setRowCount(len(rows))
         for r, row in enumerate(rows):
@@ -419,7 +445,9 @@ class ModelShapeDialog(QDialog):
                                       f"{fmt_or(row['or_ci_low'])} to {fmt_or(row['or_ci_high'])}")):
                 self.or_table.setItem(r, c, QTableWidgetItem(text))
         self.or_table.resizeColumnsToContents()
-        self.note.setText(INTERACTION_NOTE)
+        self.or_table.horizontalHeader().setStretchLastSection(True)
+        unit = " (per one unit)" if rows and rows[0]["level"] is None else ""
+        self.note.setText(f"Odds ratios of {rows[0]['focus'] if rows else ''}{unit}. " + INTERACTION_NOTE)
         self.status.setText("The interaction was added as a new model; the results pane shows it.")
 
     def _launch(self, fit) -> None:
@@ -444,13 +472,18 @@ class ModelShapeDialog(QDialog):
 
         self.validation = v
         self.boot_labels["auc"].setText(
-            f"{fmt_num(v.auc_corrected)} corrected for optimism ({fmt_num(v.auc_apparent)} on the same data)")
+            f"{fmt_num(v.auc_corrected)} corrected for optimism: {fmt_num(v.auc_apparent)} on the data it was "
+            f"built from, minus an optimism of {fmt_num(v.auc_optimism)}")
         self.boot_labels["slope"].setText(
-            f"{fmt_num(v.calibration_slope_corrected)} corrected (1 on the same data by construction)")
+            f"{fmt_num(v.calibration_slope_corrected)} corrected (1 on the data it was built from, by "
+            f"construction; optimism {fmt_num(v.slope_optimism)})")
         self.boot_labels["brier"].setText(
-            f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the same data)")
+            f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the data it was built "
+            f"from; optimism {fmt_num(v.brier_optimism)})")
         extra = f"; {v.failed} resamples could not be fitted" if v.failed else ""
         self._boot_idle(f"Bootstrap done: {v.completed} of {v.repetitions} resamples used{extra}.")
+        self.boot_bar.setRange(0, 1)
+        self.boot_bar.setValue(1)  # a finished run shows a full bar
 
     def _boot_idle(self, message: str) -> None:
         self.run_boot.setEnabled(True)
