@@ -243,3 +243,25 @@ def test_autosave_and_recovery(home, saved):
     assert ses.recoverable() is None and not left.exists()
     ses.clean_exit()
     assert not path.exists() and not (home / "autosave" / f"running-{os.getpid()}.lock").exists()
+
+
+def test_digest_is_reused_only_for_an_unchanged_file(tmp_path, monkeypatch):
+    import hashlib
+    import os
+
+    from twofold.core import session as sess
+
+    data = tmp_path / "d.csv"
+    data.write_bytes(b"a,b\n1,2\n")
+    # Reference: hashlib.sha256 over the bytes.
+    assert sess.file_sha256(data) == hashlib.sha256(b"a,b\n1,2\n").hexdigest()
+    reads = []
+    real_open = open
+    monkeypatch.setattr("builtins.open", lambda *a, **k: reads.append(a[0]) or real_open(*a, **k))
+    assert sess.file_sha256(data, reuse=True) == hashlib.sha256(b"a,b\n1,2\n").hexdigest()
+    assert reads == []  # unchanged file: not read again
+    data.write_bytes(b"a,b\n1,3\n")
+    st = os.stat(data)
+    os.utime(data, ns=(st.st_atime_ns, st.st_mtime_ns + 1_000_000))  # a later change time
+    assert sess.file_sha256(data, reuse=True) == hashlib.sha256(b"a,b\n1,3\n").hexdigest()
+    assert reads  # changed: read again

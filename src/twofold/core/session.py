@@ -117,13 +117,27 @@ class SessionFileError(DataFileError):
 # ---------------------------------------------------------------------------
 
 
-def file_sha256(path) -> str:
-    """SHA-256 of a file's bytes, read in chunks (the file is opened read-only)."""
+_DIGESTS: dict = {}  # (path, size, mtime_ns) -> digest, for autosaves after every tick
+
+
+def file_sha256(path, reuse: bool = False) -> str:
+    """SHA-256 of a file's bytes, read in chunks (the file is opened read-only).
+
+    With ``reuse``, a digest computed earlier in this process for the same
+    path, size and modification time is returned without reading the file
+    again: autosaving after every tick must not re-read a large extract
+    (about 1 s per GB).  Checks of whether the data changed never reuse.
+    """
+    st = os.stat(path)
+    key = (str(Path(path).resolve()), st.st_size, st.st_mtime_ns)
+    if reuse and key in _DIGESTS:
+        return _DIGESTS[key]
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for chunk in iter(lambda: fh.read(1 << 20), b""):
             h.update(chunk)
-    return h.hexdigest()
+    _DIGESTS[key] = h.hexdigest()
+    return _DIGESTS[key]
 
 
 def _rungs_of(ladder) -> list[list[str]]:
@@ -196,7 +210,7 @@ def session_from_result(result, ladder=None) -> dict:
         "interactions": [study.column(t) for t in spec.interactions],
         "validate": None if spec.validate is None else int(spec.validate),
         "seed": None if spec.seed is None else int(spec.seed),
-        "data_sha256": file_sha256(data),
+        "data_sha256": file_sha256(data, reuse=True),
         "data_rows": int(study.n_rows),
         "ladder": rungs,
         "chosen": int(chosen),
