@@ -15,7 +15,7 @@ os.environ["TWOFOLD_HOME"] = tempfile.mkdtemp(prefix="twofold-gui-tests-")
 
 import pytest  # noqa: E402
 
-from gui_helpers import WAIT_MS  # noqa: E402
+from gui_helpers import new_window  # noqa: E402
 
 
 @pytest.fixture
@@ -27,15 +27,6 @@ def home(tmp_path, monkeypatch):
 
 @pytest.fixture
 def window(qtbot, home, tmp_path):
-    from PySide6.QtCore import QSettings
-
-    from twofold.gui.window import MainWindow
-
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
-    w = MainWindow(settings=settings)
-    qtbot.addWidget(w)
-    w.resize(1400, 900)
-    w.show()
-    qtbot.waitUntil(lambda: w.session.core_ready, timeout=WAIT_MS)
+    w = new_window(qtbot, tmp_path / "settings.ini")
     yield w
     w.session.shutdown()

@@ -35,3 +35,17 @@ def tick(qtbot, window, names):
     qtbot.waitUntil(lambda: idle(window) and window.results_pane.view is not None
                     and set(window.results_pane.view.predictors) == set(names), timeout=WAIT_MS)
     return window.results_pane.view
+
+
+def new_window(qtbot, settings_file):
+    """A shown main window with its own settings file, once its core has loaded."""
+    from PySide6.QtCore import QSettings
+
+    from twofold.gui.window import MainWindow
+
+    w = MainWindow(settings=QSettings(str(settings_file), QSettings.Format.IniFormat))
+    qtbot.addWidget(w)
+    w.resize(1400, 900)
+    w.show()
+    qtbot.waitUntil(lambda: w.session.core_ready, timeout=WAIT_MS)
+    return w

@@ -169,3 +169,26 @@ def snapshot(*folders) -> dict:
 def changed_files(before: dict, after: dict) -> set:
     """Files created or modified between two snapshots."""
     return {p for p, sig in after.items() if before.get(p) != sig}
+
+
+#: The end of a window-driving script: run ``steps`` (callables returning True once done) while the
+#: window is idle, until ``deadline``; ``stopped()`` may end it early.  No braces, so it can be
+#: appended to a script that is filled in with ``str.format``.
+STEP_LOOP = r'''
+
+def advance():
+    if time.monotonic() > deadline or stopped():
+        print("stopped at step", len(steps), file=sys.stderr, flush=True)
+        app.exit(4)
+        return
+    while steps and not s.busy:
+        if not steps[0]():
+            break
+        steps.pop(0)
+    if steps:
+        QTimer.singleShot(30, advance)
+
+
+QTimer.singleShot(0, advance)
+sys.exit(app.exec())
+'''

@@ -48,7 +48,8 @@ def install_exception_hooks() -> None:
 def launch(argv: list[str] | None = None):
     """Create the application and show the window; returns (app, window).
 
-    ``argv`` may hold one data file to open.
+    ``argv`` may hold one data file to open.  Autosave is on, and a
+    recovery is offered when the last run did not close cleanly.
     """
     from PySide6.QtWidgets import QApplication
 
@@ -63,6 +64,10 @@ def launch(argv: list[str] | None = None):
     app.twofold_window = window
     default_size(window)
     window.show()
+    # Autosave after every new result, into Twofold's own folder; if an earlier Twofold was
+    # killed or crashed, offer what it was working on once the window is up.
+    window.sessions.enable_autosave()
+    window.sessions.offer_restore_later()
     if argv:
         window.open_path(argv[0])
     return app, window

@@ -13,7 +13,7 @@ from html import escape as esc
 from PySide6.QtCore import QSignalBlocker, Qt, Signal
 from PySide6.QtGui import QAction, QFontMetrics, QPixmap
 from PySide6.QtWidgets import (
-    QAbstractItemView, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
+    QAbstractItemView, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
     QListWidget, QListWidgetItem, QMenu, QPushButton, QScrollArea, QSizePolicy, QSplitter, QTableView,
     QVBoxLayout, QWidget,
 )
@@ -38,6 +38,21 @@ def _wrapped(text: str = "", accessible: str = "") -> QLabel:
     if accessible:
         label.setAccessibleName(accessible)
     return label
+
+
+#: The sign between the two predictors of an interaction, as the core's display records write it.
+TIMES = "\u00d7"
+
+#: Item data of the predictor list: the parts (a, b) of an interaction item, None for a column.
+PartsRole = Qt.ItemDataRole.UserRole + 1
+
+
+def interaction_parts(name: str, columns=()):
+    """``(a, b)`` for an interaction name "a:b" (not itself a column name), else None (GUI side, no core)."""
+    if ":" not in name or name in columns:
+        return None
+    a, b = name.split(":", 1)
+    return a.strip(), b.strip()
 
 
 def _compact_table(view: QTableView) -> None:
@@ -300,6 +315,8 @@ class ModelPane(QWidget):
         self.outcome = None
         self.outcome_view = None
         self.last_request: int | None = None
+        #: Interactions met in this study's models ("a:b"), kept in the list to tick again.
+        self.interactions: list[str] = []
         self.setAccessibleName("Model-building pane")
         layout = QVBoxLayout(self)
         layout.addWidget(_heading("Model", self))
@@ -383,6 +400,17 @@ class ModelPane(QWidget):
         self.set_ticked(())
 
     def _item_changed(self, item) -> None:
+        """An interaction needs both its predictors: ticking it ticks them, unticking one unticks it."""
+        on = item.checkState() == Qt.CheckState.Checked
+        parts = item.data(PartsRole)
+        with QSignalBlocker(self.list):
+            for i in range(self.list.count()):
+                other = self.list.item(i)
+                name, other_parts = other.data(Qt.ItemDataRole.UserRole), other.data(PartsRole)
+                if on and parts and name in parts:
+                    other.setCheckState(Qt.CheckState.Checked)
+                elif not on and not parts and other_parts and item.data(Qt.ItemDataRole.UserRole) in other_parts:
+                    other.setCheckState(Qt.CheckState.Unchecked)
         self._request()
 
     def _request(self) -> int | None:
@@ -433,6 +461,7 @@ class ModelPane(QWidget):
         self.study = view
         self.outcome = None
         self.outcome_view = None
+        self.interactions = []
         with QSignalBlocker(self.list):
             self.list.clear()
         self._on_columns(view, keep=False)
@@ -453,16 +482,46 @@ class ModelPane(QWidget):
             for name in view.candidates:
                 c = view.column(name)
                 text = name
+                shape = ""
                 if c is not None:
                     kind = c.role_label if c.role != "categorical" else f"{c.n_levels} groups"
                     text = f"{name} \u00b7 {kind}"
+                    if c.spline_knots:
+                        shape = f" \u00b7 curved ({c.spline_knots} knots)"
+                        text += shape
                     if c.n_missing:
                         text += f" \u00b7 {c.n_missing:,} missing"
                 item = QListWidgetItem(text)
                 item.setData(Qt.ItemDataRole.UserRole, name)
                 item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
                 item.setCheckState(Qt.CheckState.Checked if name in ticked else Qt.CheckState.Unchecked)
-                item.setToolTip(f"{text}. Tick to add {name} to the model, untick to remove it.")
+                tip = f"{text}. Tick to add {name} to the model, untick to remove it."
+                if shape:
+                    tip += (f" Its effect is a curve (a spline with {c.spline_knots} knots); the Model shape menu "
+                            "turns it back into a straight line.")
+                item.setToolTip(tip)
+                self.list.addItem(item)
+        self._add_interaction_items(ticked)
+
+    def _add_interaction_items(self, ticked=()) -> None:
+        """List the interactions met so far after the columns (only those whose two predictors are offered)."""
+        if self.study is None:
+            return
+        offered = set(self.study.candidates)
+        listed = {self.list.item(i).data(Qt.ItemDataRole.UserRole) for i in range(self.list.count())}
+        with QSignalBlocker(self.list):
+            for name in self.interactions:
+                parts = interaction_parts(name)
+                if name in listed or parts is None or not set(parts) <= offered:
+                    continue
+                a, b = parts
+                item = QListWidgetItem(f"{a} {TIMES} {b} \u00b7 interaction")
+                item.setData(Qt.ItemDataRole.UserRole, name)
+                item.setData(PartsRole, parts)
+                item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
+                item.setCheckState(Qt.CheckState.Checked if name in ticked else Qt.CheckState.Unchecked)
+                item.setToolTip(f"{a} {TIMES} {b}: an interaction, so the effect of {a} may differ with {b}. "
+                                f"Ticking it ticks {a} and {b} too; unticking either of them removes it.")
                 self.list.addItem(item)
 
     def _on_outcome(self, view) -> None:
@@ -513,6 +572,12 @@ class ModelPane(QWidget):
         if view is None:
             self.counts.setText("")
             return
+        columns = {c.name for c in self.study.columns} if self.study is not None else set()
+        met = [p for row in view.ladder.rows for p in row.predictors] + list(view.predictors)
+        new = [p for p in dict.fromkeys(met) if interaction_parts(p, columns) and p not in self.interactions]
+        if new:
+            self.interactions += new
+            self._add_interaction_items()
         self._sync_ticks(view.predictors)
         self.counts.setText(view.counts_text.replace("  \u00b7  ", "\n"))
 
@@ -549,6 +614,32 @@ class ResultsPane(QWidget):
         layout.addWidget(self.title)
         self.counts = _wrapped("", "Rows used and events")
         layout.addWidget(self.counts)
+        self.contents = _wrapped("", "What the model contains")
+        layout.addWidget(self.contents)
+
+        # Once the penalised fit is chosen: say so above the numbers, with the way back.
+        self.method_banner = style.Banner("information", colour=style.BLUISH_GREEN,
+                                          accessible_name="Fitting method")
+        self.ordinary_button = QPushButton("Go back to the ordinary fit")
+        self.ordinary_button.setAccessibleName("Go back to the ordinary (maximum-likelihood) fit")
+        self.ordinary_button.setToolTip("Show the models fitted by ordinary maximum likelihood again")
+        self.ordinary_button.clicked.connect(lambda: self.use_penalised(False))
+        self.method_banner.layout().addWidget(self.ordinary_button, 0, Qt.AlignmentFlag.AlignTop)
+        self.method_banner.hide()
+        layout.addWidget(self.method_banner)
+
+        row = QHBoxLayout()
+        self.profile_check = QCheckBox("Add &profile-likelihood intervals")
+        self.profile_check.setAccessibleName("Add profile-likelihood intervals to every model")
+        self.profile_check.setToolTip(
+            "Work out 95% profile-likelihood intervals beside the Wald ones. They take longer, so Twofold works "
+            "them out by itself only for small models; tick this to have them for every model.")
+        self.profile_check.toggled.connect(self._profile_toggled)
+        self._profile_wanted = False  # the user's choice for models too big to do without asking
+        row.addWidget(self.profile_check)
+        self.profile_status = _wrapped("", "Profile-likelihood intervals")
+        row.addWidget(self.profile_status, 1)
+        layout.addLayout(row)
 
         self.coefficients = CoefficientModel(self)
         self.table = QTableView()
@@ -563,6 +654,9 @@ class ResultsPane(QWidget):
         self.table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         self.table.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
         self.table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        # The profile interval is the model's last column; on screen it stands beside the Wald one.
+        self.table.horizontalHeader().moveSection(CoefficientModel.PROFILE, 3)
+        self.table.setColumnHidden(CoefficientModel.PROFILE, True)
         layout.addWidget(self.table)
 
         self.notes_box = QWidget()
@@ -581,6 +675,9 @@ class ResultsPane(QWidget):
         self.previous = _wrapped("", "Test against the model before")
         t.addWidget(self.overall)
         t.addWidget(self.previous)
+        self.shape = _wrapped("", "Tests of curved effects and interactions")
+        self.shape.hide()
+        t.addWidget(self.shape)
         self.model_notes_box = QWidget()
         self.model_notes_layout = QVBoxLayout(self.model_notes_box)
         self.model_notes_layout.setContentsMargins(0, 0, 0, 0)
@@ -593,11 +690,107 @@ class ResultsPane(QWidget):
         outer.addWidget(scroll, 1)
         self._show_parts(False)
         session.resultsChanged.connect(self.show_results)
+        if hasattr(session, "profileReady"):
+            session.profileReady.connect(self.show_profile)
+        #: Whether profile intervals are awaited or shown for the model shown, and the id of the
+        #: last explicit request for them (small models' are started by the worker itself).
+        self.profile_expected = False
+        self.profile_request: int | None = None
+        self.profile = None
+        #: The "use the penalised fit" button beside a separation warning, when one is offered.
+        self.firth_button = None
 
     def _show_parts(self, on: bool) -> None:
-        for w in (self.title, self.counts, self.table, self.notes_box, self.tests, self.assessment_box):
+        for w in (self.title, self.counts, self.contents, self.table, self.notes_box, self.tests,
+                  self.assessment_box, self.profile_status):
             w.setVisible(on)
         self.placeholder.setVisible(not on)
+        if not on:
+            self.method_banner.hide()
+
+    # ---- penalised fit ------------------------------------------------------
+    def use_penalised(self, on: bool) -> int:
+        """Ask for the penalised (Firth) fit of the models, or the ordinary fit again; returns the id."""
+        return self.session.set_penalised(on)
+
+    def _notice_banner(self, text: str, note, accessible: str, view):
+        banner = style.Banner("warning", text, colour=style.ORANGE, accessible_name=accessible)
+        if note.code == "separation" and view.separation and not view.penalised:
+            # The remedy beside the warning it answers.
+            button = QPushButton("Use the penalised (Firth) fit instead")
+            button.setAccessibleName("Use the penalised (Firth) fit instead")
+            button.setToolTip("Refit by Firth's penalised likelihood, which keeps the estimates finite when a "
+                              "group has only events or only non-events. You can come back to this fit.")
+            button.clicked.connect(lambda: self.use_penalised(True))
+            banner.layout().addWidget(button, 0, Qt.AlignmentFlag.AlignTop)
+            self.firth_button = button
+        return banner
+
+    # ---- profile-likelihood intervals -------------------------------------------
+    def _profile_toggled(self, on: bool) -> None:
+        view = self.view
+        if view is not None and view.profile_auto:
+            return  # worked out anyway: the box only speaks for bigger models
+        self._profile_wanted = on
+        self.session.profile_always = on  # the worker then starts them with every new model
+        if view is None:
+            return
+        if on:
+            self._ask_profile(request=True)
+        else:
+            self.profile_expected = False
+            self.coefficients.set_profile()
+            self.table.setColumnHidden(CoefficientModel.PROFILE, True)
+            self.profile_status.setText("")
+            self._size_table()
+
+    def _profile_words(self) -> str:
+        return "profile penalised-likelihood" if self.coefficients.penalised else "profile-likelihood"
+
+    def _ask_profile(self, request: bool) -> None:
+        """Show that the intervals are being worked out; ``request`` asks for them (else the worker started them)."""
+        self.coefficients.set_profile(pending=True)
+        self.table.setColumnHidden(CoefficientModel.PROFILE, False)
+        self.profile_status.setText(f"Working out the {self._profile_words()} intervals\u2026 "
+                                    "(the window stays usable meanwhile)")
+        self.profile_expected = True
+        if request:
+            self.profile_request = self.session.request_profile()
+        self._size_table()
+
+    def _start_profile(self, view) -> None:
+        """New results: ask for their profile intervals if the model is small or the user wants them."""
+        with QSignalBlocker(self.profile_check):
+            self.profile_check.setChecked(self._profile_wanted)
+        # Small models get the intervals anyway: the box would do nothing, so it is not shown.
+        self.profile_check.setVisible(not view.profile_auto)
+        self.profile = None
+        if view.profile_auto or self._profile_wanted:
+            self._ask_profile(request=False)
+        else:
+            self.profile_expected = False
+            self.table.setColumnHidden(CoefficientModel.PROFILE, True)
+            self.profile_status.setText("")
+
+    def show_profile(self, pv) -> None:
+        """Profile intervals arrived (only ever the newest request's: the session drops stale ones)."""
+        view = self.view
+        if pv is None or view is None or not self.profile_expected:
+            return
+        if pv.rung != view.rung or pv.penalised != view.penalised:
+            return
+        self.profile = pv
+        if pv.error:
+            self.coefficients.set_profile({line.name: "not available" for line in view.lines if line.kind == "term"})
+            self.profile_status.setText(pv.error)
+        else:
+            self.coefficients.set_profile(pv.texts, pv.intervals)
+            how = ("worked out by itself, since this model is small" if view.profile_auto else "as asked")
+            words = self._profile_words()
+            self.profile_status.setText(
+                f"Beside each Wald interval: the 95% {words} interval ({how}). It need not be symmetric and "
+                "holds up better with few events or large odds ratios." + (f" {pv.note}" if pv.note else ""))
+        self._size_table()
 
     @staticmethod
     def _clear(layout) -> None:
@@ -611,18 +804,24 @@ class ResultsPane(QWidget):
         if view is None:
             self.coefficients.set_lines(())
             self._show_parts(False)
+            self.profile_check.hide()
             self.shown.emit(None)
             return
         self._show_parts(True)
         self.title.setText(view.title)
         self.counts.setText(view.counts_text)
-        self.coefficients.set_lines(view.lines)
+        self.contents.setText(view.contents_text)
+        self.method_banner.setText(view.method_text)
+        self.method_banner.setVisible(view.penalised)
+        self.coefficients.set_lines(view.lines, view.penalised)
+        self._start_profile(view)
         self.table.clearSpans()
         for r, line in enumerate(view.lines):
             if line.kind == "heading":
                 self.table.setSpan(r, 0, 1, 3)
         self._size_table()
 
+        self.firth_button = None
         self._clear(self.notes_layout)
         seen = set()
         for note in view.predictor_notes:
@@ -632,8 +831,7 @@ class ResultsPane(QWidget):
                 continue
             seen.add(key)
             who = ", ".join(columns)
-            banner = style.Banner("warning", f"{who}: {note.message}", colour=style.ORANGE,
-                                  accessible_name=f"Warning about {who}")
+            banner = self._notice_banner(f"{who}: {note.message}", note, f"Warning about {who}", view)
             self.notes_layout.addWidget(banner)
         self.notes_box.setVisible(bool(view.predictor_notes))
 
@@ -645,10 +843,19 @@ class ResultsPane(QWidget):
         else:
             self.previous.setText("<b>Change from the model before.</b> This is the first model of the ladder; "
                                   "tick or untick a predictor to test the change.")
+        if view.shape_tests:
+            self.shape.setText("".join(f"<p><b>{esc(t.title)}</b> {esc(t.text)}<br>{esc(t.reading)}</p>"
+                                       for t in view.shape_tests))
+        self.shape.setVisible(bool(view.shape_tests))
         self._clear(self.model_notes_layout)
+        offered = any(n.code == "separation" for n in view.predictor_notes)
         for note in view.model_notes:
-            self.model_notes_layout.addWidget(style.Banner("warning", note.message, colour=style.ORANGE,
-                                                           accessible_name="Warning about the model"))
+            if offered and note.code == "separation":
+                banner = style.Banner("warning", note.message, colour=style.ORANGE,
+                                      accessible_name="Warning about the model")
+            else:
+                banner = self._notice_banner(note.message, note, "Warning about the model", view)
+            self.model_notes_layout.addWidget(banner)
         self.model_notes_box.setVisible(bool(view.model_notes))
         self.assessment_box.results_shown(view)
         self.shown.emit(view)
@@ -659,9 +866,13 @@ class ResultsPane(QWidget):
         fm = self.table.fontMetrics()
         labels = [("    " + x.label) if x.kind == "term" else x.label for x in self.coefficients.lines
                   if x.kind != "heading"]
+        if not self.table.isColumnHidden(CoefficientModel.PROFILE) and self.coefficients.profile_pending:
+            # As wide as the Wald intervals while waiting, so the table does not jump when they arrive.
+            self.table.setColumnWidth(CoefficientModel.PROFILE,
+                                      max(self.table.columnWidth(2), self.table.columnWidth(CoefficientModel.PROFILE)))
         if labels:
             icon = fm.height() + 8
-            width = max(fm.horizontalAdvance(s) for s in labels) + icon + 16
+            width = max(fm.horizontalAdvance(s) for s in labels) + icon + 10
             # A heading spans the first three columns: widen the first so it reads in full.
             bold = QFontMetrics(style.scaled_font(self.table, 1.0, bold=True))
             spanned = self.table.columnWidth(1) + self.table.columnWidth(2)
@@ -789,8 +1000,9 @@ class AssessmentSection(QFrame):
                 f"<tr><td>{esc(c)}</td><td>{esc(lr)}</td><td>{esc(w)}</td>"
                 f"<td>{'&#9888; prefer the likelihood-ratio test here' if flag else ''}</td></tr>"
                 for c, lr, w, flag in view.drop_one)
+            kind = "penalised likelihood-ratio test" if view.penalised else "likelihood-ratio test"
             self.drop_one.setText(
-                "<b>Dropping each predictor in turn</b> (likelihood-ratio test on the same rows, beside the Wald "
+                f"<b>Dropping each predictor in turn</b> ({kind} on the same rows, beside the Wald "
                 "test):<table cellspacing='0' cellpadding='3'><tr><th align='left'>predictor</th>"
                 "<th align='left'>likelihood-ratio test</th><th align='left'>Wald test</th><th></th></tr>"
                 f"{rows}</table>")

@@ -14,8 +14,17 @@ from twofold.core.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
-    OutcomeView, ResultsView, StudyView, TestView,
+    OutcomeView, ProfileView, ResultsView, StudyView, TestView,
 )
+
+#: Profile-likelihood intervals are worked out without being asked when rows times
+#: coefficients is at most this (maximum likelihood) or the second figure (penalised):
+#: measured on this project's samples on one core, about 0.2 s and 0.4 s at those sizes.
+PROFILE_AUTO_WORK = 50_000
+PENALISED_PROFILE_AUTO_WORK = 20_000
+
+#: The multiplication sign joining the two predictors of an interaction ("age \u00d7 sex").
+TIMES = "\u00d7"
 
 
 def value_label(v) -> str:
@@ -70,6 +79,7 @@ def column_views(study) -> tuple:
             counts=tuple(info.counts) if factor else (),
             reference=reference, reference_label=value_label(reference) if reference is not None else "",
             is_factor=factor, reason=info.reason, role_choices=_role_choices(info),
+            spline_knots=study.splines.get(name),
         ))
     return tuple(out)
 
@@ -107,39 +117,121 @@ def outcome_view(study, message: str = "", needs_event: bool = False, name: str 
 
 # ---- results --------------------------------------------------------------
 
-def _predictors_text(predictors) -> str:
-    return ", ".join(predictors) if predictors else "none (overall event rate only)"
+def interaction_parts(study, name: str):
+    """``(a, b)`` when ``name`` is the interaction "a:b" of two columns, else None."""
+    if name in study.columns or ":" not in name:
+        return None
+    a, b = name.split(":", 1)
+    return a.strip(), b.strip()
 
 
-def _change_text(rung) -> str:
-    parts = [f"+ {p}" for p in rung.added] + [f"\u2212 {p}" for p in rung.removed]
+def term_text(study, name: str, long: bool = False) -> str:
+    """A predictor as the user should read it: "age (curved, 4 knots)", "age \u00d7 sex".
+
+    ``long`` adds what an interaction means and where a spline's knots are.
+    """
+    pair = interaction_parts(study, name)
+    if pair is not None:
+        text = f"{pair[0]} {TIMES} {pair[1]}"
+        return text + (f" (interaction: the effect of {pair[0]} may differ with {pair[1]})" if long else "")
+    knots = study.splines.get(name)
+    if knots is None:
+        return name
+    if long:
+        try:
+            at = ", ".join(f"{v:g}" for v in study.block(name).knots)
+        except Exception:  # a spline the core cannot encode is reported by the fit itself
+            at = ""
+        return f"{name} (curved: spline with {knots} knots" + (f" at {at})" if at else ")")
+    return f"{name} (curved, {knots} knots)"
+
+
+def _predictors_text(predictors, study=None) -> str:
+    if not predictors:
+        return "none (overall event rate only)"
+    return ", ".join(term_text(study, p) if study is not None else p for p in predictors)
+
+
+def _change_text(rung, study=None) -> str:
+    def name(p):
+        return term_text(study, p) if study is not None else p
+
+    parts = [f"+ {name(p)}" for p in rung.added] + [f"\u2212 {name(p)}" for p in rung.removed]
     return ", ".join(parts)
 
 
-def _term_label(row) -> str:
+#: Tool tips of rows that are not read one by one.
+SPLINE_HINT = ("Part of a curved effect (a spline): these rows describe one curve together, and the curve "
+               "terms have no meaning on their own. The effect plot (Model shape menu) shows the curve.")
+INTERACTION_HINT = ("An interaction coefficient: how much the odds ratio of one predictor is multiplied for "
+                    "each step of the other. The Model shape menu shows the odds ratios at chosen values.")
+
+
+def _part_text(block, level) -> str:
+    """A factor's side of an interaction level: "M vs F"."""
+    return f"{value_label(level)} vs {value_label(block.reference)}"
+
+
+def _interaction_label(block, level) -> str:
+    """"a \u00d7 b (per 1 unit of each)", "los \u00d7 sex: M vs F (per 1 unit)", "sex \u00d7 ward: M vs F, B vs A"."""
+    a, b = block.reference
+    name = f"{a.column} {TIMES} {b.column}"
+    if level is None:
+        return f"{name} (per 1 unit of each)"
+    if a.kind == "factor" and b.kind == "factor":
+        la = next((v for v in a.levels if str(level).startswith(f"{v}:")), str(level).split(":")[0])
+        lb = str(level)[len(str(la)) + 1:]
+        lb = next((v for v in b.levels if str(v) == lb), lb)
+        return f"{name}: {_part_text(a, la)}, {_part_text(b, lb)}"
+    # One number and one factor: per unit of the number, as its own row says.
+    return f"{name}: {_part_text(a if a.kind == 'factor' else b, level)} (per 1 unit)"
+
+
+def _term_label(row, block=None) -> str:
+    if block is not None and block.kind == "spline":
+        if row["level"] is None:
+            return f"{row['column']} (per 1 unit, below the first knot)"
+        number = str(row["level"]).removeprefix("nonlinear ").strip()
+        return f"{row['column']}: curve term {number}"
+    if block is not None and block.kind == "interaction":
+        return _interaction_label(block, row["level"])
     if row["level"] is None:
         return f"{row['column']} (per 1 unit)"
     return f"{row['column']}: {value_label(row['level'])} vs {value_label(row['reference'])}"
 
 
+def _heading(col, block, t, first_row) -> tuple[str, str]:
+    """The label of a multi-coefficient term's heading row and what its coefficients are."""
+    joint = f"joint Wald chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)}"
+    if block is not None and block.kind == "spline":
+        knots = ", ".join(f"{v:g}" for v in block.knots)
+        return (f"{col} as a whole, curved (spline with {len(block.knots)} knots)\nknots at {knots}\n{joint}",
+                f"{t.df} coefficients describing one curve")
+    if block is not None and block.kind == "interaction":
+        a, b = block.reference
+        return (f"{a.column} {TIMES} {b.column} as a whole (interaction)\n{joint}",
+                f"{t.df} interaction coefficients")
+    ref = value_label(first_row["reference"]) if first_row["reference"] is not None else ""
+    return f"{col} as a whole\n{joint}", f"{t.df + 1} groups, compared with {ref}"
+
+
 def coefficient_lines(fit, warned: dict) -> tuple:
-    """Rows of the coefficient table: a heading with the joint test above each factor's levels."""
+    """Rows of the coefficient table: a heading with the joint test above each multi-coefficient term."""
     rows = fit.coefficient_rows
     tests = fit.term_tests
+    blocks = {b.column: b for b in fit.design.blocks}
     lines = []
     headed = set()
     for r in rows[1:]:
         col = r["column"]
+        block = blocks.get(col)
         if col in tests and col not in headed:
             t = tests[col]
-            n_groups = len(fit.term_index[col]) + 1
-            ref = value_label(r["reference"]) if r["reference"] is not None else ""
+            label, what = _heading(col, block, t, r)
             lines.append(CoefficientLine(
-                kind="heading", column=col,
-                label=(f"{col} as a whole\njoint Wald chi-square {fmt_num(t.statistic, 2)} "
-                       f"on {_degrees(t.df)}"),
+                kind="heading", column=col, label=label,
                 texts={"p_value": fmt_p(t.p_value), "statistic": fmt_num(t.statistic, 2), "df": str(t.df),
-                       "groups": f"{n_groups} groups, compared with {ref}"},
+                       "groups": what},
                 values={"p_value": t.p_value, "statistic": t.statistic, "df": t.df},
                 warnings=tuple(warned.get(col, ())),
             ))
@@ -154,16 +246,26 @@ def coefficient_lines(fit, warned: dict) -> tuple:
             "estimate": fmt_num(r["estimate"], 4),
             "std_error": fmt_num(r["std_error"], 4),
         }
-        lines.append(CoefficientLine("term", col, _term_label(r), texts, values,
-                                     tuple(warned.get(col, ())), level=r["level"]))
+        hint = {"spline": SPLINE_HINT, "interaction": INTERACTION_HINT}.get(getattr(block, "kind", ""), "")
+        lines.append(CoefficientLine("term", col, _term_label(r, block), texts, values,
+                                     tuple(warned.get(col, ())), level=r["level"], name=r["name"], hint=hint))
     i = rows[0]
     lines.append(CoefficientLine(
         "intercept", None, "baseline odds (intercept)",
         {"odds_ratio": "", "ci": "", "p_value": fmt_p(i["p_value"]), "z": fmt_num(i["z"], 2),
          "estimate": fmt_num(i["estimate"], 4), "std_error": fmt_num(i["std_error"], 4)},
-        {k: i[k] for k in ("p_value", "z", "estimate", "std_error")},
+        {k: i[k] for k in ("p_value", "z", "estimate", "std_error")}, name=i["name"],
     ))
     return tuple(lines)
+
+
+def is_penalised(fit) -> bool:
+    """Whether ``fit`` is Firth's penalised fit (it carries a penalised log-likelihood)."""
+    return getattr(fit, "penalized_llf", None) is not None
+
+
+def _lr_name(fit) -> str:
+    return "Penalised likelihood-ratio" if is_penalised(fit) else "Likelihood-ratio"
 
 
 def overall_view(fit) -> TestView:
@@ -171,7 +273,7 @@ def overall_view(fit) -> TestView:
     if t.df <= 0:
         return TestView("The model as a whole", "No predictors are ticked, so there is nothing to test yet.",
                         reading_overall(None), None, 0, None)
-    text = (f"Likelihood-ratio (G) test against the constant-only model: G = {fmt_num(t.g, 2)} "
+    text = (f"{_lr_name(fit)} (G) test against the constant-only model: G = {fmt_num(t.g, 2)} "
             f"on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
     return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
 
@@ -193,29 +295,48 @@ def nested_between(ladder, i: int, j: int):
     return None
 
 
-def nested_view(ladder, parent: int, index: int) -> TestView:
-    """The test of rung ``index`` against the rung it was built from."""
+def _penalised_between(ladder, choice, study, i: int, j: int):
+    """The penalised likelihood-ratio test between the penalised fits of rungs i and j (None if not nested)."""
+    from twofold.core.fit import LikelihoodRatioTest, nested_test
+
+    si, sj = set(ladder.rungs[i].predictors), set(ladder.rungs[j].predictors)
+    a, b = choice.fit_of(study, ladder, i), choice.fit_of(study, ladder, j)
+    if si == sj:
+        return None
+    if si <= sj:
+        return nested_test(a, b)
+    if sj <= si:
+        t = nested_test(b, a)
+        return LikelihoodRatioTest(t.g, t.df, t.p_value, removed=tuple(sorted(si - sj)), n_rows=t.n_rows)
+    return None
+
+
+def nested_view(ladder, parent: int, index: int, choice=None, study=None) -> TestView:
+    """The test of rung ``index`` against the rung it was built from (penalised when ``choice`` says so)."""
     rung = ladder.rungs[index]
-    change = _change_text(rung) or "no change of predictors"
+    change = _change_text(rung, study) or "no change of predictors"
     title = f"Change from model {parent + 1} ({change})"
-    t = nested_between(ladder, parent, index)
+    penalised = choice is not None and choice.penalised
+    t = (_penalised_between(ladder, choice, study, parent, index) if penalised
+         else nested_between(ladder, parent, index))
     if t is None:
         cmp = ladder.compare(parent, index)
         text = (f"{cmp.note} AIC difference (this model minus model {parent + 1}): "
                 f"{fmt_num(cmp.aic_difference, 2)}; BIC difference: {fmt_num(cmp.bic_difference, 2)}.")
         return TestView(title, text, "", None, None, None, nested=False)
-    which = list(t.added) or list(t.removed)
+    which = [term_text(study, p) if study is not None else p for p in (list(t.added) or list(t.removed))]
     rows = f", both on the same {t.n_rows:,} rows" if t.n_rows else ""
+    kind = "Penalised likelihood-ratio test" if penalised else "Test"
     if t.removed:
-        lead = f"Test of the larger model (with {', '.join(t.removed)}) against this one{rows}"
+        lead = f"{kind} of the larger model (with {', '.join(which)}) against this one{rows}"
     else:
-        lead = f"Test of this model against model {parent + 1}{rows}"
+        lead = f"{kind} of this model against model {parent + 1}{rows}"
     text = f"{lead}: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}."
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return TestView(title, text, reading, t.g, t.df, t.p_value)
 
 
-def ladder_view(ladder, parents: dict) -> LadderView:
+def ladder_view(ladder, parents: dict, study=None, penalised: bool = False) -> LadderView:
     rows = []
     for k, rung in enumerate(ladder.rungs):
         fit = rung.fit
@@ -225,26 +346,147 @@ def ladder_view(ladder, parents: dict) -> LadderView:
                  "aic": fmt_num(fit.aic, 1), "g": "", "df": "", "p_value": ""}
         change = "first model"
         if parent is not None:
-            change = (_change_text(rung) or "no change") + f" (from model {parent + 1})"
+            change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
             test = nested_between(ladder, parent, k)
             if test is not None:
                 g, df, p = test.g, test.df, test.p_value
                 texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
             else:
                 texts.update(g="not nested")
-        rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors), change,
+        rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors, study), change,
                               fit.n_params, fit.llf, fit.aic, g, df, p, texts, k == ladder.current))
     n = len(ladder.rows) if ladder.rows is not None else 0
-    return LadderView(tuple(rows), ladder.current, n, tuple(x.message for x in ladder.notices))
+    notices = [x.message for x in ladder.notices]
+    if penalised:
+        notices.append("The ladder lists the ordinary (maximum-likelihood) fits; the results pane shows the "
+                       "penalised fit of the model chosen.")
+    return LadderView(tuple(rows), ladder.current, n, tuple(notices))
 
 
-def results_view(study, ladder, parents: dict) -> ResultsView | None:
-    """The current rung's results, or None when the ladder is empty."""
+#: What the results pane says once the penalised fit is chosen.
+PENALISED_TEXT = (
+    "Penalised fit in use (Firth's method). The estimates, intervals and tests below come from the penalised "
+    "likelihood: the model tests are penalised likelihood-ratio tests, the profile intervals are profile "
+    "penalised-likelihood intervals, and the Wald intervals use the penalised fit's standard errors. "
+    "Predicted risks use the intercept-corrected version (FLIC), so on average they match the observed event rate."
+)
+
+
+class FitChoice:
+    """Which fit the window shows for a rung: the ladder's own (maximum likelihood) or Firth's penalised refit.
+
+    Lives on the worker thread.  Penalised refits are cached per rung and
+    dropped when the rung is refitted or leaves the ladder.
+    """
+
+    def __init__(self):
+        self.penalised = False
+        self.problem = ""
+        self._cache: list = []   # (rung, its maximum-likelihood fit, the penalised fit)
+
+    def fit_of(self, study, ladder, index: int):
+        """The fit to show for rung ``index``; falls back to the ordinary fit (and says why) if Firth's fails."""
+        from twofold.core.errors import TwofoldError
+
+        rung = ladder.rungs[index]
+        if not self.penalised:
+            return rung.fit
+        for r, ml, pen in self._cache:
+            if r is rung and ml is rung.fit:
+                return pen
+        try:
+            pen = study.fit(list(rung.predictors), rows=rung.fit.design.rows, firth=True)
+        except TwofoldError as exc:
+            self.penalised = False
+            self.problem = f"The penalised fit could not be worked out ({exc}), so the ordinary fit is shown."
+            return rung.fit
+        live = [e for e in self._cache if e[0].fit is e[1] and any(e[0] is r for r in ladder.rungs)]
+        self._cache = live + [(rung, rung.fit, pen)]
+        return pen
+
+    def shown(self, study, ladder):
+        """The fit of the model shown, or None when the ladder is empty."""
+        if study is None or ladder is None or ladder.current is None or not ladder.rungs:
+            return None
+        return self.fit_of(study, ladder, ladder.current)
+
+
+def shape_tests(study, fit) -> tuple:
+    """Tests of the model's shape: a straight line against each spline, the model without each interaction."""
+    from twofold.core.errors import TwofoldError
+    from twofold.core.modelling import interaction_tests, nonlinearity_tests
+
+    out = []
+    try:
+        curves = nonlinearity_tests(study, fit)
+    except TwofoldError:  # a test the core cannot make here is left out, not guessed
+        curves = []
+    try:
+        crossings = interaction_tests(study, fit)
+    except TwofoldError:
+        crossings = []
+    for t in curves:
+        text = (f"{_lr_name(fit)} test of the curve ({len(t.knots)} knots) against a straight line, on the same "
+                f"rows: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+        reading = (f"The effect of {t.term} bends more than chance alone would easily explain."
+                   if t.p_value < 0.05 else f"A straight line for {t.term} may serve as well as the curve.")
+        out.append(TestView(f"Is the effect of {t.term} curved?", text, reading, t.g, t.df, t.p_value))
+    for t in crossings:
+        a, b = interaction_parts(study, t.term) or (t.term, "")
+        text = (f"{_lr_name(fit)} test of the model with {a} {TIMES} {b} against the model without it: "
+                f"G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+        reading = (f"The effect of {a} differs with {b} more than chance alone would easily explain."
+                   if t.p_value < 0.05 else f"The data do not clearly show the effect of {a} differing with {b}.")
+        out.append(TestView(f"Does the effect of {a} differ with {b}?", text, reading, t.g, t.df, t.p_value))
+    return tuple(out)
+
+
+def profile_auto(fit) -> bool:
+    """Whether ``fit`` is small enough for its profile intervals to be worked out without being asked."""
+    limit = PENALISED_PROFILE_AUTO_WORK if is_penalised(fit) else PROFILE_AUTO_WORK
+    return fit.n_used * max(fit.n_params - 1, 0) <= min(limit, PROFILE_AUTO_WORK)
+
+
+def profile_view(fit, rung: int) -> ProfileView:
+    """The core's profile-likelihood intervals of ``fit`` (profile penalised likelihood for a Firth fit), worded."""
+    from twofold.core.errors import TwofoldError
+    from twofold.core.penalised import profile_intervals
+
+    from twofold.core.fit import _one_blas_thread
+
+    penalised = is_penalised(fit)
+    try:
+        # One BLAS thread, as for every fit: this thread runs beside the core worker on two cores.
+        with _one_blas_thread():
+            intervals = profile_intervals(fit)
+    except TwofoldError as exc:
+        return ProfileView(rung, penalised, error=f"The profile-likelihood intervals could not be worked out: {exc}")
+    missing = [name for name, (lo, hi) in intervals.items() if math.isnan(lo) or math.isnan(hi)]
+    texts = {name: ("not available" if name in missing else f"{fmt_or(lo)} to {fmt_or(hi)}")
+             for name, (lo, hi) in intervals.items()}
+    open_ended = [name for name, (lo, hi) in intervals.items() if lo == 0 or math.isinf(hi)]
+    notes = []
+    if open_ended:
+        notes.append("An interval that reads 0 or infinite has no end on that side: the data set no limit there, "
+                     "as happens when a group has only events or only non-events.")
+    if missing:
+        notes.append("Where an interval reads \"not available\", its ends could not be traced on these rows "
+                     "(the likelihood is too flat there); read the Wald interval with care.")
+    note = " ".join(notes)
+    return ProfileView(rung, penalised, dict(intervals), texts, note)
+
+
+def results_view(study, ladder, parents: dict, choice: FitChoice | None = None) -> ResultsView | None:
+    """The current rung's results, or None when the ladder is empty.
+
+    ``choice`` says whether the rung's penalised (Firth) refit is shown instead of its own fit.
+    """
     if ladder is None or ladder.current is None or not ladder.rungs:
         return None
     index = ladder.current
     rung = ladder.rungs[index]
-    fit = rung.fit
+    fit = choice.fit_of(study, ladder, index) if choice is not None else rung.fit
+    penalised = is_penalised(fit)
     in_model = set(rung.predictors)
     warned: dict[str, list[str]] = {}
     predictor_notes, model_notes = [], []
@@ -256,6 +498,10 @@ def results_view(study, ladder, parents: dict) -> ResultsView | None:
                 predictor_notes.append(NoteView(n.code, n.message, s))
         else:
             model_notes.append(NoteView(n.code, n.message, None))
+    if choice is not None and choice.problem:
+        model_notes.append(NoteView("not_converged", choice.problem, None))
+        choice.problem = ""
+    separation = any(n.code == "separation" for n in rung.fit.notices)
     account = getattr(fit, "account", None)
     rows_read = account.rows_read if account else fit.n_used
     share = 100.0 * fit.events / max(fit.n_used, 1)
@@ -267,15 +513,20 @@ def results_view(study, ladder, parents: dict) -> ResultsView | None:
     event_label = value_label(study.event)
     title = f"Model {index + 1} of {len(ladder.rungs)}: the odds that {study.outcome} = {event_label}"
     parent = parents.get(index)
-    previous = nested_view(ladder, parent, index) if parent is not None else None
+    previous = nested_view(ladder, parent, index, choice, study) if parent is not None else None
+    contents = "In the model: " + _predictors_text(rung.predictors, study) + "."
+    if any(study.splines.get(p) or interaction_parts(study, p) for p in rung.predictors):
+        contents = "In the model: " + ", ".join(term_text(study, p, long=True) for p in rung.predictors) + "."
     return ResultsView(
         rung=index, n_rungs=len(ladder.rungs), outcome=study.outcome, event_label=event_label,
         predictors=tuple(rung.predictors), title=title, counts_text=counts,
         lines=coefficient_lines(fit, warned), overall=overall_view(fit), previous=previous,
         predictor_notes=tuple(predictor_notes), model_notes=tuple(model_notes),
-        ladder=ladder_view(ladder, parents), rows_used=fit.n_used, rows_read=rows_read,
+        ladder=ladder_view(ladder, parents, study, penalised), rows_used=fit.n_used, rows_read=rows_read,
         events=fit.events, events_per_parameter=epp if math.isfinite(epp) else None,
-        log_likelihood=fit.llf,
+        log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(study, fit),
+        penalised=penalised, method_text=PENALISED_TEXT if penalised else "", separation=separation,
+        profile_auto=profile_auto(fit),
     )
 
 
@@ -314,17 +565,27 @@ SMOOTH_UNRELIABLE_NOTE = (
 )
 
 
+#: Beside the calibration figures of a penalised fit (in place of the core's note for ordinary fits).
+PENALISED_CALIBRATION_NOTE = (
+    "With the penalised fit and its intercept correction (FLIC), calibration-in-the-large is 0 by construction "
+    "on the records it was fitted to, so it says nothing here; the slope is usually above 1 on them, because the "
+    "penalty pulls the estimates towards zero. Both become informative on a new extract or after bootstrap "
+    "correction."
+)
+
+
 def _pct(x) -> str:
     return "not available" if x is None or not math.isfinite(x) else f"{100 * x:.1f}%"
 
 
-def assessment_view(study, ladder, result, figures: dict) -> AssessmentView:
-    """The assessment of the model shown, worded (``result`` is a core ``Assessment``)."""
+def assessment_view(study, ladder, result, figures: dict, fit=None) -> AssessmentView:
+    """The assessment of the model shown, worded (``result`` is a core ``Assessment`` of ``fit``)."""
     from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
     from twofold.core.influence import VIF_THRESHOLD
 
     index = ladder.current
-    fit = ladder.rungs[index].fit
+    fit = ladder.rungs[index].fit if fit is None else fit
+    penalised = is_penalised(fit)
     a = result.auc
     values = {"auc": a.auc, "auc_ci_low": a.ci_low, "auc_ci_high": a.ci_high, "brier": result.brier,
               "scaled_brier": result.scaled_brier, "calibration_slope": result.calibration.slope,
@@ -394,11 +655,15 @@ def assessment_view(study, ladder, result, figures: dict) -> AssessmentView:
             f"{table.false_negatives:,} events missed, {table.true_negatives:,} correctly cleared).")
     unreliable = result.smooth is not None and bool(result.smooth.unreliable)
     return AssessmentView(
-        rung=index, title=f"How good is model {index + 1}?", auc_text=auc_text, auc_reading=auc_reading,
-        brier_text=brier_text, calibration_text=calibration_text, calibration_note=APPARENT_CALIBRATION_NOTE,
+        rung=index, title=f"How good is model {index + 1}?" + (
+            " (penalised fit; predicted risks intercept-corrected, FLIC)" if penalised else ""),
+        auc_text=auc_text, auc_reading=auc_reading,
+        brier_text=brier_text, calibration_text=calibration_text,
+        calibration_note=PENALISED_CALIBRATION_NOTE if penalised else APPARENT_CALIBRATION_NOTE,
         hl_text=hl_text, hl_note=HOSMER_LEMESHOW_NOTE, pseudo_r2_text=pseudo, drop_one=drop, vif=vif,
         vif_note=vif_note, sample_size_text=sample, sample_size_short=short, influential=influential,
         classification_text=classification, threshold=threshold, threshold_note=THRESHOLD_NOTE,
         calibration_plot_note=SMOOTH_UNRELIABLE_NOTE if unreliable else "",
         notes=tuple(n.message for n in result.notices), values=values, figures=dict(figures),
+        penalised=penalised,
     )

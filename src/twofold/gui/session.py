@@ -22,7 +22,7 @@ from twofold.gui.views import Failure
 from twofold.gui.worker import CoreWorker, Job
 
 #: The displays a job can update; each has its own "newest request" mark.
-FACETS = ("study", "columns", "outcome", "results", "comparison", "assessment")
+FACETS = ("study", "columns", "outcome", "results", "comparison", "assessment", "profile")
 
 #: Risk threshold of the classification table until the user picks another.
 DEFAULT_THRESHOLD = 0.5
@@ -44,6 +44,8 @@ class Session(QObject):
     loadStarted = Signal(str)         # a file is being opened: ticks would apply to the old one
     loadProgress = Signal(float)      # share of the file read so far, 0 to 1
     modellingReady = Signal(int, object)  # (request id, payload) of a model-shape request
+    profileReady = Signal(object)     # ProfileView of the model shown (intervals worked out on their own thread)
+    _profileComputed = Signal(int, object)  # (request id, ProfileView) from the profile thread
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -73,6 +75,16 @@ class Session(QObject):
         self._assessed = None
         # Which file opening is still wanted; an older one stops at its next progress report.
         self._load_generation = 0
+        # Ordinary or penalised fit shown (twofold.gui.present.FitChoice, worker side), the
+        # profile-interval thread, and the last intervals worked out, keyed by their fit.
+        self._choice = None
+        self._profiler = None
+        self._profiled = None
+        self._profile_future = None  # (request id, Future) of the intervals being traced
+        self.last_profile = None
+        #: Profile intervals for every model, not only small ones (GUI side; read by the worker).
+        self.profile_always = False
+        self._profileComputed.connect(self._on_profiled)
 
     # ---- life cycle ---------------------------------------------------
     def start(self) -> None:
@@ -83,6 +95,8 @@ class Session(QObject):
 
     def shutdown(self) -> None:
         self._worker.stop()
+        if self._profiler is not None:
+            self._profiler.shutdown(wait=False, cancel_futures=True)
 
     @property
     def busy(self) -> bool:
@@ -143,6 +157,77 @@ class Session(QObject):
         return self._submit("assess", lambda: self._job_assess(None, t), facets=("assessment",),
                             coalesce="assess")
 
+    def set_penalised(self, on: bool) -> int:
+        """Show Firth's penalised fit of each model (True) or the ordinary fit (False); returns the id."""
+        on = bool(on)
+        return self._submit("penalised", lambda: self._job_penalised(on), facets=("results",),
+                            on_error=self._snapshot_results)
+
+    def request_profile(self) -> int:
+        """Profile-likelihood intervals of the model shown, worked out off the GUI thread; returns the id.
+
+        The request takes the id of the newest request that changed the results (it
+        describes those), so it never counts as a newer request itself; any later
+        change of the results makes it stale, and stale intervals are never shown.
+        """
+        job_id = self._floor["profile"]
+        self._worker.submit(Job(job_id, "profile", lambda: self._job_profile(job_id), coalesce="profile"))
+        return job_id
+
+    def _job_penalised(self, on):
+        self._require_study()
+        self._choice.penalised = on
+        return self._flush(also=("results",))
+
+    def _shown_fit(self):
+        """The fit of the model shown (its penalised refit when that is chosen), or None (worker thread)."""
+        return None if self._choice is None else self._choice.shown(self._study, self._ladder)
+
+    def _job_profile(self, job_id):
+        fit = self._shown_fit()
+        if fit is None:
+            return {"profile": None}
+        return self._start_profile(job_id, fit)
+
+    def _start_profile(self, job_id, fit) -> dict:
+        """Hand ``fit`` to the profile thread (worker thread); returns the intervals at once if already known."""
+        from concurrent.futures import ThreadPoolExecutor
+
+        cached = self._profiled
+        if cached is not None and cached[0] is fit:
+            return {"profile": cached[1]}
+        if self._profiler is None:
+            # Its own thread: the core worker stays free for fits while the intervals are traced.
+            self._profiler = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-profile")
+        future = self._profiler.submit(self._run_profile, job_id, fit, self._ladder.current)
+        self._profile_future = (job_id, future)
+        return {}
+
+    def _run_profile(self, job_id, fit, rung) -> None:
+        """Profile thread: the intervals of a read-only fit, sent to the GUI thread if still wanted."""
+        from twofold.gui import present
+
+        if self._floor["profile"] > job_id:
+            return  # superseded before it started
+        try:
+            view = present.profile_view(fit, rung)
+        except Exception as exc:  # never lose a failure silently
+            from twofold.gui.views import ProfileView
+            from twofold.gui.worker import log_exception
+
+            view = ProfileView(rung, False, error=f"Something unexpected stopped the profile-likelihood intervals "
+                                                  f"({type(exc).__name__}); details in {log_exception(exc)}.")
+        self._profiled = (fit, view)
+        try:
+            self._profileComputed.emit(job_id, view)
+        except RuntimeError:  # the window closed meanwhile
+            pass
+
+    def _on_profiled(self, job_id: int, view) -> None:
+        if self.is_current("profile", job_id):
+            self.last_profile = view
+            self.profileReady.emit(view)
+
     # ---- model-shape hook (used by twofold.gui.modelling_ui) ----------------
     def run_modelling(self, fn) -> int:
         """Run ``fn(study, ladder, add)`` on the worker and refresh the results; returns the id.
@@ -165,8 +250,9 @@ class Session(QObject):
         job_id = self._next_id
         then = None
         if "results" in facets:
-            # The assessment follows the results as a second message with the same id.
-            facets = tuple(facets) + ("assessment",)
+            # The assessment follows the results as a second message with the same id;
+            # profile intervals asked for earlier no longer describe what is shown.
+            facets = tuple(facets) + ("assessment", "profile")
             t = self.threshold
             then = lambda: self._job_assess(job_id, t)  # noqa: E731
         for f in facets:
@@ -199,7 +285,7 @@ class Session(QObject):
             self.coreReady.emit()
         signals = {"study": self.studyLoaded, "columns": self.columnsChanged, "outcome": self.outcomeChanged,
                    "results": self.resultsChanged, "comparison": self.comparisonReady,
-                   "assessment": self.assessmentChanged}
+                   "assessment": self.assessmentChanged, "profile": self.profileReady}
         for facet in FACETS:  # fixed order: the study before its columns, outcome and results
             if facet in result.outputs and self.is_current(facet, result.id):
                 view = result.outputs[facet]
@@ -207,6 +293,8 @@ class Session(QObject):
                     self.last_results = view
                 if facet == "assessment":
                     self.last_assessment, self.last_assessment_id = view, result.id
+                if facet == "profile":
+                    self.last_profile = view
                 if facet in ("study", "columns"):
                     self.last_study = view
                 signals[facet].emit(view)
@@ -264,7 +352,10 @@ class Session(QObject):
         if "outcome" in wanted:
             out["outcome"] = present.outcome_view(self._study)
         if "results" in wanted:
-            out["results"] = present.results_view(self._study, self._ladder, self._parents)
+            view = out["results"] = present.results_view(self._study, self._ladder, self._parents, self._choice)
+            if view is not None and (view.profile_auto or self.profile_always):
+                # Started here, beside the assessment, rather than after a round trip through the window.
+                out.update(self._start_profile(self._worker.running_id, self._shown_fit()))
         return out
 
     def _snapshot_results(self) -> dict:
@@ -289,9 +380,29 @@ class Session(QObject):
         ladder = Ladder(study)
         self._study, self._ladder, self._parents, self._dirty = study, ladder, {}, set()
         self._awaiting_event = None
+        from twofold.gui.present import FitChoice
+
+        self._choice, self._profiled = FitChoice(), None
         self._watch(study, ladder)
         out = self._flush(also=("study", "outcome"))
         out["results"] = None
+        out["comparison"] = None
+        return out
+
+    def _adopt(self, study, ladder, penalised: bool = False) -> dict:
+        """Show ``study`` and its fitted ``ladder`` as if just opened (worker thread); returns every display.
+
+        Used when a saved analysis is opened: the panes then rebuild exactly as after opening a file and ticking.
+        """
+        from twofold.gui.present import FitChoice
+
+        self._study, self._ladder, self._dirty = study, ladder, set()
+        self._parents = {i: r.previous for i, r in enumerate(ladder.rungs) if r.previous is not None}
+        self._awaiting_event = None
+        self._choice, self._profiled, self._assessed = FitChoice(), None, None
+        self._choice.penalised = bool(penalised)
+        self._watch(study, ladder)
+        out = self._flush(also=("study", "outcome", "results"))
         out["comparison"] = None
         return out
 
@@ -427,7 +538,7 @@ class Session(QObject):
         from twofold.core.assessment import assess
         from twofold.gui import figures, present
 
-        fit = ladder.rungs[ladder.current].fit
+        fit = self._shown_fit()
         cached = self._assessed
         if cached is not None and cached[0] is fit:
             # Only the threshold changed: the rest stands, figures included.
@@ -438,4 +549,12 @@ class Session(QObject):
             result = assess(self._study, fit, threshold=threshold)
             pictures = figures.assessment_figures(result)
         self._assessed = (fit, result, pictures)
-        return {"assessment": present.assessment_view(self._study, ladder, result, pictures)}
+        pending = self._profile_future
+        if job_id is not None and pending is not None and pending[0] == job_id and present.profile_auto(fit):
+            # A small model's intervals take a moment: let them arrive first, so the assessment
+            # on screen always comes with them (the window and a snapshot see both together).
+            try:
+                pending[1].result(timeout=60)
+            except Exception:  # reported by the profile thread itself
+                pass
+        return {"assessment": present.assessment_view(self._study, ladder, result, pictures, fit)}

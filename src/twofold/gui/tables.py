@@ -178,19 +178,35 @@ class ColumnsModel(QAbstractTableModel):
 
 
 class CoefficientModel(QAbstractTableModel):
-    """The coefficient table: one row per coefficient, a heading row above each factor."""
+    """The coefficient table: one row per coefficient, a heading row above each multi-coefficient term.
 
-    HEADERS = ("Predictor", "Odds\nratio", "95% confidence\ninterval", "p-value",
-               "Wald z", "Coefficient\n(log odds)", "Standard\nerror")
+    The profile-likelihood interval is the last column of the model (so the
+    others keep their places); the results pane shows it beside the Wald one.
+    """
+
+    HEADERS = ("Predictor", "Odds\nratio", "95% interval\n(Wald)", "p-value",
+               "Wald z", "Coefficient\n(log odds)", "Standard\nerror", "95% interval\n(profile)")
     TIPS = ("The predictor, or for groups the group compared with the reference group",
             "How many times the odds of the event are multiplied (per unit, or for the group against the "
             "reference group), the other predictors held fixed",
-            "95% Wald confidence interval of the odds ratio",
+            "95% Wald confidence interval of the odds ratio: the estimate plus or minus 1.96 standard errors "
+            "on the log-odds scale",
             "Two-sided p-value of the Wald test that the coefficient is zero",
             "Wald z: the coefficient divided by its standard error",
             "The coefficient on the log-odds scale (the natural logarithm of the odds ratio)",
-            "Standard error of the coefficient")
-    KEYS = (None, "odds_ratio", "ci", "p_value", "z", "estimate", "std_error")
+            "Standard error of the coefficient",
+            "95% profile-likelihood confidence interval of the odds ratio (Venzon & Moolgavkar 1988): the "
+            "values a likelihood-ratio test would not reject. It need not be symmetric and holds up better "
+            "than the Wald interval with few events or large odds ratios")
+    PENALISED_TIPS = {
+        2: "95% Wald confidence interval of the odds ratio, from the penalised fit's standard errors",
+        7: "95% profile penalised-likelihood confidence interval of the odds ratio (Heinze & Schemper 2002): "
+           "the values a penalised likelihood-ratio test would not reject",
+    }
+    KEYS = (None, "odds_ratio", "ci", "p_value", "z", "estimate", "std_error", "pl_ci")
+    #: Logical column of the profile-likelihood interval.
+    PROFILE = 7
+    WORKING = "working\u2026"
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -198,11 +214,33 @@ class CoefficientModel(QAbstractTableModel):
         self._bold = QFont()
         self._bold.setBold(True)
         self._warn_icon = None
+        self.penalised = False
+        #: Profile intervals by parameter name: worded, and as (low, high) odds ratios.
+        self.profile_texts: dict = {}
+        self.profile_values: dict = {}
+        self.profile_pending = False
 
-    def set_lines(self, lines) -> None:
+    def set_lines(self, lines, penalised: bool = False) -> None:
         self.beginResetModel()
         self.lines = tuple(lines)
+        self.penalised = bool(penalised)
+        self.profile_texts, self.profile_values, self.profile_pending = {}, {}, False
         self.endResetModel()
+        self.headerDataChanged.emit(Qt.Orientation.Horizontal, 0, len(self.HEADERS) - 1)
+
+    def set_profile(self, texts=None, values=None, pending: bool = False) -> None:
+        """Show profile intervals (``texts``), or that they are being worked out (``pending``)."""
+        self.profile_texts, self.profile_values = dict(texts or {}), dict(values or {})
+        self.profile_pending = bool(pending)
+        if self.lines:
+            self.dataChanged.emit(self.index(0, self.PROFILE), self.index(len(self.lines) - 1, self.PROFILE))
+
+    def _profile_text(self, line) -> str:
+        if line.kind != "term":
+            return ""
+        if self.profile_pending:
+            return self.WORKING
+        return self.profile_texts.get(line.name, "")
 
     def rowCount(self, parent=QModelIndex()):
         return 0 if parent.isValid() else len(self.lines)
@@ -218,9 +256,11 @@ class CoefficientModel(QAbstractTableModel):
         key = self.KEYS[col]
         if role in (Qt.ItemDataRole.DisplayRole, Qt.ItemDataRole.AccessibleTextRole):
             if col == 0:
-                if line.kind == "term" and line.level is not None and self._has_heading(index.row()):
+                if line.kind == "term" and self._has_heading(index.row()):
                     return "    " + line.label
                 return line.label
+            if col == self.PROFILE:
+                return self._profile_text(line)
             if line.kind == "heading" and role == Qt.ItemDataRole.AccessibleTextRole and col == 1:
                 return line.texts.get("groups", "")
             if line.kind == "heading":
@@ -231,6 +271,8 @@ class CoefficientModel(QAbstractTableModel):
                 return line.column
             if key == "ci":
                 return (line.values.get("or_ci_low"), line.values.get("or_ci_high"))
+            if col == self.PROFILE:
+                return self.profile_values.get(line.name) if line.kind == "term" else None
             return line.values.get(key)
         if role == Qt.ItemDataRole.TextAlignmentRole:
             return LEFT if col == 0 else RIGHT
@@ -242,9 +284,10 @@ class CoefficientModel(QAbstractTableModel):
             return self._warn_icon
         if role == Qt.ItemDataRole.ToolTipRole:
             if line.warnings:
-                return "\n\n".join(("Warning: " + w) for w in line.warnings)
+                return "\n\n".join([("Warning: " + w) for w in line.warnings] + ([line.hint] if line.hint else []))
             if col == 0:
-                return line.label + (f" ({line.texts['groups']})" if line.kind == "heading" else "")
+                text = line.label + (f" ({line.texts['groups']})" if line.kind == "heading" else "")
+                return text + (f"\n\n{line.hint}" if line.hint else "")
         if role == Qt.ItemDataRole.BackgroundRole and line.warnings:
             return QBrush(style.tint(style.ORANGE, 40))
         return None
@@ -257,9 +300,11 @@ class CoefficientModel(QAbstractTableModel):
         if orientation != Qt.Orientation.Horizontal:
             return None
         if role == Qt.ItemDataRole.DisplayRole:
+            if self.penalised and section == self.PROFILE:
+                return "95% interval\n(penalised profile)"
             return self.HEADERS[section]
         if role == Qt.ItemDataRole.ToolTipRole:
-            return self.TIPS[section]
+            return self.PENALISED_TIPS.get(section, self.TIPS[section]) if self.penalised else self.TIPS[section]
         if role == Qt.ItemDataRole.TextAlignmentRole:
             return LEFT if section == 0 else RIGHT
         return None

@@ -56,6 +56,8 @@ class ColumnView:
     is_factor: bool = False
     reason: str = ""
     role_choices: tuple = ()
+    #: Knots of the curved (spline) effect chosen for this column; None for a straight line.
+    spline_knots: int | None = None
 
 
 @dataclass(frozen=True)
@@ -112,6 +114,10 @@ class CoefficientLine:
     values: dict = field(default_factory=dict)
     warnings: tuple = ()
     level: object = None
+    #: The core's parameter name (matches the keys of :class:`ProfileView`).
+    name: str = ""
+    #: Why this row needs care in reading (shown as its tool tip), e.g. a curve term.
+    hint: str = ""
 
 
 @dataclass(frozen=True)
@@ -184,6 +190,34 @@ class ResultsView:
     events: int = 0
     events_per_parameter: float | None = None
     log_likelihood: float | None = None
+    #: Plain list of what the model holds, e.g. "age (curved, 4 knots), sex, age \u00d7 sex".
+    contents_text: str = ""
+    #: Tests of the model's shape: curvature of each spline, each interaction (TestView each).
+    shape_tests: tuple = ()
+    #: Whether the fit shown is Firth's penalised fit, and the sentence that says what that changes.
+    penalised: bool = False
+    method_text: str = ""
+    #: Whether the ordinary fit detected separation (the penalised fit is then offered).
+    separation: bool = False
+    #: Whether profile-likelihood intervals are cheap enough here to work out without being asked.
+    profile_auto: bool = False
+
+
+@dataclass(frozen=True)
+class ProfileView:
+    """Profile-likelihood 95% intervals of the odds ratios of the model shown (worked out off the GUI thread).
+
+    ``intervals`` maps the core's parameter name to (low, high) on the odds-ratio
+    scale and ``texts`` to the same interval worded; ``penalised`` says whether
+    they come from the profile penalised likelihood of a Firth fit.
+    """
+
+    rung: int
+    penalised: bool
+    intervals: dict = field(default_factory=dict)
+    texts: dict = field(default_factory=dict)
+    note: str = ""
+    error: str = ""
 
 
 @dataclass(frozen=True)
@@ -251,3 +285,5 @@ class AssessmentView:
     notes: tuple = ()
     values: dict = field(default_factory=dict)
     figures: dict = field(default_factory=dict)
+    #: Whether the model assessed is the penalised (Firth) fit, its risks intercept-corrected (FLIC).
+    penalised: bool = False

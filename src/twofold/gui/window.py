@@ -117,6 +117,10 @@ class MainWindow(QMainWindow):
         self.open_action.setToolTip("Open a CSV, TSV or Excel file (Ctrl+O)")
         self.open_action.triggered.connect(self.open_dialog)
         file_menu.addAction(self.open_action)
+        # ---- saved analyses, reports, table exports, autosave (twofold.gui.sessions_ui) ----
+        from twofold.gui.sessions_ui import SessionActions
+
+        self.sessions = SessionActions(self)
         self.sample_menu = QMenu("Open a &sample study", self)
         self.sample_menu.setIcon(style.standard_icon("folder"))
         for path in sample_files():
@@ -128,6 +132,9 @@ class MainWindow(QMainWindow):
         self.recent_menu = QMenu("&Recent files", self)
         file_menu.addMenu(self.recent_menu)
         self._fill_recent()
+        file_menu.addSeparator()
+        for act in self.sessions.actions:
+            file_menu.addAction(act)
         file_menu.addSeparator()
         self.copy_action = QAction(style.standard_icon("copy"), "&Copy the results as text", self)
         self.copy_action.setShortcut(QKeySequence("Ctrl+Shift+C"))
@@ -160,6 +167,16 @@ class MainWindow(QMainWindow):
         self.model_shape_action.triggered.connect(self.open_model_shape)
         shape_menu.addAction(self.model_shape_action)
         self.model_shape_dialog = None
+
+        # ---- "Risk" menu (twofold.gui.calculator) ----
+        risk_menu = bar.addMenu("&Risk")
+        self.calculator_action = QAction("Risk for one &patient\u2026", self)
+        self.calculator_action.setShortcut(QKeySequence("Ctrl+R"))
+        self.calculator_action.setToolTip("The predicted risk, with its 95% confidence interval, for one "
+                                          "patient's values from the model shown (Ctrl+R)")
+        self.calculator_action.triggered.connect(self.open_calculator)
+        risk_menu.addAction(self.calculator_action)
+        self.calculator = None
 
         help_menu = bar.addMenu("&Help")
         keys = QAction("&Keyboard use", self)
@@ -347,14 +364,18 @@ class MainWindow(QMainWindow):
             return ""
         model = self.results_pane.coefficients
         lines = ["Caution: " + self.results_pane.caution.text().removeprefix("Caution: "), "", view.title,
-                 view.counts_text.replace("  \u00b7  ", "; "), ""]
-        lines.append("\t".join(h.replace("\n", " ") for h in model.HEADERS))
+                 view.counts_text.replace("  \u00b7  ", "; ")]
+        lines += [t for t in (getattr(view, "contents_text", ""), getattr(view, "method_text", "")) if t] + [""]
+        lines.append("\t".join(str(model.headerData(c, Qt.Orientation.Horizontal) or "").replace("\n", " ")
+                               for c in range(model.columnCount())))
         for r in range(model.rowCount()):
             lines.append("\t".join(str(model.data(model.index(r, c)) or "").strip().replace("\n", ": ")
                                    for c in range(model.columnCount())))
         lines += ["", f"{view.overall.title}: {view.overall.text} {view.overall.reading}"]
         if view.previous is not None:
             lines.append(f"{view.previous.title}: {view.previous.text} {view.previous.reading}".rstrip())
+        for t in getattr(view, "shape_tests", ()):
+            lines.append(f"{t.title} {t.text} {t.reading}".rstrip())
         for n in view.predictor_notes:
             lines.append(f"Warning ({n.column}): {n.message}")
         for n in view.model_notes:
@@ -378,11 +399,22 @@ class MainWindow(QMainWindow):
         """Show the model-shape dialog (one per window, kept between openings)."""
         from twofold.gui.modelling_ui import ModelShapeDialog
 
-        if self.model_shape_dialog is None:
-            self.model_shape_dialog = ModelShapeDialog(self.session, self)
-        self.model_shape_dialog.show()
-        self.model_shape_dialog.raise_()
-        return self.model_shape_dialog
+        return self._show_one("model_shape_dialog", ModelShapeDialog)
+
+    def open_calculator(self):
+        """Show the risk calculator for the model shown (one per window, its fields emptied on closing)."""
+        from twofold.gui.calculator import RiskCalculator
+
+        return self._show_one("calculator", RiskCalculator)
+
+    def _show_one(self, attribute: str, make):
+        """Show the window's single ``make(session, self)`` kept in ``attribute``, building it once."""
+        if getattr(self, attribute) is None:
+            setattr(self, attribute, make(self.session, self))
+        shown = getattr(self, attribute)
+        shown.show()
+        shown.raise_()
+        return shown
 
     def _keyboard_help(self) -> None:
         QMessageBox.information(self, "Keyboard use", (
@@ -390,7 +422,8 @@ class MainWindow(QMainWindow):
             "Ctrl+O opens a data file.  Ctrl+1 to Ctrl+6 jump to the data rows, the column list, the outcome, "
             "the predictors, the results and the model ladder.\n\n"
             "In the predictor list, the space bar ticks or unticks the selected predictor.  In the model ladder, "
-            "Enter shows the selected model.  Ctrl+Shift+C copies the results as text."))
+            "Enter shows the selected model.  Ctrl+Shift+C copies the results as text.  Ctrl+S saves the "
+            "analysis; Ctrl+R opens the risk for one patient."))
 
     def _about(self) -> None:
         import twofold
@@ -402,7 +435,10 @@ class MainWindow(QMainWindow):
     def closeEvent(self, event) -> None:
         if self.model_shape_dialog is not None:
             self.model_shape_dialog.shutdown()  # a bootstrap must not outlive the window
+        if self.calculator is not None:
+            self.calculator.close()
         self.session.shutdown()
+        self.sessions.clean_exit()  # after the worker stopped: no autosave can follow it
         super().closeEvent(event)
 
 
@@ -418,10 +454,14 @@ def default_size(window: QMainWindow) -> None:
 
 
 def balance(window) -> None:
-    """Share the width: data about a quarter, the model a fifth, the results the rest."""
+    """Share the width: data under a quarter, the model a fifth, the results the rest.
+
+    The results get most: at 1600 pixels the coefficient table, profile intervals
+    included, then fits without scrolling sideways.
+    """
     w = window.width()
-    window.split.setSizes([int(w * 0.275), int(w * 0.725)])
-    window.model_split.setSizes([int(w * 0.19), int(w * 0.535)])
+    window.split.setSizes([int(w * 0.235), int(w * 0.765)])
+    window.model_split.setSizes([int(w * 0.19), int(w * 0.575)])
     h = window.height()
     window.right_split.setSizes([int(h * 0.70), int(h * 0.30)])
 
