@@ -110,3 +110,16 @@ def test_an_interaction_is_listed_tickable_and_labelled(qtbot, shaped):
     qtbot.waitUntil(lambda: idle(window) and set(pane.view.predictors) == {"age", "length_of_stay", "sex", term},
                     timeout=WAIT_MS)
     assert list_items(window)["sex"][1]
+
+
+def test_excluding_a_predictor_of_an_interaction_drops_the_interaction(qtbot, shaped):
+    window, dialog = shaped
+    dialog.add_interaction("length_of_stay", "sex")
+    term = "length_of_stay:sex"
+    qtbot.waitUntil(lambda: dialog.interaction_result is not None and idle(window), timeout=WAIT_MS)
+    pane = window.results_pane
+    window.session.set_role("sex", "excluded", tuple(pane.view.predictors))
+    qtbot.waitUntil(lambda: idle(window) and set(pane.view.predictors) == {"age", "length_of_stay"},
+                    timeout=WAIT_MS)
+    assert not window.message.isVisible()  # no failure: the interaction left with its predictor
+    assert term not in pane.view.predictors

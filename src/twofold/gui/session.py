@@ -483,13 +483,17 @@ class Session(QObject):
         ladder = self._ladder
         study.set_role(column, role)
         predictor_role = Role(role).is_predictor
-        if ladder.rungs and column in ladder.used_predictors:
+
+        def involves(term):  # the column itself, or an interaction with it ("a:b")
+            return column in str(term).split(":")
+
+        if ladder.rungs and any(involves(p) for p in ladder.used_predictors):
             if predictor_role:
                 ladder.refit()
             else:
                 ladder.clear()
                 self._parents = {}
-                rest = tuple(p for p in predictors if p != column)
+                rest = tuple(p for p in predictors if not involves(p))
                 if rest and study.outcome is not None:
                     self._add(rest)
         return self._flush(also=("columns", "results"))
