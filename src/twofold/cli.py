@@ -38,6 +38,9 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="predictors of a smaller model for the nested likelihood-ratio test")
     p.add_argument("--reference", action="append", default=[], metavar="COLUMN=LEVEL",
                    help="reference level of a categorical predictor")
+    p.add_argument("--role", action="append", default=[], metavar="COLUMN=ROLE",
+                   help="treat a column differently from what Twofold inferred (repeat for more); ROLE is one "
+                        f"of {', '.join(_role_names())}, e.g. --role ward_code=categorical")
     p.add_argument("--sheet", metavar="NAME", help="the sheet of a workbook (default: the first)")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
     p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
@@ -53,6 +56,12 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     p.add_argument("--table-out", metavar="PATH.csv|PATH.xlsx", help="write the coefficient table")
     return p
+
+
+def _role_names() -> list[str]:
+    from twofold.core.roles import Role
+
+    return [r.value for r in Role]
 
 
 def _repetitions(text: str) -> int:
@@ -122,12 +131,19 @@ def run_fit(argv: list[str]) -> int:
 
 
 def _spec(args):
-    from twofold.core.analysis import AnalysisSpec, parse_interactions, parse_references, parse_splines
+    from twofold.core.analysis import (
+        AnalysisSpec,
+        parse_interactions,
+        parse_references,
+        parse_roles,
+        parse_splines,
+    )
 
     return AnalysisSpec(
         data=args.data, outcome=args.outcome, event=args.event, predictors=list(args.predictors),
         smaller=None if args.smaller is None else list(args.smaller),
-        references=parse_references(args.reference), sheet=args.sheet, firth=args.firth,
+        references=parse_references(args.reference), roles=parse_roles(args.role), sheet=args.sheet,
+        firth=args.firth,
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
     )

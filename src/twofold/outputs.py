@@ -268,7 +268,7 @@ def run_predict(argv: list[str]) -> int:
     try:
         from twofold.core.predict import predict
         from twofold.core.session import frozen_from_session, load_session
-        from twofold.core.summary import CAUTION, plain_value
+        from twofold.core.summary import PATIENT_CAUTION, plain_value
 
         session = load_session(args.session)
         _refuse_data_targets([args.json], session["data"], session_file=args.session)
@@ -276,7 +276,7 @@ def run_predict(argv: list[str]) -> int:
         values = _values(args.value)
         pred = predict(model, values)
         record = {**pred.as_dict(), "outcome": model.outcome, "event": plain_value(model.event),
-                  "values": values, "caution": CAUTION}
+                  "values": values, "caution": PATIENT_CAUTION}
         if args.json:
             _emit_json(record, args.json)
             return 0
@@ -289,5 +289,5 @@ def run_predict(argv: list[str]) -> int:
     sys.stdout.write(
         f"Predicted risk of {model.outcome} = {plain_value(model.event)} for {shown}: {fmt_num(100 * pred.probability, 1)}% "
         f"(95% interval {fmt_num(100 * pred.ci_low, 1)}% to {fmt_num(100 * pred.ci_high, 1)}%).\n"
-        f"Caution: {CAUTION}\n")
+        f"Caution: {PATIENT_CAUTION}\n")
     return 0

@@ -220,3 +220,38 @@ def test_spline_interaction_and_validation_fields():
 def test_bad_modelling_options(args, fragment):
     res = run("fit", READMIT, "--outcome", "readmitted_30d", "--predictor", "age", "sex", *args)
     assert res.returncode == 2 and fragment in res.stderr and "Traceback" not in res.stderr
+
+
+def test_role_option_turns_numeric_codes_into_groups(tmp_path):
+    # Outside reference: statsmodels Logit with indicator columns made by pandas.get_dummies.
+    rng = np.random.default_rng(20261202)
+    n = 600
+    ward = rng.choice([1, 2, 3], n)
+    y = (rng.random(n) < np.array([0.2, 0.35, 0.5])[ward - 1]).astype(int)
+    path = tmp_path / "wards.csv"
+    pd.DataFrame({"ward_code": ward, "readmit": y}).to_csv(path, index=False)
+    as_number = fit_json(path, "--outcome", "readmit", "--predictor", "ward_code")
+    assert [t["level"] for t in as_number["terms"]] == [None]
+    out = fit_json(path, "--outcome", "readmit", "--predictor", "ward_code", "--role", "ward_code=categorical",
+                   "--reference", "ward_code=1")
+    assert out["overall"]["df"] == 2
+    dummies = pd.get_dummies(pd.Series(ward).astype(str), dtype=float).drop(columns="1")
+    ref = sm.Logit(y, sm.add_constant(dummies)).fit(disp=0)
+    got = {str(t["level"]): t["estimate"] for t in out["terms"]}
+    assert {float(k) for k in got} == {2.0, 3.0}
+    for level, value in got.items():
+        assert value == pytest.approx(ref.params[str(int(float(level)))], rel=1e-6)
+    assert out["log_likelihood"] == pytest.approx(ref.llf, rel=1e-9)
+
+
+@pytest.mark.parametrize("role, fragment", [
+    ("ward_code=bogus", "use one of numeric, binary, categorical"),
+    ("ward_code", "COLUMN=ROLE"),
+    ("nowhere=numeric", "There is no column 'nowhere'"),
+])
+def test_bad_role_is_one_line(tmp_path, role, fragment):
+    path = tmp_path / "wards.csv"
+    pd.DataFrame({"ward_code": [1, 2, 3, 1, 2, 3] * 5, "readmit": [0, 1] * 15}).to_csv(path, index=False)
+    res = run("fit", path, "--outcome", "readmit", "--predictor", "ward_code", "--role", role)
+    assert res.returncode == 2 and res.stdout == ""
+    assert res.stderr.count("\n") == 1 and fragment in res.stderr, res.stderr

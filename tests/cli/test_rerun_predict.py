@@ -218,8 +218,12 @@ def test_predict_json_matches_a_hand_computation(fitted, capsys):
     assert got["probability"] == pytest.approx(expit(eta), rel=1e-12)
     assert got["ci_low"] == pytest.approx(expit(eta - 1.959963984540054 * se), rel=1e-12)
     assert got["ci_high"] == pytest.approx(expit(eta + 1.959963984540054 * se), rel=1e-12)
+    # The one-patient caution travels with the risk, in JSON and in text (the window shows the same words).
+    from twofold.core.summary import PATIENT_CAUTION
+
+    assert got["caution"] == PATIENT_CAUTION and "not a clinical decision" in PATIENT_CAUTION
     code, out, _ = run(capsys, outputs.run_predict, *argv)
-    assert code == 0 and "Predicted risk" in out and "Caution:" in out
+    assert code == 0 and "Predicted risk" in out and f"Caution: {PATIENT_CAUTION}" in out
 
 
 def test_predict_refusals_are_one_line(fitted, capsys):

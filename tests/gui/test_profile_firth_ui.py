@@ -209,7 +209,9 @@ def test_separation_offers_firth_whose_estimate_adds_half_to_every_cell(qtbot, w
     box = window.results_pane.assessment_box
     qtbot.waitUntil(lambda: box.view is not None and box.view.penalised, timeout=WAIT_MS)
     assert "FLIC" in box.heading.text()
-    assert present.PENALISED_CALIBRATION_NOTE in box.calibration.text()
+    from twofold.core.assessment import PENALISED_CALIBRATION_NOTE
+
+    assert PENALISED_CALIBRATION_NOTE in box.calibration.text()
     assert box.view.values["calibration_intercept"] == pytest.approx(0.0, abs=1e-6)
     X = firth.design.X[:, firth.kept]
     plain = 1.0 / (1.0 + np.exp(-(X @ np.asarray(firth.result.params))))

@@ -85,14 +85,48 @@ def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
 
     if study is None:
         study = Study.from_file(spec.data, sheet=spec.sheet)
+    allowed = role_names()
     for column, role in spec.roles.items():
-        study.set_role(column, role)
+        name = study.column(column)
+        if name not in study.columns:  # an interaction "A:B" is not a column of the file
+            raise ColumnError(f"A role belongs to a column of the file, and '{column}' is not one; "
+                              "give the role of each of its columns instead.")
+        value = str(getattr(role, "value", role)).strip().lower()
+        if value not in allowed:
+            raise ColumnError(f"The role {role!r} given to '{name}' is not one Twofold knows; "
+                              f"use one of {', '.join(allowed)}.")
+        study.set_role(name, value)
     event = study.set_outcome(spec.outcome, spec.event, guess=guess_event)
     for column, level in spec.references.items():
         study.set_reference(column, level)
     for column, knots in spec.splines.items():
         study.set_spline(column, int(knots))
     return study, event
+
+
+def role_names() -> list[str]:
+    """The role names a column can be given (the values of :class:`~twofold.core.roles.Role`)."""
+    from twofold.core.roles import Role
+
+    return [r.value for r in Role]
+
+
+def parse_roles(items) -> dict:
+    """``["COLUMN=ROLE", ...]`` into {column: role}, each role one of :func:`role_names`."""
+    allowed = role_names()
+    shown = ", ".join(allowed)
+    out = {}
+    for item in items:
+        column, sep, role = item.partition("=")
+        column, role = column.strip(), role.strip().lower()
+        if not sep or not column:
+            raise ColumnError(f"--role {item!r} should look like COLUMN=ROLE, for example ward=categorical; "
+                              f"the roles are {shown}.")
+        if role not in allowed:
+            raise ColumnError(f"--role {item!r} names the role {role or '(none)'!r}, which Twofold does not know; "
+                              f"use one of {shown}.")
+        out[column] = role
+    return out
 
 
 def parse_splines(items) -> dict:
@@ -160,6 +194,13 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         from twofold.core.penalised import profile_intervals
 
         profile = profile_intervals(fit)
+        lost = [name for name, (lo, hi) in profile.items() if lo != lo or hi != hi]  # NaN: not found
+        if lost:
+            from twofold.core.errors import Notice
+
+            fit.notices.append(Notice(
+                "profile", f"The profile-likelihood interval could not be found for {', '.join(lost)} "
+                "(too few records for a clear maximum); read the Wald interval with care.", tuple(lost)))
     record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
     from twofold.core.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
     from twofold.core.summary import clean_number

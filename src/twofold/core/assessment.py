@@ -25,6 +25,19 @@ APPARENT_CALIBRATION_NOTE = (
     "bootstrap correction."
 )
 
+#: Beside the calibration figures of a penalised fit (in place of the note above).
+PENALISED_CALIBRATION_NOTE = (
+    "With the penalised fit and its intercept correction (FLIC), calibration-in-the-large is 0 by construction "
+    "on the records it was fitted to, so it says nothing here; the slope is usually above 1 on them, because the "
+    "penalty pulls the estimates towards zero. Both become informative on a new extract or after bootstrap "
+    "correction."
+)
+
+#: Added to the note when the maximum-likelihood fit stopped before its maximum.
+UNSETTLED_CALIBRATION_NOTE = (
+    " Here the fit did not settle (see the warnings), so they can stray from 1 and 0."
+)
+
 #: Written beside the Hosmer-Lemeshow test.
 HOSMER_LEMESHOW_NOTE = (
     "The Hosmer-Lemeshow test depends on how records are grouped, has little power in small samples and "
@@ -66,14 +79,21 @@ class Assessment:
     sample_size: object | None
     classification: object | None = None
     notices: list = field(default_factory=list)
+    calibration_note: str = APPARENT_CALIBRATION_NOTE
 
     def influential(self, k: int = TOP_INFLUENTIAL) -> list[dict]:
-        """The k records with the largest Cook's distance: 1-based data row of the file, largest first."""
+        """The k records with the largest Cook's distance: 1-based data row of the file, largest first.
+
+        A record fitted exactly (leverage 1, as in a saturated model) has no
+        finite distance: it comes first, with ``None``.
+        """
+        from twofold.core.summary import clean_number as num
+
         if self.influence is None:
             return []
         idx = self.influence.most_influential(k)
-        return [{"row": int(self.rows[i]) + 1, "cooks_distance": float(self.influence.cooks_distance[i]),
-                 "leverage": float(self.influence.leverage[i])} for i in idx]
+        return [{"row": int(self.rows[i]) + 1, "cooks_distance": num(self.influence.cooks_distance[i]),
+                 "leverage": num(self.influence.leverage[i])} for i in idx]
 
     def as_record(self) -> dict:
         """The ``assessment`` object of the ``twofold fit --json`` contract."""
@@ -88,7 +108,7 @@ class Assessment:
             "scaled_brier": num(self.scaled_brier),
             "calibration_slope": num(self.calibration.slope),
             "calibration_intercept": num(self.calibration.intercept),
-            "calibration_note": APPARENT_CALIBRATION_NOTE,
+            "calibration_note": self.calibration_note,
             "hosmer_lemeshow": None if hl is None else {
                 "statistic": num(hl.statistic), "df": int(hl.df), "p_value": num(hl.p_value),
                 "groups": int(hl.groups_used), "note": HOSMER_LEMESHOW_NOTE,
@@ -155,18 +175,36 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
     notices: list[Notice] = []
     auc = disc.auc_delong(y, p)
     roc = disc.roc_points(y, p)
-    calibration = cal.calibration_slope_intercept(y, lp)
+    nan = float("nan")
+    try:
+        calibration = cal.calibration_slope_intercept(y, lp)
+    except TwofoldError as exc:
+        # Tiny or separated data: the recalibration model has no finite fit.  The
+        # figures are shown as not available rather than stopping the assessment.
+        calibration = cal.CalibrationFit(nan, nan, nan, nan, nan, nan, nan, nan, 0.95,
+                                         (Notice("calibration", str(exc)),))
+        notices.append(Notice("calibration", str(exc)))
     try:
         hl = cal.hosmer_lemeshow(y, p, groups)
         table = cal.calibration_groups(y, p, groups)
     except TwofoldError as exc:
         hl, table = None, None
         notices.append(Notice("hosmer_lemeshow", str(exc)))
-    smooth = cal.smoothed_calibration(y, p)
-    pseudo = cal.pseudo_r2(fit.llf, fit.null_llf, fit.n_used, y, p)
-    X = fit.design.X[:, fit.kept]
     try:
-        infl = influence_measures(X, y, fit.params) if np.all(np.isfinite(fit.params)) else None
+        smooth = cal.smoothed_calibration(y, p)
+        notices.extend(smooth.notices)
+    except TwofoldError as exc:
+        smooth = None
+        notices.append(Notice("calibration", str(exc)))
+    try:
+        pseudo = cal.pseudo_r2(fit.llf, fit.null_llf, fit.n_used, y, p)
+    except TwofoldError as exc:
+        pseudo = cal.PseudoR2(nan, nan, nan, nan)
+        notices.append(Notice("pseudo_r2", str(exc)))
+    X = fit.used_X
+    try:
+        # The fit's covariance is (X'WX)^-1 at its estimates: no need to form it again.
+        infl = influence_measures(X, y, fit.params, cov=fit.cov) if np.all(np.isfinite(fit.params)) else None
     except TwofoldError as exc:
         infl = None
         notices.append(Notice("influence", str(exc)))
@@ -182,6 +220,7 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
         except TwofoldError as exc:
             notices.append(Notice("collinear", str(exc)))
     tests = drop_one_tests(study, fit) if drop_one else []
+    notices.extend(Notice("drop_one", t.note, (t.column,)) for t in tests if t.note)
     r2 = pseudo.cox_snell if anticipated_r2_cs is None else anticipated_r2_cs
     sample = None
     prevalence = fit.events / fit.n_used
@@ -192,5 +231,10 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
         except TwofoldError as exc:
             notices.append(Notice("sample_size", str(exc)))
     classification = disc.classification_table(y, p, threshold) if threshold is not None else None
+    if hasattr(fit, "lr_test_of"):  # a penalised fit: its slope is not 1 on its own data
+        note = PENALISED_CALIBRATION_NOTE
+    else:
+        note = APPARENT_CALIBRATION_NOTE + ("" if fit.converged else UNSETTLED_CALIBRATION_NOTE)
     return Assessment(auc, roc, cal.brier(y, p), cal.scaled_brier(y, p), calibration, hl, table, smooth,
-                      pseudo, infl, fit.design.rows, vif_table, names, tests, sample, classification, notices)
+                      pseudo, infl, fit.design.rows, vif_table, names, tests, sample, classification, notices,
+                      note)

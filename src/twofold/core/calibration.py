@@ -171,7 +171,8 @@ class SmoothedCalibration:
         Predicted risks, sorted ascending (read-only).
     observed : ndarray
         Smoothed observed risk at each predicted risk (read-only); not
-        clipped, so it may stray slightly outside 0-1 at the ends.
+        clipped, so it may stray slightly outside 0-1 at the ends.  All NaN
+        when the smoother could not fit (see ``notices``).
     frac : float
         Share of the points used for each local fit.
     n_used, n_total : int
@@ -179,7 +180,9 @@ class SmoothedCalibration:
     n_events, n_nonevents : int
     unreliable : bool
         True when there are fewer than 200 events or fewer than 200
-        non-events (Van Calster et al. 2016).
+        non-events (Van Calster et al. 2016), or the smoother could not fit.
+    notices : tuple of Notice
+        Why no curve was drawn, when so.
     """
 
     predicted: np.ndarray
@@ -190,6 +193,7 @@ class SmoothedCalibration:
     n_events: int
     n_nonevents: int
     unreliable: bool
+    notices: tuple[Notice, ...] = field(default=())
 
     def as_dict(self) -> dict:
         return {
@@ -201,6 +205,7 @@ class SmoothedCalibration:
             "n_events": int(self.n_events),
             "n_nonevents": int(self.n_nonevents),
             "unreliable": bool(self.unreliable),
+            "notices": [n.as_dict() for n in self.notices],
         }
 
 
@@ -357,10 +362,21 @@ def calibration_slope_intercept(y, lp, level: float = 0.95) -> CalibrationFit:
     alpha = 1.0 - level
     ones = np.ones((yy.size, 1))
 
-    res_slope, notes_slope = _fit_logistic(yy, np.column_stack([ones, x]), [0.0, 1.0])
-    ci_slope = np.asarray(res_slope.conf_int(alpha=alpha))
     res_int, notes_int = _fit_logistic(yy, ones, [0.0], offset=x)
     ci_int = np.asarray(res_int.conf_int(alpha=alpha))
+    spread = float(np.ptp(x))
+    if not spread > 1e-12 * max(1.0, float(np.max(np.abs(x)))):
+        # Every record has the same linear predictor: a slope on it is not defined
+        # (the recalibration design would be singular).
+        nan = float("nan")
+        slope = (nan, nan, nan, nan)
+        notes_slope = [Notice("calibration", "Every record has the same predicted risk, so the calibration "
+                              "slope is not defined; calibration-in-the-large is still shown.")]
+    else:
+        res_slope, notes_slope = _fit_logistic(yy, np.column_stack([ones, x]), [0.0, 1.0])
+        ci_slope = np.asarray(res_slope.conf_int(alpha=alpha))
+        slope = (float(res_slope.params[1]), float(res_slope.bse[1]), float(ci_slope[1, 0]),
+                 float(ci_slope[1, 1]))
 
     # Same problem reported once even if both fits met it.
     seen: dict[str, Notice] = {}
@@ -368,10 +384,10 @@ def calibration_slope_intercept(y, lp, level: float = 0.95) -> CalibrationFit:
         seen.setdefault(n.code, n)
 
     return CalibrationFit(
-        slope=float(res_slope.params[1]),
-        slope_se=float(res_slope.bse[1]),
-        slope_ci_low=float(ci_slope[1, 0]),
-        slope_ci_high=float(ci_slope[1, 1]),
+        slope=slope[0],
+        slope_se=slope[1],
+        slope_ci_low=slope[2],
+        slope_ci_high=slope[3],
         intercept=float(res_int.params[0]),
         intercept_se=float(res_int.bse[0]),
         intercept_ci_low=float(ci_int[0, 0]),
@@ -544,6 +560,37 @@ def calibration_groups(y, p, groups: int = 10, level: float = 0.95) -> Calibrati
     )
 
 
+def _lowess_degenerate(xs: np.ndarray, frac: float) -> bool:
+    """Whether some local fit of lowess on sorted ``xs`` has fewer than two weighted points.
+
+    statsmodels' lowess uses the k = int(frac n) nearest points, weighted by
+    the tricube of distance over the window's radius.  With heavy ties it
+    then fails silently: a risk shared by k or more records gives radius 0,
+    and a lone risk whose k - 1 nearest neighbours all sit at one distance
+    gives weight to itself only; either way that point's "smoothed" value is
+    its own 0/1 outcome.  Both patterns are found from the tie counts.
+    """
+    n = xs.size
+    k = min(max(int(frac * n + 1e-10), 2), n)
+    values, counts = np.unique(xs, return_counts=True)
+    if counts.max() >= k:
+        return True
+    if values.size < 2:
+        return False
+    lone = np.flatnonzero(counts == 1)
+    if not lone.size:
+        return False
+    gaps = np.diff(values)
+    left = np.r_[np.inf, gaps][lone]
+    right = np.r_[gaps, np.inf][lone]
+    left_n = np.r_[0, counts[:-1]][lone]
+    right_n = np.r_[counts[1:], 0][lone]
+    # Distances that agree to round-off count as one distance.
+    same = np.isclose(left, right, rtol=1e-9, atol=0.0)
+    nearest = np.where(same, left_n + right_n, np.where(left < right, left_n, right_n))
+    return bool(np.any(nearest >= k - 1))
+
+
 def smoothed_calibration(y, p, frac: float = 2.0 / 3.0) -> SmoothedCalibration:
     """Flexible calibration curve: lowess of the outcome on predicted risk.
 
@@ -592,17 +639,32 @@ def smoothed_calibration(y, p, frac: float = 2.0 / 3.0) -> SmoothedCalibration:
     xs = pp[order]
     ys = yy[order]
     delta = 0.01 * float(xs[-1] - xs[0])
-    fitted = lowess(ys, xs, frac=f, it=0, delta=delta, is_sorted=True,
-                    return_sorted=False)
+    # statsmodels warns (on stderr, for a user) when a local window holds a single
+    # tied risk value: its weights are then 0/0 and the fitted values there are
+    # meaningless.  The warning is caught and said as our own notice instead.
+    with warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
+        warnings.simplefilter("always")
+        fitted = np.asarray(lowess(ys, xs, frac=f, it=0, delta=delta, is_sorted=True,
+                                   return_sorted=False), dtype=float)
+    notices = ()
+    degenerate = bool(caught) or not np.all(np.isfinite(fitted)) or _lowess_degenerate(xs, f)
+    if degenerate:
+        fitted = np.full(xs.size, np.nan)
+        notices = (Notice(
+            "calibration",
+            "Too many records share the same predicted risk for a smoothed calibration curve, so none is "
+            "drawn; read the risk groups instead.",
+        ),)
     return SmoothedCalibration(
         predicted=_readonly(xs),
-        observed=_readonly(np.asarray(fitted, dtype=float)),
+        observed=_readonly(fitted),
         frac=f,
         n_used=int(xs.size),
         n_total=int(pp.size),
         n_events=n1,
         n_nonevents=n0,
-        unreliable=bool(n1 < _SMOOTH_MIN_EACH or n0 < _SMOOTH_MIN_EACH),
+        unreliable=bool(degenerate or n1 < _SMOOTH_MIN_EACH or n0 < _SMOOTH_MIN_EACH),
+        notices=notices,
     )
 
 

@@ -260,9 +260,17 @@ class LogisticFit:
         return rarer / k if k > 0 else float("inf")
 
     @cached_property
+    def used_X(self) -> np.ndarray:
+        """The design matrix of the kept columns (the design's own array when none was left out)."""
+        X = self.design.X
+        if len(self.kept) == X.shape[1]:
+            return X
+        return np.ascontiguousarray(np.take(X, self.kept, axis=1))
+
+    @cached_property
     def linear_predictor(self) -> np.ndarray:
         """X b on the used rows."""
-        return self.design.X[:, self.kept] @ self._params
+        return self.used_X @ self._params
 
     @cached_property
     def fitted(self) -> np.ndarray:
@@ -483,9 +491,10 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
         notices.append(Notice(
             "separation",
             f"{who} {'separates' if len(suspects) == 1 else 'separate'} the outcome {kind} "
-            "(some group has only events or only non-events), so its odds ratio runs off towards 0 or "
-            "infinity and its Wald test and interval cannot be trusted; a penalised (Firth) fit or merging "
-            "groups is the usual remedy.",
+            "(some group has only events or only non-events), so "
+            + ("its odds ratio runs" if len(suspects) == 1 else "their odds ratios run")
+            + " off towards 0 or infinity and the Wald tests and intervals cannot be trusted; a penalised "
+            "(Firth) fit or merging groups is the usual remedy.",
             subjects=tuple(suspects),
         ))
     if not converged:
@@ -507,37 +516,252 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
     return fit
 
 
-def refit_log_likelihood(X: np.ndarray, y: np.ndarray, start: np.ndarray, maxiter: int = 35,
-                         tol: float = 1e-4) -> float:
-    """Maximised log-likelihood of a sub-model, for likelihood-ratio tests only.
+#: A drop-one refit has converged when its Newton decrement g' H^-1 g is below this: the
+#: log-likelihood is then within about half of it of the maximum, far below any G shown.
+REFIT_DECREMENT_TOL = 1e-11
+
+#: Chord iterations (fixed Hessian) allowed before a refit is handed to full Newton.
+_CHORD_MAX_ITER = 30
+
+#: Each chord iteration must shrink the decrement at least this much, else full Newton takes over.
+_CHORD_MIN_SHRINK = 0.25
+
+#: Elements of one n x m batch of linear predictors (bounds memory on very large files).
+_BATCH_ELEMENTS = 2_000_000
+
+
+@dataclass(frozen=True)
+class RefitLikelihood:
+    """The maximised log-likelihood of one sub-model fitted for a likelihood-ratio test.
+
+    ``llf`` is NaN when no refit was possible (``method == "failed"``);
+    ``converged`` is False when the last refit stopped without meeting its
+    tolerance (typically separation in the sub-model), so ``llf`` is then
+    only close to the supremum.
+    """
+
+    llf: float
+    converged: bool
+    iterations: int
+    method: str  # "chord", "newton" or "failed"
+
+
+def log_likelihood(y: np.ndarray, eta: np.ndarray) -> float:
+    """Bernoulli log-likelihood on the logit scale: sum(y eta - log(1 + e^eta))."""
+    return float(y @ eta - np.sum(np.logaddexp(0.0, eta)))
+
+
+def refit_log_likelihood(X: np.ndarray, y: np.ndarray, start: np.ndarray, maxiter: int = 50,
+                         tol: float = 1e-10) -> RefitLikelihood:
+    """Maximised log-likelihood of a sub-model by full Newton, for likelihood-ratio tests only.
 
     statsmodels ``Logit`` (Newton) on a design already known to be full rank,
-    without the bookkeeping a displayed fit needs.  From a start near the
-    solution Newton converges quadratically, so once a step is below ``tol``
-    the estimates after it are off by about its square, and the
-    log-likelihood by far less: a looser stopping rule costs no accuracy in G.
+    without the bookkeeping a displayed fit needs; the stopping rule is on
+    the largest step, tight enough that the log-likelihood is exact to
+    round-off.  A singular information matrix (a sub-model too small for its
+    rows, or separated) gives ``method="failed"`` rather than an exception.
+    """
+    with _one_blas_thread(), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return _newton_refit(X, y, start, maxiter, tol)
+
+
+def _newton_refit(X, y, start, maxiter, tol) -> RefitLikelihood:
+    """:func:`refit_log_likelihood` without touching the warning filters.
+
+    ``warnings.catch_warnings`` swaps process-wide state, so threads entering
+    and leaving it at once restore each other's filters and statsmodels'
+    warnings leak to the terminal; threaded callers set the filter once
+    around all their threads instead.
     """
     from statsmodels.discrete.discrete_model import Logit
 
-    with _one_blas_thread(), warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore")
-        res = Logit(y, X, check_rank=False, hasconst=False).fit(
-            method="newton", start_params=start, maxiter=maxiter, tol=tol, disp=0, warn_convergence=False,
-            full_output=False, skip_hessian=True)  # only the likelihood is needed: no covariance
-    return float(res.llf)
+    with np.errstate(all="ignore"):
+        try:
+            res = Logit(y, X, check_rank=False, hasconst=False).fit(
+                method="newton", start_params=start, maxiter=maxiter, tol=tol, disp=0,
+                warn_convergence=False, full_output=True, skip_hessian=True)  # no covariance needed
+        except (np.linalg.LinAlgError, ValueError, FloatingPointError):
+            # ValueError covers statsmodels' PerfectSeparationError in older releases.
+            return RefitLikelihood(float("nan"), False, 0, "failed")
+        params = np.asarray(res.params, dtype=float)
+        llf = log_likelihood(y, X @ params) if np.all(np.isfinite(params)) else float("nan")
+    converged = bool(res.mle_retvals.get("converged", False))
+    if not math.isfinite(llf):
+        return RefitLikelihood(float("nan"), False, int(res.mle_retvals.get("iterations", 0)), "failed")
+    return RefitLikelihood(llf, converged, int(res.mle_retvals.get("iterations", 0)), "newton")
 
 
-def reduced_start(fit: "LogisticFit", drop: np.ndarray) -> np.ndarray:
-    """Starting values for the fit without parameters ``drop``: one Newton-like correction.
+def _chord_refits(X: np.ndarray, y: np.ndarray, info: np.ndarray, drops: list, starts: list) -> list:
+    """Chord-Newton refits of several sub-models at once; None where full Newton must take over.
 
-    b_keep - H_kk^-1 H_kd b_d, from the full fit's information matrix, which is
-    close enough that Newton needs a step or two to converge.
+    Each sub-model sets the parameters ``drops[j]`` to zero.  Its iteration
+    is ``b_K += H_KK^-1 X_K'(y - p)`` with ``H_KK`` the kept block of the full
+    fit's information, factorised once: a step costs one gradient, never a
+    new X'WX.  All sub-models share each pass over ``X`` (one matrix product
+    for their linear predictors, one for their gradients).  Convergence is
+    linear with the rate at which the information changes between the full
+    and the reduced estimate, small when the dropped effect is; a sub-model
+    whose decrement does not shrink fast enough is returned as None.
     """
+    from scipy.linalg import cho_factor, cho_solve
+    from scipy.special import expit
+
+    k = X.shape[1]
+    m = len(drops)
+    out: list = [None] * m
+    keeps, factors = [], []
+    B = np.zeros((m, k))  # one row of coefficients per sub-model (dropped entries stay 0)
+    active = []
+    for j, drop in enumerate(drops):
+        keep = np.setdiff1d(np.arange(k), drop)
+        keeps.append(keep)
+        try:
+            factors.append(cho_factor(info[np.ix_(keep, keep)], lower=True, check_finite=False))
+        except np.linalg.LinAlgError:
+            factors.append(None)
+            continue
+        B[j, keep] = starts[j]
+        active.append(j)
+    previous = {j: math.inf for j in active}
+    XT = X.T
+    for iteration in range(_CHORD_MAX_ITER + 1):
+        if not active:
+            break
+        # (a x k) @ (k x n): each sub-model's linear predictor is one contiguous row.
+        E = B[active] @ XT
+        R = expit(E)
+        np.subtract(y, R, out=R)
+        G = R @ X  # (a x n) @ (n x k): every gradient in one pass
+        still = []
+        for row, j in enumerate(active):
+            keep = keeps[j]
+            g = G[row, keep]
+            step = cho_solve(factors[j], g, check_finite=False)
+            dec = float(g @ step)
+            if not math.isfinite(dec):
+                continue  # left as None: full Newton takes over
+            if dec <= REFIT_DECREMENT_TOL:
+                out[j] = RefitLikelihood(log_likelihood(y, E[row]), True, iteration, "chord")
+                continue
+            if dec > _CHORD_MIN_SHRINK * previous[j] or iteration == _CHORD_MAX_ITER:
+                continue
+            B[j, keep] += step
+            previous[j] = dec
+            still.append(j)
+        active = still
+    return out
+
+
+def drop_refits(fit: "LogisticFit", drops: list) -> list:
+    """Maximised log-likelihood of ``fit``'s model without each parameter set in ``drops``.
+
+    Parameters
+    ----------
+    fit : LogisticFit
+        A maximum-likelihood fit.
+    drops : list of int arrays
+        Positions (among the kept parameters) to leave out, one array per sub-model.
+
+    Returns
+    -------
+    list of RefitLikelihood
+        In the order of ``drops``.
+
+    Notes
+    -----
+    Each refit starts from the one-step constrained estimate
+    ``b_K + H_KK^-1 H_KD b_D`` (:func:`reduced_start`) and iterates with the
+    full fit's information held fixed (:func:`_chord_refits`), which needs
+    only a gradient per step; one that does not converge quickly is finished
+    by full Newton (:func:`refit_log_likelihood`).  Either way the result is
+    the maximum to a tight tolerance, so G is exact.  The work is split
+    between two threads.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    drops = [np.asarray(d, dtype=int) for d in drops]
+    if not drops:
+        return []
+    X = fit.used_X
+    y = fit.design.y
+    k = fit.n_params
+    b = np.asarray(fit.params, dtype=float)
+    usable = np.all(np.isfinite(b)) and np.all(np.isfinite(fit.cov))
+    info = None
+    if usable:
+        try:
+            info = np.linalg.inv(fit.cov)
+            info = 0.5 * (info + info.T)
+        except np.linalg.LinAlgError:
+            info = None
+    starts = [reduced_start(fit, d, info=info) for d in drops]
+
+    def newton(j):
+        keep = np.setdiff1d(np.arange(k), drops[j])
+        Xr = np.take(X, keep, axis=1)
+        first = _newton_refit(Xr, y, starts[j], 50, 1e-10)
+        if first.converged:
+            return first
+        # A start taken from a full fit that ran off (separation) can be far off:
+        # try once more from the event rate, and keep the better maximum.
+        plain = np.zeros(len(keep))
+        rate = float(np.clip(y.mean(), 1e-12, 1 - 1e-12))
+        if 0 in keep:
+            plain[0] = math.log(rate / (1 - rate))
+        second = _newton_refit(Xr, y, plain, 50, 1e-10)
+        if second.method == "failed":
+            return first
+        if first.method == "failed" or second.converged or second.llf > first.llf:
+            return second
+        return first
+
+    def run(indices):
+        out = {}
+        if info is not None:
+            per_batch = max(1, _BATCH_ELEMENTS // max(len(y), 1))
+            for at in range(0, len(indices), per_batch):
+                chunk = indices[at:at + per_batch]
+                with np.errstate(all="ignore"):
+                    done = _chord_refits(X, y, info, [drops[j] for j in chunk], [starts[j] for j in chunk])
+                out.update(zip(chunk, done))
+        for j in indices:
+            if out.get(j) is None:
+                out[j] = newton(j)
+        return out
+
+    everything = list(range(len(drops)))
+    # One warning filter around both threads (see _newton_refit).
+    with _one_blas_thread(), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        if len(drops) < 2:
+            results = run(everything)
+        else:
+            with ThreadPoolExecutor(max_workers=2) as pool:
+                results = {}
+                for part in pool.map(run, [everything[0::2], everything[1::2]]):
+                    results.update(part)
+    return [results[j] for j in everything]
+
+
+def reduced_start(fit: "LogisticFit", drop: np.ndarray, info: np.ndarray | None = None) -> np.ndarray:
+    """Starting values for the fit without parameters ``drop``: the one-step constrained estimate.
+
+    b_K + H_KK^-1 H_KD b_D, with H the full fit's information matrix: the
+    maximum of the full log-likelihood's quadratic approximation with
+    b_D = 0, so Newton (or the chord iteration) starts a small step away.
+    ``info`` is H when already at hand (else the inverse of ``fit.cov``).
+    """
+    drop = np.asarray(drop, dtype=int)
     keep = np.setdiff1d(np.arange(fit.n_params), drop)
-    info = np.linalg.pinv(fit.cov) if np.all(np.isfinite(fit.cov)) else None
-    b = fit.params
-    if info is None:
-        return b[keep].copy()
+    b = np.asarray(fit.params, dtype=float)
+    if info is None and np.all(np.isfinite(fit.cov)):
+        try:
+            info = np.linalg.inv(fit.cov)
+        except np.linalg.LinAlgError:
+            info = None
+    if info is None or not np.all(np.isfinite(b)):
+        return np.where(np.isfinite(b[keep]), b[keep], 0.0)
     try:
         return b[keep] + np.linalg.solve(info[np.ix_(keep, keep)], info[np.ix_(keep, drop)] @ b[drop])
     except np.linalg.LinAlgError:
@@ -582,9 +806,10 @@ def nested_test(smaller: LogisticFit, larger: LogisticFit) -> LikelihoodRatioTes
         raise ModelError("The two models were fitted on different rows, so the likelihood-ratio test is not valid; "
                          "refit the smaller model on the rows of the larger one.")
     added = tuple(c for c in larger.design.predictors if c not in small_cols)
-    if hasattr(larger, "lr_test_of"):
-        # Penalised fits: the penalised likelihood-ratio test of the added terms.
-        return larger.lr_test_of(added)
+    if hasattr(larger, "lr_test_against"):
+        # Penalised fits: the penalised likelihood-ratio test of the parameters the
+        # smaller model lacks (added terms, or a spline's non-linear part).
+        return larger.lr_test_against(smaller, added)
     df = larger.n_params - smaller.n_params
     g = 2.0 * (larger.llf - smaller.llf)
     # Rounding can leave a tiny negative G when nothing was added.

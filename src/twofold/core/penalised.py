@@ -33,7 +33,7 @@ class FirthFit(LogisticFit):
 
     @property
     def X(self) -> np.ndarray:
-        return self.design.X[:, self.kept]
+        return self.used_X
 
     @cached_property
     def overall(self) -> LikelihoodRatioTest:
@@ -58,12 +58,35 @@ class FirthFit(LogisticFit):
 
     def lr_test_of(self, columns) -> LikelihoodRatioTest:
         """Penalised likelihood-ratio test that the coefficients of these predictor columns are zero."""
+        idx = [int(i) for c in columns for i in self.term_index[c]]
+        return self.lr_test_of_parameters(idx, added=tuple(columns))
+
+    def lr_test_of_parameters(self, idx, added=()) -> LikelihoodRatioTest:
+        """Penalised likelihood-ratio test that the kept parameters at positions ``idx`` are zero.
+
+        The restricted fit holds them at zero under the full model's penalty
+        (Heinze & Schemper 2002).  No parameters: G = 0 on 0 df, p undefined.
+        """
         from twofold.core.firth import firth_lr_test
 
-        idx = [int(i) for c in columns for i in self.term_index[c]]
+        idx = sorted({int(i) for i in idx})
+        if not idx:
+            return LikelihoodRatioTest(0.0, 0, float("nan"), added=tuple(added), n_rows=self.n_used)
         t = firth_lr_test(self.X, self.design.y, idx, full=self.result)
         return LikelihoodRatioTest(float(t.statistic), int(t.df), float(t.p_value),
-                                   added=tuple(columns), n_rows=self.n_used)
+                                   added=tuple(added), n_rows=self.n_used)
+
+    def lr_test_against(self, smaller: LogisticFit, added=()) -> LikelihoodRatioTest:
+        """Penalised likelihood-ratio test of a smaller model nested in this one, on the same rows.
+
+        The parameters tested are this model's that the smaller one lacks, by
+        name: an added predictor's columns, or a spline's non-linear columns
+        when the smaller model has the same predictor as a straight line
+        (whose single column carries the same name as the spline's first).
+        """
+        have = set(smaller.names)
+        idx = [i for i, name in enumerate(self.names) if name not in have]
+        return self.lr_test_of_parameters(idx, added=added)
 
 
 def fit_firth(design: Design, dropped: list[int] | None = None) -> FirthFit:
@@ -83,8 +106,11 @@ def fit_firth(design: Design, dropped: list[int] | None = None) -> FirthFit:
     notices = []
     for n in ml.notices:
         if n.code == "separation":
-            notices.append(Notice("separation", n.message.split(";")[0] + "; Firth's penalised fit is used, "
-                                  "which keeps the estimates finite.", n.subjects))
+            # Only the finding, not the ordinary fit's verdict: here the remedy is already applied.
+            finding = n.message.split(", so ")[0]
+            notices.append(Notice("separation", finding + "; an ordinary fit would run off towards 0 or "
+                                  "infinity, so Firth's penalised fit is used here, which keeps the estimates "
+                                  "finite.", n.subjects))
         elif n.code != "not_converged":
             notices.append(n)
     if not result.converged:
@@ -98,23 +124,45 @@ def profile_intervals(fit: LogisticFit) -> dict[str, tuple[float, float]]:
 
     Maximum-likelihood fits use the profile likelihood (Venzon & Moolgavkar
     1988); Firth fits the profile penalised likelihood.  An end that is never
-    reached (separation) is infinite.
+    reached (separation) is infinite; an interval whose ends could not be
+    found is (NaN, NaN).
     """
-    X = fit.design.X[:, fit.kept]
+    from twofold.core.errors import TwofoldError
+
+    X = fit.used_X
     y = fit.design.y
     out = {}
+    # In tiny or separated data the root search can fail for one coefficient
+    # (the profile is flat or its inner fits disagree); that interval is then
+    # NaN (not available) instead of stopping the whole analysis.
+    failures = (TwofoldError, ValueError, ArithmeticError, np.linalg.LinAlgError)
+    nan = (float("nan"), float("nan"))
     if isinstance(fit, FirthFit):
         from twofold.core.firth import firth_profile_ci
 
         for j in range(1, fit.n_params):
-            iv = firth_profile_ci(X, y, j, full=fit.result)
-            out[fit.names[j]] = (float(np.exp(iv.lower)), float(np.exp(iv.upper)))
+            try:
+                iv = firth_profile_ci(X, y, j, full=fit.result)
+            except failures:
+                out[fit.names[j]] = nan
+                continue
+            with np.errstate(over="ignore"):
+                out[fit.names[j]] = (float(np.exp(iv.lower)), float(np.exp(iv.upper)))
     else:
         from twofold.core.profile import profile_all
 
         params = np.where(np.isfinite(fit.params), fit.params, np.sign(fit.params) * 50.0)
-        table = profile_all(X, y, params, fit.llf, columns=list(range(1, fit.n_params)))
-        for j, iv in zip(range(1, fit.n_params), table.intervals):
+        columns = list(range(1, fit.n_params))
+        try:
+            intervals = list(profile_all(X, y, params, fit.llf, columns=columns).intervals)
+        except failures:
+            intervals = []
+            for j in columns:  # one at a time, so one failure costs only its own interval
+                try:
+                    intervals.extend(profile_all(X, y, params, fit.llf, columns=[j]).intervals)
+                except failures:
+                    intervals.append(None)
+        for j, iv in zip(columns, intervals):
             with np.errstate(over="ignore"):
-                out[fit.names[j]] = (float(np.exp(iv.lower)), float(np.exp(iv.upper)))
+                out[fit.names[j]] = nan if iv is None else (float(np.exp(iv.lower)), float(np.exp(iv.upper)))
     return out

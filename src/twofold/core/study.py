@@ -322,6 +322,9 @@ class DropOneTest:
     statistic is far below G, the pattern of the Hauck-Donner effect (Hauck &
     Donner 1977, JASA 72:851): large estimates inflate the standard error, so
     the Wald test loses power and the likelihood-ratio test should be used.
+    ``available`` is False when the model without the predictor could not be
+    fitted (G and its p-value are then NaN); ``note`` says why, or that G is
+    approximate because that refit did not settle.
     """
 
     column: str
@@ -331,47 +334,68 @@ class DropOneTest:
     wald: float
     wald_p_value: float
     prefer_lr: bool
+    available: bool = True
+    note: str | None = None
 
     def as_dict(self) -> dict:
-        return {k: getattr(self, k) for k in ("column", "g", "df", "p_value", "wald", "wald_p_value", "prefer_lr")}
+        return {k: getattr(self, k) for k in ("column", "g", "df", "p_value", "wald", "wald_p_value", "prefer_lr",
+                                              "available")}
 
 
 def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
     """For every predictor of ``fit``, refit without it on the same rows and test the loss.
 
     G = 2 (lnL_full - lnL_without) on the predictor's number of coefficients.
-    The refits start from a one-step correction of the full estimates and run
-    on both cores.
+    Maximum-likelihood refits go through :func:`~twofold.core.fit.drop_refits`
+    (warm-started chord Newton, full Newton where needed, two threads);
+    penalised fits use their penalised likelihood-ratio test.  A refit that
+    is impossible (a model too small for its rows) marks that test
+    unavailable instead of stopping the assessment.
     """
-    from concurrent.futures import ThreadPoolExecutor
-
-    from twofold.core.fit import _one_blas_thread, chi2_sf, reduced_start, refit_log_likelihood
+    from twofold.core.errors import TwofoldError
+    from twofold.core.fit import chi2_sf, drop_refits, log_likelihood
 
     columns = [c for c in fit.design.predictors if len(fit.term_index[c])]
-    X = fit.design.X if len(fit.kept) == fit.design.n_params else np.take(fit.design.X, fit.kept, axis=1)
-    y = fit.design.y
-
-    def loss(column):
-        if hasattr(fit, "lr_test_of"):
-            t = fit.lr_test_of([column])
-            return t.g, t.df
-        drop = fit.term_index[column]
-        keep = np.setdiff1d(np.arange(fit.n_params), drop)
-        llf = refit_log_likelihood(np.take(X, keep, axis=1), y, reduced_start(fit, drop))
-        return max(2.0 * (fit.llf - llf), 0.0), len(drop)
-
-    if hasattr(fit, "lr_test_of") or len(columns) < 2:
-        losses = [loss(c) for c in columns]
+    losses = []  # (g, df, note or None, available)
+    if hasattr(fit, "lr_test_of"):
+        for column in columns:
+            try:
+                t = fit.lr_test_of([column])
+                g = float(t.g)
+            except (TwofoldError, np.linalg.LinAlgError, ValueError):
+                g = float("nan")
+            if np.isfinite(g):
+                losses.append((g, int(len(fit.term_index[column])), None, True))
+            else:
+                losses.append((float("nan"), int(len(fit.term_index[column])),
+                               _unavailable_note(column), False))
     else:
-        with _one_blas_thread(), ThreadPoolExecutor(max_workers=2) as pool:
-            losses = list(pool.map(loss, columns))
+        refits = drop_refits(fit, [fit.term_index[c] for c in columns])
+        full = log_likelihood(fit.design.y, fit.linear_predictor) if refits else float("nan")
+        for column, r in zip(columns, refits):
+            df = int(len(fit.term_index[column]))
+            if r.method == "failed" or not np.isfinite(full):
+                losses.append((float("nan"), df, _unavailable_note(column), False))
+                continue
+            note = None
+            if not r.converged:
+                note = (f"The refit without '{column}' did not settle (usually separation), so its "
+                        "likelihood-ratio G is approximate.")
+            losses.append((max(2.0 * (full - r.llf), 0.0), df, note, True))
     out = []
-    for column, (g, df) in zip(columns, losses):
+    for column, (g, df, note, available) in zip(columns, losses):
         idx = fit.term_index[column]
         wald = float(fit.z[idx[0]] ** 2) if len(idx) == 1 else fit.term_tests[column].statistic
         wald_p = chi2_sf(wald, len(idx)) if np.isfinite(wald) else float("nan")
-        p = chi2_sf(g, df)
-        disagree = (p < 0.05) != (wald_p < 0.05)
-        much_lower = g > 3.841 and wald < 0.5 * g
-        out.append(DropOneTest(column, float(g), int(df), p, wald, wald_p, bool(disagree or much_lower)))
+        p = chi2_sf(g, df) if available else float("nan")
+        disagree = available and (p < 0.05) != (wald_p < 0.05)
+        much_lower = available and g > 3.841 and wald < 0.5 * g
+        out.append(DropOneTest(column, float(g), int(df), p, wald, wald_p, bool(disagree or much_lower),
+                               available, note))
     return out
+
+
+def _unavailable_note(column: str) -> str:
+    return (f"The model without '{column}' could not be fitted on these rows (too few records for its "
+            "coefficients, or an outcome it predicts perfectly), so its likelihood-ratio test is not "
+            "available; read the Wald test with care or use more records.")

@@ -14,6 +14,12 @@ CAUTION = (
     "Decisions about any patient's care rest with licensed clinicians and local policy."
 )
 
+#: Shown right beside every predicted risk for one patient (window and command line alike).
+PATIENT_CAUTION = (
+    "This is a statistical estimate from the loaded data, not a clinical decision. Decisions about a patient's "
+    "care rest with licensed clinicians and local policy."
+)
+
 
 def clean_number(x):
     """A float for JSON: NaN and infinities become None; whole-number floats stay floats."""

@@ -24,8 +24,11 @@ def fmt_num(x, digits: int = 3) -> str:
         return "n/a"
     if isinstance(x, float) and math.isinf(x):
         return "infinite"
+    if abs(x) >= 1e9:
+        # Readers of these reports do not read powers of ten; figures this size mean a fit that ran off.
+        return "over 1 billion" if x > 0 else "below -1 billion"
     if abs(x) >= 1e6:
-        return f"{x:.3g}"
+        return f"{x:,.0f}"
     return f"{x:,.{digits}f}"
 
 
@@ -37,8 +40,12 @@ def fmt_or(x) -> str:
         return "infinite"
     if x == 0:
         return "0"
-    if x >= 1000 or x < 0.001:
-        return f"{x:.2g}"
+    if x >= 1e6:
+        return "over 1 million"
+    if x >= 1000:
+        return f"{float(f'{x:.3g}'):,.0f}"  # three significant figures, in plain digits
+    if x < 0.001:
+        return "below 0.001"
     if 0.1 <= x < 10:
         return f"{x:.3f}"
     return f"{x:.3g}" if x < 10 else f"{x:.1f}"
@@ -105,25 +112,38 @@ def describe(record: dict, source: str = "") -> str:
     add("")
     add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)")
     labels = [_term_label(t) for t in record["terms"]] + ["baseline odds (intercept)"]
-    width = max([len(s) for s in labels] + [20])
-    head = f"  {'predictor':<{width}}  {'odds ratio':>10}  {'95% CI':>17}  {'p-value':>11}  {'Wald z':>7}  {'coefficient':>11}  {'std. error':>10}"
-    add(head)
-    add("  " + "-" * (len(head) - 2))
+    heads = ("predictor", "odds ratio", "95% CI", "p-value", "Wald z", "coefficient", "std. error")
+    rows = []  # (joint-test line or None, cells)
     joint = {t["column"]: t for t in record["term_tests"]}
     shown_joint = set()
     for t, label in zip(record["terms"], labels):
         col = t["column"]
+        line = None
         if col in joint and col not in shown_joint:
             j = joint[col]
-            add(f"  {col} as a whole: joint Wald chi-square {fmt_num(j['statistic'], 2)} on {j['df']} degrees of freedom, "
-                f"p-value {fmt_p(j['p_value'])}")
+            line = (f"  {col} as a whole: joint Wald chi-square {fmt_num(j['statistic'], 2)} on {j['df']} degrees "
+                    f"of freedom, p-value {fmt_p(j['p_value'])}")
             shown_joint.add(col)
         ci = f"{fmt_or(t['or_ci_low'])} to {fmt_or(t['or_ci_high'])}"
-        add(f"  {label:<{width}}  {fmt_or(t['odds_ratio']):>10}  {ci:>17}  {fmt_p(t['p_value']):>11}  "
-            f"{fmt_num(t['z'], 2):>7}  {fmt_num(t['estimate'], 4):>11}  {fmt_num(t['std_error'], 4):>10}")
+        rows.append((line, (label, fmt_or(t["odds_ratio"]), ci, fmt_p(t["p_value"]), fmt_num(t["z"], 2),
+                            fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4))))
     i = record["intercept"]
-    add(f"  {labels[-1]:<{width}}  {'':>10}  {'':>17}  {fmt_p(i['p_value']):>11}  "
-        f"{fmt_num(i['z'], 2):>7}  {fmt_num(i['estimate'], 4):>11}  {fmt_num(i['std_error'], 4):>10}")
+    rows.append((None, (labels[-1], "", "", fmt_p(i["p_value"]), fmt_num(i["z"], 2), fmt_num(i["estimate"], 4),
+                        fmt_num(i["std_error"], 4))))
+    # Widths from the cells themselves, so a huge estimate never pushes a column out of line.
+    widths = [max([len(h)] + [len(cells[c]) for _, cells in rows]) for c, h in enumerate(heads)]
+    widths[0] = max(widths[0], 20)
+
+    def row_text(cells):
+        return "  " + "  ".join(f"{v:<{w}}" if c == 0 else f"{v:>{w}}" for c, (v, w) in enumerate(zip(cells, widths)))
+
+    head = row_text(heads)
+    add(head)
+    add("  " + "-" * (len(head) - 2))
+    for line, cells in rows:
+        if line is not None:
+            add(line)
+        add(row_text(cells))
     if record["dropped_columns"]:
         add("  Left out as constant or duplicated: " + ", ".join(record["dropped_columns"]) + ".")
     nested = record["nested"]

@@ -23,13 +23,9 @@ from PySide6.QtWidgets import (
     QScrollArea, QSizePolicy, QVBoxLayout, QWidget,
 )
 
+from twofold.core.summary import PATIENT_CAUTION as RISK_CAUTION  # beside every risk; the CLI says the same
 from twofold.gui import style
 
-#: Shown right beside every predicted risk.
-RISK_CAUTION = (
-    "This is a statistical estimate from the loaded data, not a clinical decision. Decisions about a patient's "
-    "care rest with licensed clinicians and local policy."
-)
 
 #: Shown under the fields.
 NOT_KEPT = "The values typed here are not saved anywhere and are cleared when this panel closes."

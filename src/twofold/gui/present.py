@@ -565,22 +565,13 @@ SMOOTH_UNRELIABLE_NOTE = (
 )
 
 
-#: Beside the calibration figures of a penalised fit (in place of the core's note for ordinary fits).
-PENALISED_CALIBRATION_NOTE = (
-    "With the penalised fit and its intercept correction (FLIC), calibration-in-the-large is 0 by construction "
-    "on the records it was fitted to, so it says nothing here; the slope is usually above 1 on them, because the "
-    "penalty pulls the estimates towards zero. Both become informative on a new extract or after bootstrap "
-    "correction."
-)
-
-
 def _pct(x) -> str:
     return "not available" if x is None or not math.isfinite(x) else f"{100 * x:.1f}%"
 
 
 def assessment_view(study, ladder, result, figures: dict, fit=None) -> AssessmentView:
     """The assessment of the model shown, worded (``result`` is a core ``Assessment`` of ``fit``)."""
-    from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
+    from twofold.core.assessment import HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
     from twofold.core.influence import VIF_THRESHOLD
 
     index = ladder.current
@@ -659,7 +650,7 @@ def assessment_view(study, ladder, result, figures: dict, fit=None) -> Assessmen
             " (penalised fit; predicted risks intercept-corrected, FLIC)" if penalised else ""),
         auc_text=auc_text, auc_reading=auc_reading,
         brier_text=brier_text, calibration_text=calibration_text,
-        calibration_note=PENALISED_CALIBRATION_NOTE if penalised else APPARENT_CALIBRATION_NOTE,
+        calibration_note=result.calibration_note,
         hl_text=hl_text, hl_note=HOSMER_LEMESHOW_NOTE, pseudo_r2_text=pseudo, drop_one=drop, vif=vif,
         vif_note=vif_note, sample_size_text=sample, sample_size_short=short, influential=influential,
         classification_text=classification, threshold=threshold, threshold_note=THRESHOLD_NOTE,
