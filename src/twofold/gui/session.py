@@ -81,6 +81,7 @@ class Session(QObject):
         self._profiler = None
         self._profiled = None
         self._profile_future = None  # (request id, Future) of the intervals being traced
+        self._early_profile = None  # (request id, ProfileView) traced before its results were shown
         self.last_profile = None
         #: Profile intervals for every model, not only small ones (GUI side; read by the worker).
         self.profile_always = False
@@ -224,9 +225,15 @@ class Session(QObject):
             pass
 
     def _on_profiled(self, job_id: int, view) -> None:
-        if self.is_current("profile", job_id):
-            self.last_profile = view
-            self.profileReady.emit(view)
+        if not self.is_current("profile", job_id):
+            return
+        if job_id in self._pending:
+            # Traced before the results they describe reached the window (a small model on a
+            # busy machine): held back, so they never arrive ahead of those results and get lost.
+            self._early_profile = (job_id, view)
+            return
+        self.last_profile = view
+        self.profileReady.emit(view)
 
     # ---- model-shape hook (used by twofold.gui.modelling_ui) ----------------
     def run_modelling(self, fn) -> int:
@@ -298,6 +305,12 @@ class Session(QObject):
                 if facet in ("study", "columns"):
                     self.last_study = view
                 signals[facet].emit(view)
+        early = self._early_profile
+        if early is not None and early[0] <= result.id:
+            self._early_profile = None
+            if early[0] == result.id and self.is_current("profile", early[0]):
+                self.last_profile = early[1]
+                self.profileReady.emit(early[1])
         if "modelling" in result.outputs:  # model-shape hook: the dialog checks the id itself
             self.modellingReady.emit(result.id, result.outputs["modelling"])
         if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
