@@ -239,7 +239,9 @@ def test_separation_warning_sits_on_the_predictor_row(qtbot, window):
     assert model.data(model.index(r, 0), Qt.ItemDataRole.DecorationRole) is not None
     texts = [window.results_pane.notes_layout.itemAt(i).widget().text()
              for i in range(window.results_pane.notes_layout.count())]
-    assert any(t.startswith("wound_class") and notice.message in t for t in texts)
+    # The banner names the predictor once (the message itself names it, so no prefix repeats it).
+    assert any("'wound_class'" in t and notice.message in t for t in texts)
+    assert not any(t.startswith("wound_class: ") for t in texts)
     assert [n.column for n in view.predictor_notes] == ["wound_class"]
 
 

@@ -29,6 +29,8 @@ def fmt_num(x, digits: int = 3) -> str:
         return "over 1 billion" if x > 0 else "below -1 billion"
     if abs(x) >= 1e6:
         return f"{x:,.0f}"
+    if round(x, digits) == 0:
+        x = 0.0  # no "-0.000" for a value that rounds to zero from below
     return f"{x:,.{digits}f}"
 
 

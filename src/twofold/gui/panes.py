@@ -831,7 +831,10 @@ class ResultsPane(QWidget):
                 continue
             seen.add(key)
             who = ", ".join(columns)
-            banner = self._notice_banner(f"{who}: {note.message}", note, f"Warning about {who}", view)
+            # A message that already names its predictors is not prefixed with them again.
+            named = all(f"'{c}'" in note.message for c in columns)
+            text = note.message if named else f"{who}: {note.message}"
+            banner = self._notice_banner(text, note, f"Warning about {who}", view)
             self.notes_layout.addWidget(banner)
         self.notes_box.setVisible(bool(view.predictor_notes))
 
