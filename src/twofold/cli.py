@@ -54,8 +54,51 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
+    add_report_options(p, "saved with --session-out for later reports")
     p.add_argument("--table-out", metavar="PATH.csv|PATH.xlsx", help="write the coefficient table")
     return p
+
+
+def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
+    """``--suppress-up-to N`` and ``--report-records``, shared by ``fit`` and ``rerun``."""
+    from twofold.core.privacy import DEFAULT_THRESHOLD
+
+    p.add_argument("--suppress-up-to", type=suppress_limit, metavar="N", default=None,
+                   help=f"in the report, show counts of 1 to N people as suppressed (default {DEFAULT_THRESHOLD}; "
+                        f"use the limit your data owner requires; {default_note})")
+    p.add_argument("--report-records", action=argparse.BooleanOptionalAction, default=None,
+                   help="list the most influential records in the report by their row number in the data file "
+                        "(row numbers can point back to patients; off unless asked)")
+
+
+def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) -> None:
+    """Refuse report options that would change nothing: none of ``places`` (option -> value) is given.
+
+    ``places`` names ``--report`` and, for ``fit``, ``--session-out`` (the
+    session keeps the options for the reports of later re-runs).
+    """
+    given = [name for name, value in (("--suppress-up-to", args.suppress_up_to),
+                                      ("--report-records", args.report_records)) if value is not None]
+    if given and not any(places.values()):
+        them = "it" if len(given) == 1 else "them"
+        nor = (f" (nor --session-out, which keeps {them} for later reports)" if "--session-out" in places else "")
+        p.error(f"{' and '.join(given)} change{'s' if len(given) == 1 else ''} only a report, but no --report "
+                f"was given{nor}; add --report PATH.html or leave {them} out")
+
+
+def suppress_limit(text: str) -> int:
+    """The value of ``--suppress-up-to``: a whole number from 1 to the largest limit allowed."""
+    from twofold.core.privacy import MAX_THRESHOLD
+
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the largest count of people to "
+                                         "hide, e.g. 10") from None
+    if not 1 <= value <= MAX_THRESHOLD:
+        raise argparse.ArgumentTypeError(f"{text} is out of range; give a whole number from 1 to {MAX_THRESHOLD}, "
+                                         "e.g. 10")
+    return value
 
 
 def _role_names() -> list[str]:
@@ -93,7 +136,9 @@ def _same_file(a: Path, b: Path) -> bool:
 
 def run_fit(argv: list[str]) -> int:
     """``twofold fit``: returns the exit code."""
-    args = _fit_parser().parse_args(argv)
+    parser = _fit_parser()
+    args = parser.parse_args(argv)
+    report_options_need_a_place(parser, args, {"--report": args.report, "--session-out": args.session_out})
     from twofold.core.errors import TwofoldError
 
     try:
@@ -107,7 +152,8 @@ def run_fit(argv: list[str]) -> int:
         if args.session_out or args.report or args.table_out:
             from twofold.outputs import write_fit_outputs
 
-            write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out)
+            write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out,
+                              suppress_up_to=args.suppress_up_to, report_records=args.report_records)
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
         return EXIT_USAGE

@@ -16,7 +16,7 @@ import os
 import sys
 from pathlib import Path
 
-from twofold.cli import EXIT_USAGE, _Parser
+from twofold.cli import EXIT_USAGE, _Parser, add_report_options, report_options_need_a_place
 
 def _same_file(a, b) -> bool:
     try:
@@ -40,7 +40,8 @@ def _refuse_data_targets(outputs, data, session_file=None) -> None:
             raise DataFileError(f"{out} is the session file being read; choose another file name for the output.")
 
 
-def write_fit_outputs(result, session=None, report=None, table=None, ladder=None) -> list[Path]:
+def write_fit_outputs(result, session=None, report=None, table=None, ladder=None, suppress_up_to=None,
+                      report_records=None) -> list[Path]:
     """Write the session file, the report and the coefficient table of a fit (each optional).
 
     Parameters
@@ -50,6 +51,12 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
         Session file (JSON), report (.html or .pdf), table (.csv or .xlsx).
     ladder : Ladder or list of lists of str, optional
         The models tried, kept in the session and shown in the report.
+    suppress_up_to : int, optional
+        Counts of 1 up to this many people are hidden in the report
+        (default 10); kept in the session for later reports.
+    report_records : bool, optional
+        List the most influential records by row number in the report
+        (default False); kept in the session too.
 
     Returns
     -------
@@ -72,11 +79,14 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
     if table and Path(table).suffix.lower() not in (".csv", ".xlsx"):
         raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{Path(table).suffix or table}'; "
                             "end the file name with .csv or .xlsx.")
+    from twofold.core.session import REPORT_DEFAULTS
+
+    options = report_options(REPORT_DEFAULTS, suppress_up_to, report_records)
     written = []
     if session:
         from twofold.core.session import save_session, session_from_result
 
-        written.append(save_session(session_from_result(result, ladder=ladder), session))
+        written.append(save_session(session_from_result(result, ladder=ladder, report=options), session))
     if table:
         from twofold.core.export import export_coefficients
 
@@ -85,8 +95,15 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
     if report:
         from twofold.core.report import write_report
 
-        written.append(write_report(result, report, ladder=ladder))
+        written.append(write_report(result, report, ladder=ladder, suppress_below=options["suppress_up_to"],
+                                    include_records=options["list_records"]))
     return written
+
+
+def report_options(saved: dict, suppress_up_to=None, report_records=None) -> dict:
+    """The report's options: those given (not None) over those ``saved`` (a session's ``report``)."""
+    return {"suppress_up_to": int(saved["suppress_up_to"] if suppress_up_to is None else suppress_up_to),
+            "list_records": bool(saved["list_records"] if report_records is None else report_records)}
 
 
 # ---------------------------------------------------------------------------
@@ -102,6 +119,7 @@ def _rerun_parser() -> argparse.ArgumentParser:
     p.add_argument("--frozen", action="store_true",
                    help="do not refit: apply the saved model unchanged and report how it performs on the new rows")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
+    add_report_options(p, "default for a re-run: the session's own")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
     return p
 
@@ -158,7 +176,9 @@ def _note(message: str) -> None:
 
 def run_rerun(argv: list[str]) -> int:
     """``twofold rerun SESSION [--data NEW] [--frozen] [--report PATH] [--json PATH|-]``: returns the exit code."""
-    args = _rerun_parser().parse_args(argv)
+    parser = _rerun_parser()
+    args = parser.parse_args(argv)
+    report_options_need_a_place(parser, args, {"--report": args.report})
     from twofold.core.errors import TwofoldError
 
     try:
@@ -186,6 +206,7 @@ def _rerun(args):
     from twofold.core.io import read_table
 
     session = ses.load_session(args.session)
+    options = report_options(session["report"], args.suppress_up_to, args.report_records)
     own = args.data is None
     data = Path(session["data"] if own else args.data)
     ses.require_data_file(data)
@@ -193,6 +214,7 @@ def _rerun(args):
     table = read_table(data, sheet=session["sheet"])
     notices = ses.check_data(session, data, frame=table.frame)
     needed = set([session["outcome"], *session["predictors"], *(session["smaller"] or [])])
+    rows_from = set(session["rows_complete_in"]) - needed
     if args.frozen:
         needed |= {t["column"] for t in session["model"]["terms"]}
     hard = [n for n in notices if n.code == "column_missing" and n.subjects[0] in needed]
@@ -203,7 +225,11 @@ def _rerun(args):
         if n.code == "data_changed" and own:
             _note(n.message)
         elif n.code == "column_missing" and n not in hard:
-            _note(n.message[:-1] + "; the models that use it are left out of the report.")
+            if n.subjects[0] in rows_from and not args.frozen:
+                _note(n.message[:-1] + "; the rows are no longer limited to those complete in it, and the models "
+                      "that use it are left out of the report.")
+            else:
+                _note(n.message[:-1] + "; the models that use it are left out of the report.")
     if args.frozen:
         from twofold.core.predict import evaluate_frozen
 
@@ -212,21 +238,27 @@ def _rerun(args):
         if args.report:
             from twofold.core.report import write_report
 
-            write_report(result, args.report)
+            if args.report_records:
+                _note("a saved model applied unchanged is not refitted, so its report lists no influential records.")
+            write_report(result, args.report, suppress_below=options["suppress_up_to"])
         return result.record, result.source
     from twofold.core.analysis import run_analysis
     from twofold.core.study import Study
 
     spec = ses.spec_from_session(session, data)
+    present = {str(c) for c in table.frame.columns}
+    # A column missing from this extract no longer limits the rows (noted above); "A:B" stands for two columns.
+    spec.rows_complete_in = [c for c in spec.rows_complete_in
+                             if all(part in present for part in ([c] if c in present else c.split(":")))]
     study = Study(table)
     result = run_analysis(spec, study=study)
     if args.report:
         from twofold.core.report import write_report
 
-        present = {str(c) for c in table.frame.columns}
         rungs = [r for r in session["ladder"] if all(c in present for c in r)]
         ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"]) if len(rungs) > 1 else None
-        write_report(result, args.report, ladder=ladder)
+        write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
+                     include_records=options["list_records"])
     return result.record, result.study.source
 
 

@@ -265,3 +265,185 @@ def test_hostile_sessions_run_nothing(tmp_path, capsys):
     res = subprocess.run([sys.executable, "-m", "twofold.cli", "predict", str(tmp_path / "pickle.json"),
                           "--value", "age=60"], capture_output=True, text=True, timeout=60)
     assert res.returncode == 2 and "pickle" in res.stderr and not marker.exists()
+
+
+# ---- report options: --suppress-up-to and --report-records ------------------------------------------
+
+WOUND = ROOT / "sample_studies" / "wound_infection_synthetic.csv"
+WOUND_FIT = ["fit", WOUND, "--outcome", "infection", "--event", "yes"]
+
+
+def usage(capsys, fn, *argv):
+    """A command refused while reading its options (argparse exits): its exit code and standard error."""
+    with pytest.raises(SystemExit) as info:
+        fn([str(a) for a in argv])
+    return info.value.code, capsys.readouterr().err
+
+
+def _group_rows(html: str, column: str) -> dict:
+    """The cross-tabulation of ``column`` in a report: {group: [events, non-events, total]} as shown."""
+    import re
+
+    table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if f"<th>{column}</th>" in t)
+    out = {}
+    for row in re.findall(r"<tr>(.*?)</tr>", table, re.S)[1:]:
+        cells = [re.sub(r"<[^>]+>", "", c) for c in re.findall(r"<t[dh][^>]*>(.*?)</t[dh]>", row, re.S)]
+        out[cells[0].replace(" (reference)", "")] = cells[1:4]
+    return out
+
+
+def _pandas_counts(column: str) -> dict:
+    """Outside reference: pandas crosstab of the wound sample, {group: [events, non-events, total]}."""
+    frame = pd.read_csv(WOUND)
+    tab = pd.crosstab(frame[column], frame.infection)
+    return {str(g): [int(tab.loc[g, "yes"]), int(tab.loc[g, "no"]), int(tab.loc[g].sum())] for g in tab.index}
+
+
+def test_suppress_up_to_sets_the_limit_of_the_report(tmp_path, capsys):
+    predictors = ["--predictor", "age", "bmi", "diabetes", "antibiotic_timing"]
+    for name, extra in (("default.html", []), ("three.html", ["--suppress-up-to", "3"])):
+        code, _, err = run(capsys, main, *WOUND_FIT, *predictors, "--report", tmp_path / name, *extra)
+        assert code == 0, err
+    reports = {limit: (tmp_path / name).read_text(encoding="utf-8")
+               for limit, name in ((10, "default.html"), (3, "three.html"))}
+    shown_only_at_three = []
+    for column in ("diabetes", "antibiotic_timing"):
+        expected = _pandas_counts(column)
+        for limit, html in reports.items():
+            shown = _group_rows(html, column)
+            assert set(expected) <= set(shown)
+            for group, counts in expected.items():
+                for count, text in zip(counts, shown[group]):
+                    if 1 <= count <= limit:
+                        assert text == "suppressed", (limit, column, group, count)
+                    else:  # shown as counted, or hidden as a complement of a small one
+                        assert text in (f"{count:,}", "suppressed"), (limit, column, group, count, text)
+                    if limit == 3 and 4 <= count <= 10 and text == f"{count:,}":
+                        shown_only_at_three.append((column, group, count))
+    # diabetes: 10 infected of the 21 with diabetes, hidden by the default limit, shown with a limit of 3.
+    assert ("diabetes", "yes", 10) in shown_only_at_three
+    assert _group_rows(reports[10], "diabetes")["yes"][0] == "suppressed"
+    assert _group_rows(reports[3], "diabetes")["yes"] == ["10", "11", "21"]
+    # antibiotic_timing: 3 infected of the 18 given antibiotics after incision stay hidden with a limit of 3.
+    assert _pandas_counts("antibiotic_timing")["after_incision"][0] == 3
+    assert _group_rows(reports[3], "antibiotic_timing")["after_incision"][0] == "suppressed"
+    assert "Counts of 1 to 3 people are shown as" in reports[3]
+    assert "Counts of 1 to 10 people are shown as" in reports[10]
+
+
+def _top_influential_rows(k=10):
+    """Outside reference: statsmodels GLM (binomial) Cook's distance on the same design, built with pandas."""
+    import statsmodels.api as sm
+
+    frame = pd.read_csv(WOUND)
+    X = sm.add_constant(pd.DataFrame({"age": frame.age, "bmi": frame.bmi,
+                                      "diabetes": (frame.diabetes == "yes").astype(float)}))
+    glm = sm.GLM((frame.infection == "yes").astype(float), X, family=sm.families.Binomial()).fit()
+    cooks = glm.get_influence().cooks_distance[0]
+    order = np.argsort(-cooks, kind="stable")
+    assert cooks[order[k - 1]] > cooks[order[k]]  # no tie at the edge of the top k
+    return [int(i) + 1 for i in order[:k]], cooks[order[:k]]  # row 1 is the first record of the file
+
+
+def test_report_records_lists_the_most_influential_rows(tmp_path, capsys):
+    import re
+
+    predictors = ["--predictor", "age", "bmi", "diabetes"]
+    code, _, err = run(capsys, main, *WOUND_FIT, *predictors, "--report", tmp_path / "with.html", "--report-records")
+    assert code == 0, err
+    code, _, err = run(capsys, main, *WOUND_FIT, *predictors, "--report", tmp_path / "without.html")
+    assert code == 0, err
+    rows, cooks = _top_influential_rows()
+    html = (tmp_path / "with.html").read_text(encoding="utf-8")
+    table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "row of the data file" in t)
+    listed = re.findall(r"<tr><td>(\d+)</td><td class=\"r\">([0-9.]+)</td>", table)
+    assert [int(r) for r, _ in listed] == rows
+    assert [float(c) for _, c in listed] == pytest.approx(cooks, abs=5e-5)  # shown to 4 decimals
+    assert "asked for record numbers" in html and "point back to patients" in html
+    without = (tmp_path / "without.html").read_text(encoding="utf-8")
+    assert "row of the data file" not in without and "asked for record numbers" not in without
+    assert not [r for r in rows if f"<tr><td>{r}</td><td class=\"r\">" in without]
+
+
+def test_report_options_are_saved_and_reused_by_rerun(tmp_path, capsys):
+    # Without --report the options go into the session, for the reports of later re-runs.
+    code, _, err = run(capsys, main, *WOUND_FIT, "--predictor", "age", "bmi", "diabetes",
+                       "--session-out", tmp_path / "s.json", "--suppress-up-to", "3", "--report-records")
+    assert code == 0, err
+    session = json.loads((tmp_path / "s.json").read_text())
+    assert session["report"] == {"suppress_up_to": 3, "list_records": True}
+    rows, _ = _top_influential_rows()
+    code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--report", tmp_path / "again.html")
+    assert code == 0, err
+    html = (tmp_path / "again.html").read_text(encoding="utf-8")
+    assert _group_rows(html, "diabetes")["yes"] == ["10", "11", "21"]  # pandas crosstab, as above
+    assert f"<tr><td>{rows[0]}</td>" in html and "row of the data file" in html
+    # The rerun's own options win over the session's.
+    code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--report", tmp_path / "over.html",
+                       "--suppress-up-to", "10", "--no-report-records")
+    assert code == 0, err
+    html = (tmp_path / "over.html").read_text(encoding="utf-8")
+    assert _group_rows(html, "diabetes")["yes"][0] == "suppressed" and "row of the data file" not in html
+    # A frozen rerun keeps the limit and says that it lists no records.
+    code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--frozen", "--report", tmp_path / "f.html",
+                       "--report-records")
+    assert code == 0 and "lists no influential records" in err
+    assert "Counts of 1 to 3 people are shown as" in (tmp_path / "f.html").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("argv, fragment", [
+    (["--suppress-up-to", "0"], "from 1 to 1000"),
+    (["--suppress-up-to", "-3"], "from 1 to 1000"),
+    (["--suppress-up-to", "1001"], "from 1 to 1000"),
+    (["--suppress-up-to", "ten"], "not a whole number"),
+    (["--suppress-up-to", "2.5"], "not a whole number"),
+])
+def test_bad_suppression_limit_is_one_line(tmp_path, capsys, argv, fragment):
+    code, err = usage(capsys, main, *WOUND_FIT, "--predictor", "age", "--report", tmp_path / "r.html", *argv)
+    assert code == 2 and err.count("\n") == 1 and fragment in err and "--suppress-up-to" in err
+    assert not (tmp_path / "r.html").exists()
+
+
+def test_report_options_without_a_report_are_refused(fitted, tmp_path, capsys):
+    for extra in (["--suppress-up-to", "5"], ["--report-records"], ["--suppress-up-to", "5", "--report-records"]):
+        code, err = usage(capsys, main, *WOUND_FIT, "--predictor", "age", *extra)
+        assert code == 2 and err.count("\n") == 1 and "only a report" in err and "--session-out" in err, err
+        code, err = usage(capsys, outputs.run_rerun, fitted / "s.json", "--json", tmp_path / "r.json", *extra)
+        assert code == 2 and err.count("\n") == 1 and "add --report PATH" in err, err
+        assert not (tmp_path / "r.json").exists()
+
+
+@pytest.mark.parametrize("report, fragment", [
+    ({"suppress_up_to": -1, "list_records": False}, "outside 1 to 1000"),
+    ({"suppress_up_to": 0, "list_records": False}, "outside 1 to 1000"),
+    ({"suppress_up_to": 10 ** 9, "list_records": False}, "outside 1 to 1000"),
+    ({"suppress_up_to": "3", "list_records": False}, "whole number"),
+    ({"suppress_up_to": 3.0, "list_records": False}, "whole number"),
+    ({"suppress_up_to": True, "list_records": False}, "whole number"),
+    ({"suppress_up_to": 3, "list_records": "yes"}, "true or false"),
+    ({"suppress_up_to": 3}, "'list_records' is missing"),
+    ({"suppress_up_to": 3, "list_records": False, "run": "rm"}, "unknown field"),
+    ("all", "should be an object"),
+])
+def test_hostile_report_options_in_a_session_run_nothing(fitted, tmp_path, capsys, report, fragment):
+    session = json.loads((fitted / "s.json").read_text())
+    session["report"] = report
+    session["data"] = str(READMIT)
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps(session))
+    for extra in ([], ["--report", tmp_path / "r.html"], ["--frozen", "--report", tmp_path / "r.html"]):
+        code, out, err = run(capsys, outputs.run_rerun, bad, *extra)
+        assert code == 2 and out == "" and err.count("\n") == 1 and err.startswith("twofold: The session file")
+        assert fragment in err, err
+    assert not (tmp_path / "r.html").exists()
+
+
+def test_hostile_rows_in_a_session_run_nothing(fitted, tmp_path, capsys):
+    session = json.loads((fitted / "s.json").read_text())
+    session["data"] = str(READMIT)
+    for value, fragment in (("lives_alone", "list of column names"), ([1, 2], "column name"),
+                            ([f"c{i}" for i in range(1000)], "more than the"), (["age", "age"], "twice")):
+        bad = tmp_path / "bad.json"
+        bad.write_text(json.dumps({**session, "rows_complete_in": value}))
+        code, out, err = run(capsys, outputs.run_rerun, bad, "--json", "-")
+        assert code == 2 and out == "" and err.count("\n") == 1 and fragment in err, err

@@ -222,3 +222,23 @@ def test_suffix_and_data_file_are_refused(result):
     with pytest.raises(TwofoldError, match="data file itself"):
         write_report(result, READMIT)
     assert READMIT.read_bytes() == before
+
+
+def test_rows_left_out_for_other_columns_are_explained():
+    # A re-run of a window session keeps the ladder's rows: lives_alone decides the rows of a model without it.
+    res = run_analysis(AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age", "sex"],
+                                    rows_complete_in=["age", "sex", "lives_alone"]))
+    rep = build_report(res)
+    text = rep.text()
+    # Outside reference: pandas counts the rows missing lives_alone (the outcome is never missing here).
+    frame = pd.read_csv(READMIT)
+    missing = int(frame.lives_alone.isna().sum())
+    assert frame.readmitted_30d.notna().all() and missing > 10
+    records = next(b for b in rep.blocks if isinstance(b, Table) and b.headers == ["", "count"])
+    rows = dict((r[0], r[1]) for r in records.rows)
+    assert rows["Rows left out (no outcome, or a predictor missing)"] == f"{missing:,}"
+    assert rows["Rows used by the model"] == f"{len(frame) - missing:,}"
+    by_column = next(b for b in rep.blocks if isinstance(b, Table) and b.headers[0] == "predictor"
+                     and "rows missing it" in b.headers[1])
+    assert ["lives_alone", f"{missing:,}"] in by_column.rows
+    assert f"{missing:,} rows were left out" in text and "outside the rows compared" not in text

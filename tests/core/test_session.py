@@ -184,6 +184,16 @@ HOSTILE = {
     "bad role": (lambda s, t: _edit(s, roles={"age": "python"}), "role of 'age'"),
     "covariance not square": (lambda s, t: json.dumps({**_good(s), "model": {**_good(s)["model"], "covariance": [[1]]}}),
                               "square table"),
+    "negative suppression limit": (lambda s, t: _edit(s, report={"suppress_up_to": -5, "list_records": False}),
+                                   "outside 1 to 1000"),
+    "huge suppression limit": (lambda s, t: _edit(s, report={"suppress_up_to": 10 ** 15, "list_records": False}),
+                               "outside 1 to 1000"),
+    "suppression limit as text": (lambda s, t: _edit(s, report={"suppress_up_to": "10", "list_records": False}),
+                                  "whole number"),
+    "records flag as a number": (lambda s, t: _edit(s, report={"suppress_up_to": 10, "list_records": 1}),
+                                 "true or false"),
+    "report options as a list": (lambda s, t: _edit(s, report=[10, False]), "should be an object"),
+    "rows columns as text": (lambda s, t: _edit(s, rows_complete_in="lives_alone"), "list of column names"),
 }
 
 
@@ -265,3 +275,64 @@ def test_digest_is_reused_only_for_an_unchanged_file(tmp_path, monkeypatch):
     os.utime(data, ns=(st.st_atime_ns, st.st_mtime_ns + 1_000_000))  # a later change time
     assert sess.file_sha256(data, reuse=True) == hashlib.sha256(b"a,b\n1,3\n").hexdigest()
     assert reads  # changed: read again
+
+
+# ---- rows decided by other columns, and the report's options ---------------------------------------------
+
+
+def test_rows_complete_in_other_columns_match_statsmodels():
+    # Outside reference: statsmodels Logit on the rows that pandas finds complete in age, lives_alone and the outcome.
+    spec = AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age"],
+                        rows_complete_in=["age", "lives_alone"])
+    res = run_analysis(spec)
+    frame = pd.read_csv(READMIT)
+    rows = frame[["age", "lives_alone", "readmitted_30d"]].dropna()
+    ref = sm.Logit(rows.readmitted_30d, sm.add_constant(rows[["age"]].astype(float))).fit(disp=0)
+    rec = res.record
+    assert rec["rows_used"] == len(rows) < len(frame)
+    assert rec["intercept"]["estimate"] == pytest.approx(ref.params["const"], rel=1e-7)
+    assert rec["terms"][0]["estimate"] == pytest.approx(ref.params["age"], rel=1e-7)
+    assert rec["terms"][0]["std_error"] == pytest.approx(ref.bse["age"], rel=1e-6)
+    # The rows left out are explained: pandas counts the missing lives_alone values among rows with an outcome.
+    missing = int(frame.loc[frame.readmitted_30d.notna(), "lives_alone"].isna().sum())
+    assert rec["rows_read"] - rec["rows_used"] == missing + rec["rows_missing_outcome"]
+    assert rec["missing_by_column"] == {"age": 0, "lives_alone": missing}
+    (note,) = [w for w in rec["warnings"] if w["code"] == "rows_dropped"]
+    assert f"{missing} missing 'lives_alone'" in note["message"]
+    # Without the field, the rows complete for the model alone (as before).
+    alone = run_analysis(AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age"]))
+    assert alone.record["rows_used"] == int(frame.readmitted_30d.notna().sum())
+    # A nested test uses the same rows for both models.
+    both = run_analysis(AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age", "sex"],
+                                     smaller=["age"], rows_complete_in=["lives_alone"]))
+    assert both.record["nested"]["rows"] == len(rows) == both.record["rows_used"]
+    small = sm.Logit(rows.readmitted_30d, sm.add_constant(rows[["age"]].astype(float))).fit(disp=0)
+    large = sm.Logit(rows.readmitted_30d, sm.add_constant(pd.DataFrame(
+        {"age": rows.age.astype(float), "M": (frame.loc[rows.index, "sex"] == "M").astype(float)}))).fit(disp=0)
+    assert both.record["nested"]["g"] == pytest.approx(2 * (large.llf - small.llf), rel=1e-6)
+
+
+def test_round_trip_keeps_rows_and_report_options(tmp_path):
+    spec = AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age", "sex"],
+                        rows_complete_in=["age", "sex", "comorbidity_score"])
+    res = run_analysis(spec)
+    path = ses.save_session(ses.session_from_result(res, report={"suppress_up_to": 4, "list_records": True}),
+                            tmp_path / "s.json")
+    loaded = ses.load_session(path)
+    assert loaded["report"] == {"suppress_up_to": 4, "list_records": True}
+    assert loaded["rows_complete_in"] == ["age", "sex", "comorbidity_score"]
+    assert "comorbidity_score" in ses.session_columns(loaded)  # so a later extract without it is noticed
+    again = run_analysis(ses.spec_from_session(loaded))
+    assert again.record == res.record
+    assert again.record["rows_used"] == len(pd.read_csv(READMIT)[["age", "sex", "comorbidity_score"]].dropna())
+
+
+def test_a_session_saved_before_the_new_fields_still_loads(saved, result, tmp_path):
+    old = _good(saved)
+    for key in ("rows_complete_in", "report"):
+        old.pop(key)
+    path = tmp_path / "old.json"
+    path.write_text(json.dumps(old), encoding="utf-8")
+    loaded = ses.load_session(path)
+    assert loaded["report"] == {"suppress_up_to": 10, "list_records": False} and loaded["rows_complete_in"] == []
+    assert run_analysis(ses.spec_from_session(loaded)).record == result.record

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from gui_helpers import READMISSION, WAIT_MS, choose_outcome, idle, load, new_window, tick
+from gui_helpers import READMISSION, WAIT_MS, WOUND, choose_outcome, idle, load, new_window, tick
 
 OUTCOME = "readmitted_30d"
 MODEL = ["age", "sex", "discharge_destination", "lives_alone"]
@@ -438,3 +438,145 @@ def test_a_running_twofold_is_not_offered_for_restore(qtbot, window, second, mon
     qtbot.waitUntil(lambda: "autosaved" in done.tags(), timeout=WAIT_MS)
     _never_asked(monkeypatch)
     assert second.sessions.offer_restore() is None
+
+
+# ---- the ladder's rows in a re-run, and the report's options -------------------------------------------
+
+
+def _records_table(html: str) -> list:
+    """The rows of the report's table of where the records went, as shown."""
+    import re
+
+    table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "Rows read from the file" in t)
+    return [re.sub(r"<[^>]+>", "|", r) for r in re.findall(r"<tr>(.*?)</tr>", table, re.S)]
+
+
+def test_rerun_of_a_window_session_gives_the_fit_on_screen(qtbot, window, data_copy, tmp_path, capsys):
+    """A model shown on the ladder's common rows is re-run by ``twofold rerun`` on those same rows."""
+    import statsmodels.api as sm
+
+    from twofold import outputs
+
+    # lives_alone (missing in some rows) was tried, then unticked: age alone is shown on the ladder's rows.
+    _fit_in(qtbot, window, data_copy, [["age", "lives_alone"], ["age"]])
+    view = window.session.last_results
+    frame = pd.read_csv(READMISSION)
+    rows = frame[["age", "lives_alone", OUTCOME]].dropna()
+    # Outside reference: statsmodels Logit on the rows pandas finds complete in age and lives_alone.
+    ref = sm.Logit(rows[OUTCOME].astype(float), sm.add_constant(rows[["age"]].astype(float))).fit(disp=0)
+    assert view.rows_used == len(rows) < len(frame)
+    done = Finished(window)
+    window.sessions.save_to(tmp_path / "analysis.json")
+    window.sessions.report_to(tmp_path / "window.html")
+    wait_for(qtbot, window, done, "report")
+    assert "saved" in done.tags()
+    saved = json.loads((tmp_path / "analysis.json").read_text(encoding="utf-8"))
+    assert saved["predictors"] == ["age"] and saved["rows_complete_in"] == ["age", "lives_alone"]
+
+    code = outputs.run_rerun([str(tmp_path / "analysis.json"), "--json", "-", "--report", str(tmp_path / "cli.html")])
+    out = capsys.readouterr()
+    assert code == 0, out.err
+    rec = json.loads(out.out)
+    shown = {line.name: line.values for line in view.lines if line.kind in ("term", "intercept")}
+    assert rec["rows_used"] == view.rows_used == len(rows)
+    assert rec["log_likelihood"] == pytest.approx(view.log_likelihood, rel=1e-9)
+    assert rec["log_likelihood"] == pytest.approx(ref.llf, rel=1e-9)
+    age = rec["terms"][0]
+    for got, name, key in ((age, "age", "age"), (rec["intercept"], "intercept", "const")):
+        assert got["estimate"] == pytest.approx(shown[name]["estimate"], rel=1e-7)
+        assert got["std_error"] == pytest.approx(shown[name]["std_error"], rel=1e-6)
+        assert got["estimate"] == pytest.approx(ref.params[key], rel=1e-7)
+        assert got["std_error"] == pytest.approx(ref.bse[key], rel=1e-6)
+    # Where the rows went, as the window's report and the re-run's report say it (pandas counts the missing).
+    assert rec["missing_by_column"] == {"age": 0, "lives_alone": int(frame.lives_alone.isna().sum())}
+    assert _records_table((tmp_path / "window.html").read_text(encoding="utf-8")) == \
+        _records_table((tmp_path / "cli.html").read_text(encoding="utf-8"))
+    # A session without the field (as saved before it) refits on the rows complete for age alone.
+    saved.pop("rows_complete_in")
+    (tmp_path / "old.json").write_text(json.dumps(saved), encoding="utf-8")
+    assert outputs.run_rerun([str(tmp_path / "old.json"), "--json", "-"]) == 0
+    assert json.loads(capsys.readouterr().out)["rows_used"] == int(frame[["age", OUTCOME]].notna().all(axis=1).sum())
+
+
+WOUND_MODEL = ["age", "bmi", "diabetes"]
+
+
+def _wound_top_rows(k=10):
+    """Outside reference: statsmodels GLM (binomial) Cook's distance on the wound sample's design, built with pandas."""
+    import statsmodels.api as sm
+
+    frame = pd.read_csv(WOUND)
+    X = sm.add_constant(pd.DataFrame({"age": frame.age, "bmi": frame.bmi,
+                                      "diabetes": (frame.diabetes == "yes").astype(float)}))
+    glm = sm.GLM((frame.infection == "yes").astype(float), X, family=sm.families.Binomial()).fit()
+    cooks = glm.get_influence().cooks_distance[0]
+    order = np.argsort(-cooks, kind="stable")
+    assert cooks[order[k - 1]] > cooks[order[k]]  # no tie at the edge
+    return [int(i) + 1 for i in order[:k]]
+
+
+def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tmp_path, monkeypatch):
+    import re
+
+    import twofold.gui.sessions_ui as sessions_ui
+    from twofold.core.session import load_session
+
+    # The dialog: the limit and the tick start from what it is given, and it says why row numbers matter.
+    dialog = sessions_ui.ReportOptionsDialog(window, 10, False)
+    qtbot.addWidget(dialog)
+    assert dialog.limit.value() == 10 and not dialog.records.isChecked()
+    assert dialog.limit.minimum() == 1
+    words = " ".join(label.text() for label in dialog.findChildren(sessions_ui.QLabel))
+    assert "point back to patients" in words
+    dialog.limit.setValue(3)
+    dialog.records.setChecked(True)
+    assert dialog.values() == {"suppress_up_to": 3, "list_records": True}
+
+    assert window.sessions.enable_autosave()
+    load(qtbot, window, WOUND)
+    choose_outcome(qtbot, window, "infection", "yes")
+    tick(qtbot, window, WOUND_MODEL)
+    qtbot.waitUntil(lambda: idle(window) and window.session.last_assessment is not None, timeout=WAIT_MS)
+    asked, files = [], []
+    answer = {"suppress_up_to": 3, "list_records": True}
+    monkeypatch.setattr(sessions_ui, "choose_report_options", lambda parent, current: asked.append(dict(current))
+                        or answer)
+    monkeypatch.setattr(sessions_ui.QFileDialog, "getSaveFileName",
+                        staticmethod(lambda *a: files.append(a) or (str(tmp_path / "report"), "Web page (*.html)")))
+    done = Finished(window)
+    window.sessions.report_dialog()
+    wait_for(qtbot, window, done, "report")
+    assert asked == [{"suppress_up_to": 10, "list_records": False}]  # the defaults, before any choice
+    html = (tmp_path / "report.html").read_text(encoding="utf-8")
+    # Outside reference: pandas crosstab of diabetes by infection; 10 of the 21 with diabetes were infected,
+    # a count the default limit hides and a limit of 3 shows.
+    tab = pd.crosstab(pd.read_csv(WOUND).diabetes, pd.read_csv(WOUND).infection)
+    assert int(tab.loc["yes", "yes"]) == 10
+    assert (f'<td>yes</td><td class="r">{tab.loc["yes", "yes"]}</td><td class="r">{tab.loc["yes", "no"]}</td>'
+            in html)
+    assert "Counts of 1 to 3 people are shown as" in html
+    table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "row of the data file" in t)
+    assert [int(r) for r in re.findall(r"<tr><td>(\d+)</td>", table)] == _wound_top_rows()
+    # Kept with the analysis: in the autosave at once, and in a saved session.
+    autosaved = home / "autosave" / f"session-{os.getpid()}.json"
+    qtbot.waitUntil(lambda: idle(window) and load_session(autosaved)["report"] == answer, timeout=WAIT_MS)
+    window.sessions.save_to(tmp_path / "wound.json")
+    wait_for(qtbot, window, done, "saved")
+    assert json.loads((tmp_path / "wound.json").read_text(encoding="utf-8"))["report"] == answer
+
+    # Another window that opens the session starts the dialog from the saved values; cancelling writes nothing.
+    again = Finished(second)
+    second.sessions.open_from(tmp_path / "wound.json")
+    wait_for(qtbot, second, again, "restored")
+    assert second.sessions.report_options == answer
+    asked.clear()
+    files.clear()
+    monkeypatch.setattr(sessions_ui, "choose_report_options", lambda parent, current: asked.append(dict(current)))
+    second.sessions.report_dialog()
+    assert asked == [answer] and files == []
+    # Without options the report keeps the default limit and lists no records.
+    window.sessions.report_options = {"suppress_up_to": 10, "list_records": False}
+    window.sessions.report_to(tmp_path / "plain.html")
+    wait_for(qtbot, window, done, "report", count=2)
+    plain = (tmp_path / "plain.html").read_text(encoding="utf-8")
+    assert '<td>yes</td><td class="r">suppressed</td>' in plain and "row of the data file" not in plain

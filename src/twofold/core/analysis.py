@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-from twofold.core.errors import ColumnError
+from twofold.core.errors import ColumnError, ModelError
 
 
 @dataclass
@@ -43,6 +43,12 @@ class AnalysisSpec:
         Bootstrap repetitions for optimism correction (None: none).
     seed : int, optional
         Seed of the bootstrap.
+    rows_complete_in : list of str
+        Columns whose completeness decides the rows, besides the outcome and
+        the model's own predictors: a row missing any of them is left out too
+        (the window saves the columns of every model of its ladder here, so
+        a re-run fits on the ladder's common rows).  Empty: the rows complete
+        for the model alone.
     """
 
     data: str
@@ -60,6 +66,7 @@ class AnalysisSpec:
     interactions: list = field(default_factory=list)
     validate: int | None = None
     seed: int | None = None
+    rows_complete_in: list = field(default_factory=list)
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -162,6 +169,67 @@ def parse_references(items) -> dict:
     return out
 
 
+def columns_of(study, names) -> list[str]:
+    """The columns of the file that ``names`` stand for, each once, in order (``"A:B"`` stands for A and B).
+
+    Raises
+    ------
+    ColumnError
+        For a name that is not a column of the file.
+    """
+    from twofold.core.terms import split_interaction
+
+    present = study.columns
+    out = []
+    for name in names:
+        name = study.column(str(name))
+        for column in ([name] if name in present else split_interaction(name)):
+            if column not in out:
+                out.append(column)
+    return out
+
+
+def extra_row_columns(study, predictors, columns) -> list[str]:
+    """The columns among ``columns`` that decide rows beyond the outcome and the model's ``predictors``."""
+    own = set(columns_of(study, predictors))
+    return [c for c in columns_of(study, columns) if c not in own and c != study.outcome]
+
+
+def count_rows_left_out(study, fit, columns) -> None:
+    """Make the row counts of ``fit`` cover the other ``columns`` that decided its rows (changes ``fit``).
+
+    :meth:`~twofold.core.study.Study.fit` counts the missing values of the
+    model's own predictors only; when other columns also decided the rows
+    (the common rows of a ladder), the rows they cost would otherwise go
+    unexplained.  Each such column that misses values among the rows with an
+    outcome joins ``missing_by_column``, and the ``rows_dropped`` notice is
+    written again to name it.
+    """
+    from dataclasses import replace
+
+    from twofold.core.errors import Notice
+
+    own = [p for p in fit.design.predictors if ":" not in p]
+    extra = [c for c in columns if c not in own]
+    account = study.account(own + extra, fit.design.rows)
+    missing = {k: v for k, v in account.missing_by_column.items() if k in own or v}
+    account = replace(account, missing_by_column=missing)
+    fit.account = account
+    lost = account.rows_read - account.rows_used
+    parts = [f"{account.missing_outcome} with no outcome"] if account.missing_outcome else []
+    parts += [f"{count} missing '{name}'" for name, count in missing.items() if count]
+    notice = Notice("rows_dropped", f"{lost:,} of {account.rows_read:,} rows were left out "
+                    f"({'; '.join(parts) or 'outside the rows compared'}); results describe the complete rows only.",
+                    subjects=tuple(n for n, c in missing.items() if c))
+    notices = list(fit.notices)
+    at = next((i for i, n in enumerate(notices) if n.code == "rows_dropped"), None)
+    if at is not None:
+        notices[at] = notice
+    elif lost:
+        notices.append(notice)
+    fit.notices = notices
+
+
 def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> AnalysisResult:
     """Fit, test and assess the model a spec describes.
 
@@ -171,6 +239,7 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         ``record`` follows the JSON contract of ``twofold fit``.
     """
     from twofold.core.assessment import assess
+    from twofold.core.fit import nested_test
     from twofold.core.summary import fit_record
 
     study, event = prepare_study(spec, study, guess_event)
@@ -181,11 +250,27 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
             predictors.append(term)
     nested = smaller_fit = None
     smaller = None
+    extra = extra_row_columns(study, predictors, spec.rows_complete_in)
+    rows = study.complete_rows(predictors + extra) if extra else None
+    if rows is not None and not len(rows):
+        raise ModelError(f"No rows of {study.source} are complete for the model's predictors and "
+                         f"{', '.join(repr(c) for c in extra)}, whose completeness decides the rows of this analysis; "
+                         "open the analysis in the window and start a ladder without them.")
     if spec.smaller is not None:
         smaller = [study.column(p) for p in spec.smaller]
-        smaller_fit, fit, nested = study.compare(smaller, predictors, firth=spec.firth)
+        if rows is None:
+            smaller_fit, fit, nested = study.compare(smaller, predictors, firth=spec.firth)
+        else:
+            if not set(smaller) <= set(predictors):
+                study.compare(smaller, predictors)  # refuses a smaller model that is not nested, in its own words
+            # The same two fits as Study.compare, on the rows the spec names.
+            smaller_fit = study.fit(smaller, rows=rows, firth=spec.firth)
+            fit = study.fit(predictors, rows=rows, start=smaller_fit, firth=spec.firth)
+            nested = nested_test(smaller_fit, fit)
     else:
-        fit = study.fit(predictors, firth=spec.firth)
+        fit = study.fit(predictors, rows=rows, firth=spec.firth)
+    if extra:
+        count_rows_left_out(study, fit, extra)
     for n in study.table.notices:
         fit.notices.insert(0, n)
     assessment = assess(study, fit, threshold=spec.threshold)

@@ -532,8 +532,10 @@ def _influence_section(rep: Report, assessment, record: dict, threshold: int, in
         if top:
             rep.add(Table(["row of the data file", "Cook's distance", "leverage"],
                           [[str(r["row"]), fmt_num(r["cooks_distance"], 4), fmt_num(r["leverage"], 4)] for r in top],
-                          "lrr", "The ten records with the largest Cook's distance, listed because the report "
-                                 "was asked to include record numbers."))
+                          "lrr", "The ten records with the largest Cook's distance, by their row among the "
+                                 "records of the data file (the first record is row 1). They are listed because "
+                                 "the person who wrote this report asked for record numbers; row numbers can "
+                                 "point back to patients, so share it only as the local rules allow."))
 
 
 def _clean_notices(notices: list[dict], record: dict, threshold: int) -> list[str]:

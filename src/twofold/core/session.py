@@ -22,6 +22,14 @@ other format that can run code when read).  Its fields:
 ``splines``          knots (3, 4 or 5) per predictor modelled by a spline
 ``interactions``     two-way interactions, each ``"A:B"``
 ``validate``, ``seed``   bootstrap repetitions (or null) and their seed
+``rows_complete_in`` columns whose completeness decides the rows besides the
+                     outcome and the predictors (the window saves every
+                     column of its ladder, whose models share those rows);
+                     empty: the rows complete for the chosen model alone
+``report``           the report's options: ``suppress_up_to`` (counts of 1
+                     up to this many people are hidden, 1 to 1000, default
+                     10) and ``list_records`` (true: list the most
+                     influential records by row number)
 ``ladder``           the models tried, each a list of predictors
 ``chosen``           index (from 0) of the chosen model in ``ladder``
 ``model``            the chosen model as numbers: ``outcome``, ``event``,
@@ -32,7 +40,9 @@ other format that can run code when read).  Its fields:
 
 The keys ``data`` ... ``seed`` are those of
 :meth:`~twofold.core.analysis.AnalysisSpec.as_dict`, so a session is a
-superset of the spec it was made from.
+superset of the spec it was made from.  Fields added after version 1 was
+first written (``rows_complete_in``, ``report``) take their defaults when a
+file lacks them, which is what the files saved before them meant.
 
 :func:`load_session` refuses anything else in one sentence: other types,
 unknown keys, numbers too large or not finite, strings and lists beyond
@@ -54,6 +64,7 @@ from pathlib import Path
 import numpy as np
 
 from twofold.core.errors import ColumnError, DataFileError, Notice
+from twofold.core.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
 
 FORMAT = "twofold-session"
 SCHEMA_VERSION = 1
@@ -101,9 +112,12 @@ def _spec_defaults() -> dict:
 SPEC_KEYS = _spec_keys()
 #: Spec fields this module checks one by one; any others (added to AnalysisSpec later) get a generic check.
 CHECKED_SPEC_KEYS = ("data", "outcome", "predictors", "event", "smaller", "references", "roles", "sheet", "firth",
-                     "profile_ci", "threshold", "splines", "interactions", "validate", "seed")
+                     "profile_ci", "threshold", "splines", "interactions", "validate", "seed", "rows_complete_in")
 KEYS = ("format", "schema_version", "saved_by", "saved_at",
-        *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model")
+        *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model",
+        "report")
+#: The report's options and what a session without them means.
+REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False}
 TERM_KEYS = ("column", "kind", "levels", "reference", "range", "knots", "of")
 ROLE_VALUES = ("numeric", "binary", "categorical", "identifier", "date", "excluded")
 
@@ -147,7 +161,7 @@ def _rungs_of(ladder) -> list[list[str]]:
     return [list(getattr(r, "predictors", r)) for r in rungs]
 
 
-def session_from_result(result, ladder=None) -> dict:
+def session_from_result(result, ladder=None, report=None) -> dict:
     """The session of an analysis (an :class:`~twofold.core.analysis.AnalysisResult`).
 
     Parameters
@@ -156,6 +170,9 @@ def session_from_result(result, ladder=None) -> dict:
     ladder : Ladder or list of lists of str, optional
         The models tried; default: the smaller model (when there is one) and
         the chosen one.  The chosen model is added if the ladder lacks it.
+    report : dict, optional
+        The report's options, ``suppress_up_to`` and ``list_records``
+        (default: :data:`REPORT_DEFAULTS`).
 
     Returns
     -------
@@ -210,11 +227,13 @@ def session_from_result(result, ladder=None) -> dict:
         "interactions": [study.column(t) for t in spec.interactions],
         "validate": None if spec.validate is None else int(spec.validate),
         "seed": None if spec.seed is None else int(spec.seed),
+        "rows_complete_in": [str(c) for c in spec.rows_complete_in],
         "data_sha256": file_sha256(data, reuse=True),
         "data_rows": int(study.n_rows),
         "ladder": rungs,
         "chosen": int(chosen),
         "model": model.as_dict(),
+        "report": {**REPORT_DEFAULTS, **(report or {})},
     }
     for key, value in spec.as_dict().items():
         # Fields added to AnalysisSpec after this module was written are carried as they are.
@@ -251,6 +270,7 @@ def spec_from_session(session: dict, data=None):
         interactions=list(session["interactions"]),
         validate=session["validate"],
         seed=session["seed"],
+        rows_complete_in=list(session["rows_complete_in"]),
         **{k: session[k] for k in SPEC_KEYS if k not in CHECKED_SPEC_KEYS and k in session},
     )
 
@@ -290,6 +310,7 @@ def session_columns(session: dict) -> list[str]:
     names.extend(session["roles"])
     names.extend(t["column"] for t in session["model"]["terms"])
     names.extend(session["splines"])
+    names.extend(session["rows_complete_in"])
     out = []
     for name in names:
         # An interaction names two columns.
@@ -632,6 +653,7 @@ def validate_session(session, path=None) -> dict:
     for key, default in _spec_defaults().items():
         # A spec option added after a session was written takes its default (no effect).
         session.setdefault(key, default)
+    session.setdefault("report", dict(REPORT_DEFAULTS))  # saved before reports had options: the defaults
     if unknown:
         c.fail(f"it has the unknown field '{str(unknown[0])[:40]}'")
     missing = [k for k in KEYS if k not in session]
@@ -693,6 +715,16 @@ def validate_session(session, path=None) -> dict:
         c.integer(session["validate"], "validate", 1, 100_000)
     if session["seed"] is not None:
         c.integer(session["seed"], "seed", -(2 ** 63), 2 ** 63 - 1)
+    c.names(session["rows_complete_in"], "rows_complete_in", cap=MAX_PREDICTORS)
+    report = c.obj(session["report"], "report")
+    odd = [k for k in report if k not in REPORT_DEFAULTS]
+    if odd:
+        c.fail(f"the report options have the unknown field '{str(odd[0])[:40]}'")
+    absent = [k for k in REPORT_DEFAULTS if k not in report]
+    if absent:
+        c.fail(f"the report option '{absent[0]}' is missing")
+    c.integer(report["suppress_up_to"], "suppress_up_to", 1, MAX_THRESHOLD)
+    c.boolean(report["list_records"], "list_records")
     for key in SPEC_KEYS:
         if key not in CHECKED_SPEC_KEYS:
             _plain_json(c, session[key], key)

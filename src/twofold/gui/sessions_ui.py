@@ -16,7 +16,8 @@ from typing import NamedTuple
 
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import QFileDialog, QMessageBox
+from PySide6.QtWidgets import (QCheckBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QMessageBox,
+                               QSpinBox, QVBoxLayout)
 
 from twofold.gui.views import Failure
 
@@ -33,6 +34,51 @@ def choose_data_file(parent, start: str) -> str:
     path, _ = QFileDialog.getOpenFileName(parent, "Where is the data file now?", start,
                                           "Data files (*.csv *.tsv *.tab *.txt *.xlsx *.xlsm);;All files (*)")
     return path
+
+
+class ReportOptionsDialog(QDialog):
+    """Asks how the report treats small counts and record numbers; it only asks, the core does the rest."""
+
+    def __init__(self, parent, suppress_up_to: int, list_records: bool):
+        from twofold.core.privacy import MAX_THRESHOLD
+
+        super().__init__(parent)
+        self.setWindowTitle("Twofold: report options")
+        layout = QVBoxLayout(self)
+        form = QFormLayout()
+        self.limit = QSpinBox(self)
+        self.limit.setRange(1, MAX_THRESHOLD)
+        self.limit.setValue(int(suppress_up_to))
+        self.limit.setSuffix(" people")
+        self.limit.setToolTip("Counts of 1 up to this many people are shown as 'suppressed' in the report")
+        form.addRow("Hide counts of 1 up to", self.limit)
+        layout.addLayout(form)
+        layout.addWidget(self._note("Data owners set different limits; 10 is common practice. Use the limit "
+                                    "that applies to this data."))
+        self.records = QCheckBox("List the most influential records by row number", self)
+        self.records.setChecked(bool(list_records))
+        layout.addWidget(self.records)
+        layout.addWidget(self._note("Row numbers can point back to patients in the data file, so leave this off "
+                                    "unless the report stays with people allowed to see the records."))
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel,
+                                   parent=self)
+        buttons.accepted.connect(self.accept)
+        buttons.rejected.connect(self.reject)
+        layout.addWidget(buttons)
+
+    def _note(self, text: str) -> QLabel:
+        label = QLabel(text, self)
+        label.setWordWrap(True)
+        return label
+
+    def values(self) -> dict:
+        return {"suppress_up_to": int(self.limit.value()), "list_records": bool(self.records.isChecked())}
+
+
+def choose_report_options(parent, current: dict) -> dict | None:
+    """Ask for the report's options, starting from ``current``; None when cancelled (tests replace this function)."""
+    dialog = ReportOptionsDialog(parent, current["suppress_up_to"], current["list_records"])
+    return dialog.values() if dialog.exec() == QDialog.DialogCode.Accepted else None
 
 
 class _Relay(QObject):
@@ -65,20 +111,24 @@ def _light_result(s, threshold=None):
     if study is None or study.outcome is None or ladder is None or ladder.current is None or not ladder.rungs:
         raise ModelError("There is no model to save yet; open a data file, choose the outcome and tick "
                          "predictors first.")
+    from twofold.core.analysis import columns_of
+
     rung = ladder.rungs[ladder.current]
     fit = s._shown_fit() or rung.fit
     penalised = bool(getattr(s._choice, "penalised", False))
+    # The ladder fits every model on the rows complete for all its columns: say which, so a re-run uses them too.
     spec = AnalysisSpec(data=str(study.table.path), outcome=study.outcome, predictors=list(rung.predictors),
                         event=study.event, roles=_changed_roles(study), sheet=study.table.sheet,
-                        firth=penalised, threshold=threshold, splines=dict(study.splines))
+                        firth=penalised, threshold=threshold, splines=dict(study.splines),
+                        rows_complete_in=columns_of(study, ladder.used_predictors))
     return AnalysisResult(spec, study, fit, None, None, None, {})
 
 
-def current_session(s, threshold=None) -> dict:
-    """The session dict of the model shown, with the whole ladder (worker thread)."""
+def current_session(s, threshold=None, report=None) -> dict:
+    """The session dict of the model shown, with the whole ladder and the report's options (worker thread)."""
     from twofold.core.session import session_from_result
 
-    return session_from_result(_light_result(s, threshold), ladder=s._ladder)
+    return session_from_result(_light_result(s, threshold), ladder=s._ladder, report=report)
 
 
 def shown_result(s, threshold=None):
@@ -92,7 +142,7 @@ def shown_result(s, threshold=None):
     """
     import copy
 
-    from twofold.core.analysis import AnalysisResult
+    from twofold.core.analysis import AnalysisResult, count_rows_left_out, extra_row_columns
     from twofold.core.assessment import assess
     from twofold.core.modelling import interaction_tests, nonlinearity_tests
     from twofold.core.summary import clean_number, fit_record
@@ -109,6 +159,10 @@ def shown_result(s, threshold=None):
     # A copy, so the reading notices join the fit's warnings without changing the fit on screen.
     fit = copy.copy(shown)
     fit.notices = list(study.table.notices) + list(shown.notices)
+    # The rows the other models' columns cost are counted too, as a re-run of the saved session counts them.
+    extra = extra_row_columns(study, fit.design.predictors, spec.rows_complete_in)
+    if extra:
+        count_rows_left_out(study, fit, extra)
     record = fit_record(fit, study.outcome, study.event, assessment=assessment)
     if any(p in study.splines for p in fit.design.predictors):
         record["nonlinearity"] = [
@@ -158,6 +212,11 @@ class SessionActions(QObject):
         self.restore_offered: Path | None = None
         self.autosave_enabled = False
         self.last_autosave: str | None = None
+        from twofold.core.session import REPORT_DEFAULTS
+
+        #: The report's options (small-count limit, records by row number): the defaults, a restored
+        #: session's, or the user's last choice; saved with the session.
+        self.report_options: dict = dict(REPORT_DEFAULTS)
         self._make_actions()
         self.session.resultsChanged.connect(self._on_results)
 
@@ -258,12 +317,12 @@ class SessionActions(QObject):
         """Save the model shown, its ladder and options as a session file (on the worker)."""
         if self._refuses(path):
             return None
-        s, threshold = self.session, self.session.threshold
+        s, threshold, report = self.session, self.session.threshold, dict(self.report_options)
 
         def job():
             from twofold.core.session import save_session
 
-            return str(save_session(current_session(s, threshold), path))
+            return str(save_session(current_session(s, threshold, report), path))
 
         return self._run("saved", job)
 
@@ -368,6 +427,7 @@ class SessionActions(QObject):
 
         if session.get("threshold") is not None:
             self._show_threshold(float(session["threshold"]))
+        self.report_options = {k: session["report"][k] for k in self.report_options}
         # Kind "load": the panes treat it as opening a file (progress, stop button, a failure re-enables them).
         return self._run("restored", job, kind="load", facets=("study", "columns", "outcome", "results", "comparison"),
                          clears_queue=True)
@@ -384,25 +444,45 @@ class SessionActions(QObject):
 
     # ---- reports and tables ----------------------------------------------------
     def report_dialog(self) -> None:
+        options = choose_report_options(self.window, self.report_options)
+        if options is None:
+            return
         path, chosen = QFileDialog.getSaveFileName(self.window, "Write a report", self._suggest("-report.html"),
                                                    "Web page (*.html);;PDF document (*.pdf)")
         if path:
             if Path(path).suffix.lower() not in (".html", ".htm", ".pdf"):
                 path += ".pdf" if "pdf" in chosen.lower() else ".html"
-            self.report_to(path)
+            self.report_to(path, **options)
 
-    def report_to(self, path) -> int | None:
-        """Write the report of the model shown: aggregate figures only, small counts suppressed (on the worker)."""
+    def report_to(self, path, suppress_up_to: int | None = None, list_records: bool | None = None) -> int | None:
+        """Write the report of the model shown: aggregate figures only, small counts suppressed (on the worker).
+
+        ``suppress_up_to`` and ``list_records`` (None: as before) become the
+        report options kept with the session, and autosaved at once.
+        """
         if self._refuses(path):
             return None
-        s, threshold = self.session, self.session.threshold
+        from twofold.core.privacy import MAX_THRESHOLD
+
+        if suppress_up_to is not None and not 1 <= int(suppress_up_to) <= MAX_THRESHOLD:
+            self._fail(f"Counts of 1 up to {suppress_up_to} people cannot be the limit of the report; "
+                       f"choose a whole number from 1 to {MAX_THRESHOLD}.")
+            return None
+        chosen = {"suppress_up_to": suppress_up_to, "list_records": list_records}
+        changed = {k: v for k, v in chosen.items() if v is not None and v != self.report_options[k]}
+        self.report_options.update(changed)
+        s, threshold, options = self.session, self.session.threshold, dict(self.report_options)
 
         def job():
             from twofold.core.report import write_report
 
-            return str(write_report(shown_result(s, threshold), path, ladder=s._ladder, include_records=False))
+            return str(write_report(shown_result(s, threshold), path, ladder=s._ladder,
+                                    suppress_below=options["suppress_up_to"], include_records=options["list_records"]))
 
-        return self._run("report", job)
+        job_id = self._run("report", job)
+        if changed and self.session.last_results is not None:
+            self._on_results(self.session.last_results)  # the autosave keeps the new options
+        return job_id
 
     def export_dialog(self) -> None:
         path, chosen = QFileDialog.getSaveFileName(self.window, "Export the tables", self._suggest("-tables.xlsx"),
@@ -455,14 +535,14 @@ class SessionActions(QObject):
     def _on_results(self, view) -> None:
         if view is None or not self.autosave_enabled:
             return
-        s, threshold = self.session, self.session.threshold
+        s, threshold, report = self.session, self.session.threshold, dict(self.report_options)
 
         def job():
             from twofold.core.errors import TwofoldError
             from twofold.core.session import autosave
 
             try:
-                return str(autosave(current_session(s, threshold)))
+                return str(autosave(current_session(s, threshold, report)))
             except (TwofoldError, OSError):
                 return None  # an autosave that cannot be made must not interrupt the work
 
