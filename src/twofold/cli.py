@@ -28,6 +28,8 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _fit_parser() -> argparse.ArgumentParser:
+    from twofold.core.analysis import role_names  # light: no numpy or pandas at import
+
     p = _Parser(prog="twofold fit", description="Fit a logistic model to a data file and report its tests.")
     p.add_argument("data", metavar="DATA", help="CSV, TSV or XLSX file (read only, never written)")
     p.add_argument("--outcome", required=True, metavar="COLUMN", help="the yes/no outcome column")
@@ -40,7 +42,7 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="reference level of a categorical predictor")
     p.add_argument("--role", action="append", default=[], metavar="COLUMN=ROLE",
                    help="treat a column differently from what Twofold inferred (repeat for more); ROLE is one "
-                        f"of {', '.join(_role_names())}, e.g. --role ward_code=categorical")
+                        f"of {', '.join(role_names())}, e.g. --role ward_code=categorical")
     p.add_argument("--sheet", metavar="NAME", help="the sheet of a workbook (default: the first)")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
     p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
@@ -99,12 +101,6 @@ def suppress_limit(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text} is out of range; give a whole number from 1 to {MAX_THRESHOLD}, "
                                          "e.g. 10")
     return value
-
-
-def _role_names() -> list[str]:
-    from twofold.core.roles import Role
-
-    return [r.value for r in Role]
 
 
 def _repetitions(text: str) -> int:

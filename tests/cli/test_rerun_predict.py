@@ -15,6 +15,7 @@ import pytest
 from scipy.special import expit
 from sklearn.metrics import roc_auc_score
 
+from references import wound_top_influential_rows
 from twofold import outputs
 from twofold.cli import main
 
@@ -331,20 +332,6 @@ def test_suppress_up_to_sets_the_limit_of_the_report(tmp_path, capsys):
     assert "Counts of 1 to 10 people are shown as" in reports[10]
 
 
-def _top_influential_rows(k=10):
-    """Outside reference: statsmodels GLM (binomial) Cook's distance on the same design, built with pandas."""
-    import statsmodels.api as sm
-
-    frame = pd.read_csv(WOUND)
-    X = sm.add_constant(pd.DataFrame({"age": frame.age, "bmi": frame.bmi,
-                                      "diabetes": (frame.diabetes == "yes").astype(float)}))
-    glm = sm.GLM((frame.infection == "yes").astype(float), X, family=sm.families.Binomial()).fit()
-    cooks = glm.get_influence().cooks_distance[0]
-    order = np.argsort(-cooks, kind="stable")
-    assert cooks[order[k - 1]] > cooks[order[k]]  # no tie at the edge of the top k
-    return [int(i) + 1 for i in order[:k]], cooks[order[:k]]  # row 1 is the first record of the file
-
-
 def test_report_records_lists_the_most_influential_rows(tmp_path, capsys):
     import re
 
@@ -353,7 +340,7 @@ def test_report_records_lists_the_most_influential_rows(tmp_path, capsys):
     assert code == 0, err
     code, _, err = run(capsys, main, *WOUND_FIT, *predictors, "--report", tmp_path / "without.html")
     assert code == 0, err
-    rows, cooks = _top_influential_rows()
+    rows, cooks = wound_top_influential_rows()
     html = (tmp_path / "with.html").read_text(encoding="utf-8")
     table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "row of the data file" in t)
     listed = re.findall(r"<tr><td>(\d+)</td><td class=\"r\">([0-9.]+)</td>", table)
@@ -372,7 +359,7 @@ def test_report_options_are_saved_and_reused_by_rerun(tmp_path, capsys):
     assert code == 0, err
     session = json.loads((tmp_path / "s.json").read_text())
     assert session["report"] == {"suppress_up_to": 3, "list_records": True}
-    rows, _ = _top_influential_rows()
+    rows, _ = wound_top_influential_rows()
     code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--report", tmp_path / "again.html")
     assert code == 0, err
     html = (tmp_path / "again.html").read_text(encoding="utf-8")

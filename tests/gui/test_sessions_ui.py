@@ -15,6 +15,7 @@ import pandas as pd
 import pytest
 
 from gui_helpers import READMISSION, WAIT_MS, WOUND, choose_outcome, idle, load, new_window, tick
+from references import wound_top_influential_rows
 
 OUTCOME = "readmitted_30d"
 MODEL = ["age", "sex", "discharge_destination", "lives_alone"]
@@ -501,20 +502,6 @@ def test_rerun_of_a_window_session_gives_the_fit_on_screen(qtbot, window, data_c
 WOUND_MODEL = ["age", "bmi", "diabetes"]
 
 
-def _wound_top_rows(k=10):
-    """Outside reference: statsmodels GLM (binomial) Cook's distance on the wound sample's design, built with pandas."""
-    import statsmodels.api as sm
-
-    frame = pd.read_csv(WOUND)
-    X = sm.add_constant(pd.DataFrame({"age": frame.age, "bmi": frame.bmi,
-                                      "diabetes": (frame.diabetes == "yes").astype(float)}))
-    glm = sm.GLM((frame.infection == "yes").astype(float), X, family=sm.families.Binomial()).fit()
-    cooks = glm.get_influence().cooks_distance[0]
-    order = np.argsort(-cooks, kind="stable")
-    assert cooks[order[k - 1]] > cooks[order[k]]  # no tie at the edge
-    return [int(i) + 1 for i in order[:k]]
-
-
 def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tmp_path, monkeypatch):
     import re
 
@@ -556,7 +543,7 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
             in html)
     assert "Counts of 1 to 3 people are shown as" in html
     table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "row of the data file" in t)
-    assert [int(r) for r in re.findall(r"<tr><td>(\d+)</td>", table)] == _wound_top_rows()
+    assert [int(r) for r in re.findall(r"<tr><td>(\d+)</td>", table)] == wound_top_influential_rows()[0]
     # Kept with the analysis: in the autosave at once, and in a saved session.
     autosaved = home / "autosave" / f"session-{os.getpid()}.json"
     qtbot.waitUntil(lambda: idle(window) and load_session(autosaved)["report"] == answer, timeout=WAIT_MS)

@@ -551,8 +551,7 @@ def log_likelihood(y: np.ndarray, eta: np.ndarray) -> float:
     return float(y @ eta - np.sum(np.logaddexp(0.0, eta)))
 
 
-def refit_log_likelihood(X: np.ndarray, y: np.ndarray, start: np.ndarray, maxiter: int = 50,
-                         tol: float = 1e-10) -> RefitLikelihood:
+def _newton_refit(X, y, start, maxiter, tol) -> RefitLikelihood:
     """Maximised log-likelihood of a sub-model by full Newton, for likelihood-ratio tests only.
 
     statsmodels ``Logit`` (Newton) on a design already known to be full rank,
@@ -560,19 +559,10 @@ def refit_log_likelihood(X: np.ndarray, y: np.ndarray, start: np.ndarray, maxite
     the largest step, tight enough that the log-likelihood is exact to
     round-off.  A singular information matrix (a sub-model too small for its
     rows, or separated) gives ``method="failed"`` rather than an exception.
-    """
-    with _one_blas_thread(), warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return _newton_refit(X, y, start, maxiter, tol)
-
-
-def _newton_refit(X, y, start, maxiter, tol) -> RefitLikelihood:
-    """:func:`refit_log_likelihood` without touching the warning filters.
-
-    ``warnings.catch_warnings`` swaps process-wide state, so threads entering
-    and leaving it at once restore each other's filters and statsmodels'
-    warnings leak to the terminal; threaded callers set the filter once
-    around all their threads instead.
+    It leaves the warning filters alone: ``warnings.catch_warnings`` swaps
+    process-wide state, so threads entering and leaving it at once restore
+    each other's filters; the threaded caller sets the filter once around
+    all its threads instead.
     """
     from statsmodels.discrete.discrete_model import Logit
 
@@ -674,7 +664,7 @@ def drop_refits(fit: "LogisticFit", drops: list) -> list:
     ``b_K + H_KK^-1 H_KD b_D`` (:func:`reduced_start`) and iterates with the
     full fit's information held fixed (:func:`_chord_refits`), which needs
     only a gradient per step; one that does not converge quickly is finished
-    by full Newton (:func:`refit_log_likelihood`).  Either way the result is
+    by full Newton (:func:`_newton_refit`).  Either way the result is
     the maximum to a tight tolerance, so G is exact.  The work is split
     between two threads.
     """

@@ -631,6 +631,16 @@ class _Checker:
             self.fail(f"'{where}' should be an object, not {_type_name(v)}")
         return v
 
+    def fields(self, v, keys, owner, missing):
+        """Fail at the first field of ``v`` not in ``keys`` ("{owner} the unknown field ..."), then at the
+        first of ``keys`` not in ``v`` (``missing`` with ``{}`` for its name)."""
+        unknown = [k for k in v if k not in keys]
+        if unknown:
+            self.fail(f"{owner} the unknown field '{str(unknown[0])[:40]}'")
+        absent = [k for k in keys if k not in v]
+        if absent:
+            self.fail(missing.format(absent[0]))
+
 
 def validate_session(session, path=None) -> dict:
     """Check every field of a session (types, sizes, consistency); raise SessionFileError at the first problem."""
@@ -649,16 +659,11 @@ def validate_session(session, path=None) -> dict:
             raise SessionFileError(f"The session file {Path(path or '(unsaved)').name} has schema version {version}, "
                                    f"newer than this Twofold reads ({SCHEMA_VERSION}); update Twofold to open it.")
         c.fail(f"its schema version {version} is not one Twofold knows")
-    unknown = [k for k in session if k not in KEYS]
     for key, default in _spec_defaults().items():
         # A spec option added after a session was written takes its default (no effect).
         session.setdefault(key, default)
     session.setdefault("report", dict(REPORT_DEFAULTS))  # saved before reports had options: the defaults
-    if unknown:
-        c.fail(f"it has the unknown field '{str(unknown[0])[:40]}'")
-    missing = [k for k in KEYS if k not in session]
-    if missing:
-        c.fail(f"the field '{missing[0]}' is missing")
+    c.fields(session, KEYS, "it has", "the field '{}' is missing")
 
     c.text(session["saved_by"], "saved_by", 200)
     c.text(session["saved_at"], "saved_at", 100)
@@ -717,12 +722,7 @@ def validate_session(session, path=None) -> dict:
         c.integer(session["seed"], "seed", -(2 ** 63), 2 ** 63 - 1)
     c.names(session["rows_complete_in"], "rows_complete_in", cap=MAX_PREDICTORS)
     report = c.obj(session["report"], "report")
-    odd = [k for k in report if k not in REPORT_DEFAULTS]
-    if odd:
-        c.fail(f"the report options have the unknown field '{str(odd[0])[:40]}'")
-    absent = [k for k in REPORT_DEFAULTS if k not in report]
-    if absent:
-        c.fail(f"the report option '{absent[0]}' is missing")
+    c.fields(report, REPORT_DEFAULTS, "the report options have", "the report option '{}' is missing")
     c.integer(report["suppress_up_to"], "suppress_up_to", 1, MAX_THRESHOLD)
     c.boolean(report["list_records"], "list_records")
     for key in SPEC_KEYS:
@@ -770,12 +770,7 @@ def _plain_json(c: _Checker, value, where: str) -> None:
 def _validate_model(c: _Checker, model, outcome, predictors) -> None:
     c.obj(model, "model")
     keys = ("outcome", "event", "method", "names", "coefficients", "covariance", "terms")
-    extra = [k for k in model if k not in keys]
-    if extra:
-        c.fail(f"the model has the unknown field '{str(extra[0])[:40]}'")
-    absent = [k for k in keys if k not in model]
-    if absent:
-        c.fail(f"the model's field '{absent[0]}' is missing")
+    c.fields(model, keys, "the model has", "the model's field '{}' is missing")
     if c.name(model["outcome"], "the model's 'outcome'") != outcome:
         c.fail("the model's outcome is not the session's outcome")
     c.value(model["event"], "the model's event")
