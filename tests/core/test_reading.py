@@ -162,3 +162,43 @@ def test_unknown_column_suggests_close_names(tmp_path):
     st = Study.from_file(write_text(tmp_path / "d.csv", ","))
     with pytest.raises(ColumnError, match="did you mean 'age'"):
         st.column("agee")
+
+
+def test_spaces_around_identifiers_are_stripped(tmp_path):
+    # A column whose values all differ takes the one-pass path; a stray space
+    # before or after an identifier must still go, and empty cells stay missing.
+    ids = [f"A{k:04d}" for k in range(300)]
+    written = list(ids)
+    written[7] = " " + ids[7]
+    written[250] = ids[250] + "\t"
+    written[100] = ""
+    lines = ["ref,age"] + [f"{w},{k % 90}" for k, w in enumerate(written)]
+    path = tmp_path / "ids.csv"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    col = read_table(path).frame["ref"]
+    assert col[7] == ids[7] and col[250] == ids[250]
+    assert col.isna().sum() == 1 and pd.isna(col[100])
+    # Reference: the same cells stripped by Python's str.strip, blank as missing.
+    expected = pd.Series([w.strip() or np.nan for w in written], dtype="str", name="ref")
+    pd.testing.assert_series_equal(col, expected, check_index=False)
+
+
+def test_large_frames_are_described_as_column_by_column():
+    # Past a size, numeric columns are described on a second thread; the
+    # descriptions must be those of describing each column alone.
+    from twofold.core.roles import _THREAD_CELLS, describe_column, describe_columns
+
+    rng = np.random.default_rng(7)
+    n = _THREAD_CELLS // 4 + 1
+    frame = pd.DataFrame({
+        "record_no": np.arange(n),
+        "age": rng.integers(18, 99, n),
+        "weight": np.where(rng.random(n) < 0.05, np.nan, rng.normal(75, 12, n).round(1)),
+        "flag": rng.integers(0, 2, n).astype(float),
+        "ward": pd.Series(rng.choice(["east", "west", "north"], n), dtype="str"),
+        "code": pd.Series(np.char.add("K", rng.integers(0, 10 * n, n).astype(str)), dtype="str"),
+    })
+    together = describe_columns(frame)
+    assert list(together) == list(frame.columns)
+    for name in frame.columns:
+        assert together[name] == describe_column(name, frame[name])

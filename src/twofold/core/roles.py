@@ -323,6 +323,34 @@ def describe_column(name: str, series) -> ColumnInfo:
     return make(role, reason)
 
 
+#: Numeric cells above which a second thread describes the numeric columns.
+_THREAD_CELLS = 2_000_000
+
+
 def describe_columns(frame) -> dict[str, ColumnInfo]:
-    """Infer the role of every column of a frame, in column order."""
-    return {str(name): describe_column(str(name), frame[name]) for name in frame.columns}
+    """Infer the role of every column of a frame, in column order.
+
+    In a large frame the numeric columns are described on a second thread
+    while this one describes the text columns: hashing numbers releases
+    Python's interpreter lock, hashing text does not, so the two overlap.
+    Each column's description is the same either way.
+    """
+    import numpy as np
+
+    names = [str(n) for n in frame.columns]
+    series = [frame[n] for n in frame.columns]
+    numeric = [i for i, s in enumerate(series) if isinstance(s.dtype, np.dtype) and s.dtype.kind in "iuf"]
+    out: dict[int, ColumnInfo] = {}
+    if len(numeric) < len(series) and len(numeric) * len(frame) >= _THREAD_CELLS:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            later = pool.submit(lambda: {i: describe_column(names[i], series[i]) for i in numeric})
+            chosen = set(numeric)
+            for i in range(len(series)):
+                if i not in chosen:
+                    out[i] = describe_column(names[i], series[i])
+            out.update(later.result())
+    else:
+        out = {i: describe_column(names[i], series[i]) for i in range(len(series))}
+    return {names[i]: out[i] for i in range(len(series))}
