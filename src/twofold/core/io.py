@@ -760,8 +760,8 @@ def _tidy_text_column(name, col, flavour, found):
     # Values mostly differ, as in an identifier: one pass over the cells
     # (str.strip returns the very same object when there is nothing to strip).
     # map keeps the loop in C: about a quarter faster than a generator here.
-    present_all = values if not col.hasnans else col.dropna().to_numpy(dtype=object)
-    changed = any(map(operator.is_not, map(str.strip, present_all), present_all))
+    texts = values if not col.hasnans else col.dropna().to_numpy(dtype=object)
+    changed = any(map(operator.is_not, map(str.strip, texts), texts))
     present = [v for v in head if v.__class__ is str]
     # Exact missing markers are already missing (the parser saw to them).
     if not (changed or _as_numbers(present[:200], flavour)[0] is not None

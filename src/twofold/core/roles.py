@@ -339,18 +339,19 @@ def describe_columns(frame) -> dict[str, ColumnInfo]:
 
     names = [str(n) for n in frame.columns]
     series = [frame[n] for n in frame.columns]
-    numeric = [i for i, s in enumerate(series) if isinstance(s.dtype, np.dtype) and s.dtype.kind in "iuf"]
-    out: dict[int, ColumnInfo] = {}
-    if len(numeric) < len(series) and len(numeric) * len(frame) >= _THREAD_CELLS:
+    numeric = {i for i, s in enumerate(series) if isinstance(s.dtype, np.dtype) and s.dtype.kind in "iuf"}
+
+    def describe(indices):
+        return {i: describe_column(names[i], series[i]) for i in indices}
+
+    others = [i for i in range(len(series)) if i not in numeric]
+    if others and len(numeric) * len(frame) >= _THREAD_CELLS:
         from concurrent.futures import ThreadPoolExecutor
 
         with ThreadPoolExecutor(max_workers=1) as pool:
-            later = pool.submit(lambda: {i: describe_column(names[i], series[i]) for i in numeric})
-            chosen = set(numeric)
-            for i in range(len(series)):
-                if i not in chosen:
-                    out[i] = describe_column(names[i], series[i])
+            later = pool.submit(describe, sorted(numeric))
+            out = describe(others)
             out.update(later.result())
     else:
-        out = {i: describe_column(names[i], series[i]) for i in range(len(series))}
+        out = describe(range(len(series)))
     return {names[i]: out[i] for i in range(len(series))}
