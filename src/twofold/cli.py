@@ -14,23 +14,17 @@ import os
 import sys
 from pathlib import Path
 
-EXIT_USAGE = 2
-EXIT_INTERNAL = 3
+from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
+    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, suppress_limit,
+)
 
 SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
-
-
-class _Parser(argparse.ArgumentParser):
-    """argparse that reports usage mistakes in one sentence and exits 2."""
-
-    def error(self, message):
-        self.exit(EXIT_USAGE, f"twofold: {message} (see 'twofold {self.prog.split()[-1]} --help').\n")
 
 
 def _fit_parser() -> argparse.ArgumentParser:
     from twofold.core.analysis import role_names  # light: no numpy or pandas at import
 
-    p = _Parser(prog="twofold fit", description="Fit a logistic model to a data file and report its tests.")
+    p = CommandParser(prog="twofold fit", description="Fit a logistic model to a data file and report its tests.")
     p.add_argument("data", metavar="DATA", help="CSV, TSV or XLSX file (read only, never written)")
     p.add_argument("--outcome", required=True, metavar="COLUMN", help="the yes/no outcome column")
     p.add_argument("--event", metavar="VALUE", help="which outcome value is the event (may be left out for 0/1)")
@@ -59,48 +53,6 @@ def _fit_parser() -> argparse.ArgumentParser:
     add_report_options(p, "saved with --session-out for later reports")
     p.add_argument("--table-out", metavar="PATH.csv|PATH.xlsx", help="write the coefficient table")
     return p
-
-
-def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
-    """``--suppress-up-to N`` and ``--report-records``, shared by ``fit`` and ``rerun``."""
-    from twofold.core.privacy import DEFAULT_THRESHOLD
-
-    p.add_argument("--suppress-up-to", type=suppress_limit, metavar="N", default=None,
-                   help=f"in the report, show counts of 1 to N people as suppressed (default {DEFAULT_THRESHOLD}; "
-                        f"use the limit your data owner requires; {default_note})")
-    p.add_argument("--report-records", action=argparse.BooleanOptionalAction, default=None,
-                   help="list the most influential records in the report by their row number in the data file "
-                        "(row numbers can point back to patients; off unless asked)")
-
-
-def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) -> None:
-    """Refuse report options that would change nothing: none of ``places`` (option -> value) is given.
-
-    ``places`` names ``--report`` and, for ``fit``, ``--session-out`` (the
-    session keeps the options for the reports of later re-runs).
-    """
-    given = [name for name, value in (("--suppress-up-to", args.suppress_up_to),
-                                      ("--report-records", args.report_records)) if value is not None]
-    if given and not any(places.values()):
-        them = "it" if len(given) == 1 else "them"
-        nor = (f" (nor --session-out, which keeps {them} for later reports)" if "--session-out" in places else "")
-        p.error(f"{' and '.join(given)} change{'s' if len(given) == 1 else ''} only a report, but no --report "
-                f"was given{nor}; add --report PATH.html or leave {them} out")
-
-
-def suppress_limit(text: str) -> int:
-    """The value of ``--suppress-up-to``: a whole number from 1 to the largest limit allowed."""
-    from twofold.core.privacy import MAX_THRESHOLD
-
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the largest count of people to "
-                                         "hide, e.g. 10") from None
-    if not 1 <= value <= MAX_THRESHOLD:
-        raise argparse.ArgumentTypeError(f"{text} is out of range; give a whole number from 1 to {MAX_THRESHOLD}, "
-                                         "e.g. 10")
-    return value
 
 
 def _repetitions(text: str) -> int:
@@ -146,7 +98,7 @@ def run_fit(argv: list[str]) -> int:
                       "so choose another file name.", file=sys.stderr)
                 return EXIT_USAGE
         if args.session_out or args.report or args.table_out:
-            from twofold.outputs import write_fit_outputs
+            from twofold.commands import write_fit_outputs
 
             write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out,
                               suppress_up_to=args.suppress_up_to, report_records=args.report_records)
@@ -215,7 +167,7 @@ def main(argv: list[str] | None = None) -> int:
         if argv and argv[0] == "fit":
             return run_fit(argv[1:])
         if argv and argv[0] in ("rerun", "predict"):
-            from twofold import outputs
+            from twofold import commands as outputs
 
             return getattr(outputs, f"run_{argv[0]}")(argv[1:])
         if argv and argv[0] == "snapshot":

@@ -16,7 +16,7 @@ from scipy.special import expit
 from sklearn.metrics import roc_auc_score
 
 from references import wound_top_influential_rows
-from twofold import outputs
+from twofold import commands as outputs
 from twofold.cli import main
 
 ROOT = Path(__file__).resolve().parents[2]

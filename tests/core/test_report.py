@@ -20,7 +20,8 @@ from sklearn.metrics import roc_auc_score
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import TwofoldError
 from twofold.core.privacy import SUPPRESSED
-from twofold.core.report import Table, build_report, write_report
+from twofold.core.report import Table, build_report
+from twofold.render.report_writer import write_report
 
 ROOT = Path(__file__).resolve().parents[2]
 READMIT = ROOT / "sample_studies" / "readmission_synthetic.csv"

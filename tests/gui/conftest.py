@@ -30,3 +30,28 @@ def window(qtbot, home, tmp_path):
     w = new_window(qtbot, tmp_path / "settings.ini")
     yield w
     w.session.shutdown()
+
+
+@pytest.fixture(autouse=True)
+def unsaved_answers():
+    """Questions about unsaved changes are answered "don't save" unless a test says otherwise; asked ones are kept.
+
+    Its own patcher, set up before and undone after every other fixture, so a test's
+    ``monkeypatch.undo()`` or the closing of its windows never meets the real question box.
+    """
+    from twofold.gui import sessions_ui
+
+    patcher = pytest.MonkeyPatch()
+
+    asked = []
+
+    def answer(parent, doing):
+        asked.append(doing)
+        return asked_answer[0]
+
+    asked_answer = ["discard"]
+    patcher.setattr(sessions_ui, "ask_unsaved", answer)
+    answer.asked = asked
+    answer.answers = asked_answer
+    yield answer
+    patcher.undo()

@@ -21,7 +21,6 @@ from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_N
 from twofold.core.study import Study
 from twofold.core.text import fmt_num
 from twofold.gui import session as session_module
-from twofold.gui.worker import JobResult
 
 PREDICTORS = ["age", "sex", "discharge_destination"]
 
@@ -29,7 +28,7 @@ PREDICTORS = ["age", "sex", "discharge_destination"]
 def wait_assessed(qtbot, window):
     """Wait until the assessment of the newest request is on screen."""
     s = window.session
-    newest = s._next_id
+    newest = s.newest_request
     qtbot.waitUntil(lambda: not s.busy and s.last_assessment_id == newest
                     and window.results_pane.assessment_box.view is not None, timeout=WAIT_MS)
     return window.results_pane.assessment_box
@@ -108,7 +107,7 @@ def test_threshold_box_updates_the_classification_table(qtbot, readmission):
     tick(qtbot, window, PREDICTORS)
     box = wait_assessed(qtbot, window)
     box.threshold.setValue(0.2)
-    qtbot.waitUntil(lambda: window.session.last_assessment_id == window.session._next_id
+    qtbot.waitUntil(lambda: window.session.last_assessment_id == window.session.newest_request
                     and box.view.threshold == pytest.approx(0.2), timeout=WAIT_MS)
     fit = core_fit(PREDICTORS)
     y, p = fit.design.y, fit.fitted
@@ -119,33 +118,33 @@ def test_threshold_box_updates_the_classification_table(qtbot, readmission):
 
 
 def test_a_superseded_assessment_never_overwrites_a_newer_one(qtbot, readmission, monkeypatch):
+    from twofold.core import workspace as workspace_module
+
     window = readmission
     gate, started = threading.Event(), threading.Event()
-    original = session_module.Session._job_assess
+    original = workspace_module.assess_fit
     calls = []
 
-    def slow_assess(self, job_id, threshold):
-        calls.append(job_id)
+    def slow_assess(study, fit, threshold=None, checkpoint=None):
+        calls.append(fit)
         if len(calls) == 1:
             started.set()
-            gate.wait(10)  # the older assessment finishes only after a newer tick was made
-        return original(self, job_id, threshold)
+            gate.wait(10)  # the older assessment goes on only after a newer tick was made
+        return original(study, fit, threshold=threshold, checkpoint=checkpoint)
 
-    monkeypatch.setattr(session_module.Session, "_job_assess", slow_assess)
+    monkeypatch.setattr(workspace_module, "assess_fit", slow_assess)
     shown = []
     window.session.assessmentChanged.connect(lambda v: shown.append(None if v is None else v.rung))
     window.model_pane.set_ticked(["age"])  # request A: its assessment blocks
     assert started.wait(10)
-    window.model_pane.set_ticked(["age", "sex"])  # request B
+    window.model_pane.set_ticked(["age", "sex"])  # request B: its results do not wait for A's assessment
+    qtbot.waitUntil(lambda: window.results_pane.view is not None
+                    and window.results_pane.view.predictors == ("age", "sex"), timeout=WAIT_MS)
+    assert "Working out" in window.results_pane.assessment_box.status.text()
     gate.set()
     box = wait_assessed(qtbot, window)
     assert shown == [1]  # only B's assessment (model 2) was shown
     assert box.view.rung == 1 == window.results_pane.view.rung
-
-    # Delivered by hand, out of order: an older follow-up is ignored.
-    old = JobResult(calls[0], "assess", {"assessment": "stale"}, followup=True)
-    window.session._on_done(old)
-    assert box.view.rung == 1 and window.session.last_assessment != "stale"
 
 
 def test_matplotlib_is_not_imported_when_the_window_is_built(tmp_path):

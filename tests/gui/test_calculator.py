@@ -125,9 +125,9 @@ def _harrell_rcs(x: np.ndarray, knots: np.ndarray) -> np.ndarray:
 def test_spline_matches_statsmodels_on_harrell_basis(qtbot, fitted):
     window = fitted
 
-    def shape(study, ladder, add):
-        study.set_spline("age", 4)
-        add(("age", "sex"))
+    def shape(ws):
+        ws.set_predictors(("age", "sex"))
+        ws.set_spline("age", 4)
 
     rid = window.session.run_modelling(shape)
     qtbot.waitUntil(lambda: idle(window) and window.session.is_current("results", rid)

@@ -107,17 +107,17 @@ def test_intervals_traced_before_their_results_arrive_are_still_shown(qtbot, win
     # A small model's intervals can be ready before the window has received the results they
     # describe (seen on a busy machine); they must be held back and shown, not dropped.  Forced
     # here: the worker waits for the profile thread to finish before it hands over the results.
-    from twofold.gui.session import Session
+    session = window.session
+    real = present.results_view
 
-    real = Session._start_profile
+    def finish_first(ws):
+        view = real(ws)
+        if view is not None:  # trace the intervals and send them before these results leave the worker
+            session._profiler.submit(session._profile, session.newest_request, ws, ws.shown_fit(),
+                                     ws.ladder.current).result(timeout=WAIT_MS / 1000)
+        return view
 
-    def finish_first(self, job_id, fit):
-        out = real(self, job_id, fit)
-        if self._profile_future is not None:
-            self._profile_future[1].result(timeout=WAIT_MS / 1000)
-        return out
-
-    monkeypatch.setattr(Session, "_start_profile", finish_first)
+    monkeypatch.setattr(present, "results_view", finish_first)
     predictors = ["age", "diabetes"]
     load(qtbot, window, WOUND)
     choose_outcome(qtbot, window, "infection")
@@ -132,7 +132,9 @@ def test_intervals_traced_before_their_results_arrive_are_still_shown(qtbot, win
 
 def test_profile_runs_off_the_gui_thread_and_a_tick_drops_the_stale_result(qtbot, window, monkeypatch):
     # Every model counts as "big", so the intervals come only when asked for.
-    monkeypatch.setattr(present, "PROFILE_AUTO_WORK", 0)
+    from twofold.core import workspace as workspace_module
+
+    monkeypatch.setattr(workspace_module, "PROFILE_AUTO_WORK", 0)
     load(qtbot, window, READMISSION)
     choose_outcome(qtbot, window, "readmitted_30d")
     pane = window.results_pane
@@ -144,12 +146,12 @@ def test_profile_runs_off_the_gui_thread_and_a_tick_drops_the_stale_result(qtbot
     threads, started, release = [], threading.Event(), threading.Event()
     real = present.profile_view
 
-    def held(fit, rung):
+    def held(ws, fit, rung):
         threads.append(threading.get_ident())
         if not started.is_set():
             started.set()
             release.wait(WAIT_MS / 1000)  # the first computation stays "running" until released
-        return real(fit, rung)
+        return real(ws, fit, rung)
 
     monkeypatch.setattr(present, "profile_view", held)
     arrived = []

@@ -25,32 +25,40 @@ def readmission(qtbot, window):
     return window
 
 
-def test_a_superseded_fit_is_discarded_and_queued_ticks_coalesce(qtbot, readmission, monkeypatch):
+def test_quick_ticks_are_each_their_own_ladder_step_and_only_the_newest_is_shown(qtbot, readmission, monkeypatch):
+    from twofold.core.workspace import Workspace
+
     window = readmission
     gate, started = threading.Event(), threading.Event()
     calls = []
-    original = session_module.Session._job_fit
+    original = Workspace.set_predictors
 
     def slow_fit(self, predictors):
-        calls.append(predictors)
-        if predictors == ("age",):
+        calls.append(tuple(predictors))
+        if tuple(predictors) == ("age",):
             started.set()
-            gate.wait(10)  # a slow fit: it finishes only after the newer requests were made
+            gate.wait(10)  # a slow fit: it finishes only after the newer ticks were made
         return original(self, predictors)
 
-    monkeypatch.setattr(session_module.Session, "_job_fit", slow_fit)
+    monkeypatch.setattr(Workspace, "set_predictors", slow_fit)
     shown = []
     window.session.resultsChanged.connect(lambda v: shown.append(None if v is None else v.predictors))
-    window.model_pane.set_ticked(["age"])  # request A
+    pane = window.model_pane
+    pane.set_ticked(["age"])  # tick A
     assert started.wait(10)
-    window.model_pane.set_ticked(["age", "sex"])  # request B, waiting behind A
-    window.model_pane.set_ticked(["age", "sex", "prior_admissions"])  # request C replaces B
+    pane.set_ticked(["age", "sex"])  # tick B, waiting behind A
+    pane.set_ticked(["age", "sex", "prior_admissions"])  # tick C
     gate.set()
     qtbot.waitUntil(lambda: not window.session.busy, timeout=WAIT_MS)
-    assert calls == [("age",), ("age", "sex", "prior_admissions")]
-    assert shown == [("age", "sex", "prior_admissions")]  # A's results were never shown
+    # Every tick is fitted as its own step, so each one-predictor-at-a-time test is kept...
+    assert calls == [("age",), ("age", "sex"), ("age", "sex", "prior_admissions")]
+    ladder = window.results_pane.view.ladder
+    assert [r.predictors for r in ladder.rows] == calls
+    assert [r.df for r in ladder.rows] == [None, 1, 1]
+    # ...but only the newest results reach the screen.
+    assert shown == [("age", "sex", "prior_admissions")]
     assert window.results_pane.view.predictors == ("age", "sex", "prior_admissions")
-    assert window.model_pane.ticked_predictors() == ("age", "sex", "prior_admissions")
+    assert pane.ticked_predictors() == ("age", "sex", "prior_admissions")
 
 
 def test_results_of_an_older_request_arriving_last_never_overwrite_newer(qtbot):

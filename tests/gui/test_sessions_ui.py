@@ -152,9 +152,10 @@ def test_round_trip_keeps_curves_interactions_and_the_penalised_fit(qtbot, windo
     load(qtbot, window, READMISSION)
     choose_outcome(qtbot, window, OUTCOME)
 
-    def shape(study, ladder, add):
-        study.set_spline("age", 4)
-        add(("age", "sex", "age:sex"))
+    def shape(ws):
+        ws.set_predictors(("age", "sex"))
+        ws.set_spline("age", 4)
+        ws.add_interaction("age", "sex")
 
     window.session.run_modelling(shape)
     qtbot.waitUntil(lambda: idle(window) and window.session.last_results is not None, timeout=WAIT_MS)
@@ -456,7 +457,7 @@ def test_rerun_of_a_window_session_gives_the_fit_on_screen(qtbot, window, data_c
     """A model shown on the ladder's common rows is re-run by ``twofold rerun`` on those same rows."""
     import statsmodels.api as sm
 
-    from twofold import outputs
+    from twofold import commands as outputs
 
     # lives_alone (missing in some rows) was tried, then unticked: age alone is shown on the ladder's rows.
     _fit_in(qtbot, window, data_copy, [["age", "lives_alone"], ["age"]])

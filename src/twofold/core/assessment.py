@@ -143,7 +143,8 @@ class Assessment:
 
 
 def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int = 10,
-           anticipated_r2_cs: float | None = None, drop_one: bool = True, predicted=None) -> Assessment:
+           anticipated_r2_cs: float | None = None, drop_one: bool = True, predicted=None,
+           checkpoint=None) -> Assessment:
     """Assess a fit on the rows it was fitted to.
 
     Parameters
@@ -162,7 +163,11 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
         Whether to run the drop-one likelihood-ratio tests.
     predicted : array, optional
         Predicted risks to assess instead of the fit's own (e.g. FLIC's).
+    checkpoint : callable, optional
+        Called between the parts of the work; it may raise to abandon an
+        assessment nobody waits for any more (the window's newer tick).
     """
+    step = checkpoint if checkpoint is not None else (lambda: None)
     from twofold.core import calibration as cal
     from twofold.core import discrimination as disc
     from twofold.core.influence import gvif, influence_measures
@@ -174,6 +179,7 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
     lp = np.log(p) - np.log1p(-p) if predicted is not None else fit.linear_predictor
     notices: list[Notice] = []
     auc = disc.auc_delong(y, p)
+    step()
     roc = disc.roc_points(y, p)
     nan = float("nan")
     try:
@@ -190,6 +196,7 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
     except TwofoldError as exc:
         hl, table = None, None
         notices.append(Notice("hosmer_lemeshow", str(exc)))
+    step()
     try:
         smooth = cal.smoothed_calibration(y, p)
         notices.extend(smooth.notices)
@@ -201,6 +208,7 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
     except TwofoldError as exc:
         pseudo = cal.PseudoR2(nan, nan, nan, nan)
         notices.append(Notice("pseudo_r2", str(exc)))
+    step()
     X = fit.used_X
     try:
         # The fit's covariance is (X'WX)^-1 at its estimates: no need to form it again.
@@ -219,6 +227,7 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
             vif_table = gvif(X, groups_idx)
         except TwofoldError as exc:
             notices.append(Notice("collinear", str(exc)))
+    step()
     tests = drop_one_tests(study, fit) if drop_one else []
     notices.extend(Notice("drop_one", t.note, (t.column,)) for t in tests if t.note)
     r2 = pseudo.cox_snell if anticipated_r2_cs is None else anticipated_r2_cs

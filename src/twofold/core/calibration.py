@@ -27,12 +27,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from twofold.core.discrimination import (
-    _both_classes,
-    _check_level,
-    _outcome,
-    _probabilities,
-    _readonly,
-    _values,
+    require_both_classes,
+    check_level,
+    outcome_array,
+    probability_array,
+    read_only,
+    float_values,
 )
 from twofold.core.errors import ModelError, Notice, TwofoldError
 
@@ -245,8 +245,8 @@ def brier(y, p) -> float:
         0 is perfect; predicting the overall event rate for everyone gives
         mean(y) (1 - mean(y)).
     """
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
     return float(np.mean((pp - yy) ** 2))
 
 
@@ -269,9 +269,9 @@ def scaled_brier(y, p) -> float:
         1 is perfect, 0 is no better than giving everyone the event rate,
         negative is worse than that.
     """
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
-    _both_classes(yy)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
+    require_both_classes(yy)
     ybar = yy.mean()
     return float(1.0 - np.mean((pp - yy) ** 2) / (ybar * (1.0 - ybar)))
 
@@ -355,10 +355,10 @@ def calibration_slope_intercept(y, lp, level: float = 0.95) -> CalibrationFit:
     the score equations of that fit); the measures are informative on new
     data or after internal validation.
     """
-    _check_level(level)
-    yy = _outcome(y)
-    x = _values(lp, yy.size, "linear predictor")
-    _both_classes(yy)
+    check_level(level)
+    yy = outcome_array(y)
+    x = float_values(lp, yy.size, "linear predictor")
+    require_both_classes(yy)
     alpha = 1.0 - level
     ones = np.ones((yy.size, 1))
 
@@ -482,8 +482,8 @@ def hosmer_lemeshow(y, p, groups: int = 10) -> HosmerLemeshowResult:
     from scipy.stats import chi2
 
     g = _check_groups(groups, 3)
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
     codes, k = _risk_groups(pp, g)
     if k < 3:
         raise TwofoldError(
@@ -508,10 +508,10 @@ def hosmer_lemeshow(y, p, groups: int = 10) -> HosmerLemeshowResult:
         p_value=float(chi2.sf(stat, df)),
         groups_requested=g,
         groups_used=k,
-        n=_readonly(n.astype(np.int64)),
-        observed_events=_readonly(obs),
-        expected_events=_readonly(exp),
-        mean_predicted=_readonly(mean_p),
+        n=read_only(n.astype(np.int64)),
+        observed_events=read_only(obs),
+        expected_events=read_only(exp),
+        mean_predicted=read_only(mean_p),
     )
 
 
@@ -539,21 +539,21 @@ def calibration_groups(y, p, groups: int = 10, level: float = 0.95) -> Calibrati
     """
     from statsmodels.stats.proportion import proportion_confint
 
-    _check_level(level)
+    check_level(level)
     g = _check_groups(groups, 1)
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
     codes, k = _risk_groups(pp, g)
     n = np.bincount(codes, minlength=k).astype(float)
     obs = np.bincount(codes, weights=yy, minlength=k)
     mean_p = np.bincount(codes, weights=pp, minlength=k) / n
     lo, hi = proportion_confint(obs, n, alpha=1.0 - level, method="wilson")
     return CalibrationGroups(
-        n=_readonly(n.astype(np.int64)),
-        mean_predicted=_readonly(mean_p),
-        observed=_readonly(obs / n),
-        ci_low=_readonly(np.asarray(lo, dtype=float)),
-        ci_high=_readonly(np.asarray(hi, dtype=float)),
+        n=read_only(n.astype(np.int64)),
+        mean_predicted=read_only(mean_p),
+        observed=read_only(obs / n),
+        ci_low=read_only(np.asarray(lo, dtype=float)),
+        ci_high=read_only(np.asarray(hi, dtype=float)),
         level=float(level),
         groups_requested=g,
         groups_used=k,
@@ -629,9 +629,9 @@ def smoothed_calibration(y, p, frac: float = 2.0 / 3.0) -> SmoothedCalibration:
             f"The smoothing fraction {frac!r} is not between 0 and 1; use for "
             "example 2/3."
         )
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
-    n1, n0 = _both_classes(yy)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
+    n1, n0 = require_both_classes(yy)
     order = np.argsort(pp, kind="stable")
     if pp.size > _SMOOTH_MAX_POINTS:
         pick = np.round(np.linspace(0, pp.size - 1, _SMOOTH_MAX_POINTS)).astype(np.intp)
@@ -656,8 +656,8 @@ def smoothed_calibration(y, p, frac: float = 2.0 / 3.0) -> SmoothedCalibration:
             "drawn; read the risk groups instead.",
         ),)
     return SmoothedCalibration(
-        predicted=_readonly(xs),
-        observed=_readonly(fitted),
+        predicted=read_only(xs),
+        observed=read_only(fitted),
         frac=f,
         n_used=int(xs.size),
         n_total=int(pp.size),
@@ -716,9 +716,9 @@ def pseudo_r2(llf: float, llnull: float, n: int, y, p) -> PseudoR2:
             f"The number of rows {n!r} is not positive; pass the number of rows "
             "the model was fitted to."
         )
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
-    _both_classes(yy)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
+    require_both_classes(yy)
     cox_snell = 1.0 - np.exp(2.0 * (llnull - llf) / nn)
     max_cs = 1.0 - np.exp(2.0 * llnull / nn)
     events = yy == 1.0

@@ -41,7 +41,7 @@ __all__ = [
 # ---------------------------------------------------------------------------
 
 
-def _outcome(y, name: str = "outcome") -> np.ndarray:
+def outcome_array(y, name: str = "outcome") -> np.ndarray:
     """Return ``y`` as a 1-D float array of 0/1, or raise a plain error."""
     arr = np.asarray(y, dtype=float)
     if arr.ndim != 1:
@@ -58,7 +58,7 @@ def _outcome(y, name: str = "outcome") -> np.ndarray:
     return arr
 
 
-def _values(x, n: int, name: str) -> np.ndarray:
+def float_values(x, n: int, name: str) -> np.ndarray:
     """Return ``x`` as a finite 1-D float array of length ``n``."""
     arr = np.asarray(x, dtype=float)
     if arr.ndim != 1 or arr.size != n:
@@ -74,9 +74,9 @@ def _values(x, n: int, name: str) -> np.ndarray:
     return arr
 
 
-def _probabilities(p, n: int, name: str = "predicted probabilities") -> np.ndarray:
+def probability_array(p, n: int, name: str = "predicted probabilities") -> np.ndarray:
     """Return ``p`` as a 1-D float array in [0, 1] of length ``n``."""
-    arr = _values(p, n, name)
+    arr = float_values(p, n, name)
     if np.any((arr < 0.0) | (arr > 1.0)):
         raise TwofoldError(
             f"The {name} contain values outside 0 to 1; pass probabilities, "
@@ -85,7 +85,7 @@ def _probabilities(p, n: int, name: str = "predicted probabilities") -> np.ndarr
     return arr
 
 
-def _both_classes(y: np.ndarray) -> tuple[int, int]:
+def require_both_classes(y: np.ndarray) -> tuple[int, int]:
     """Count events and non-events, refusing when either is absent."""
     n1 = int(y.sum())
     n0 = y.size - n1
@@ -109,7 +109,7 @@ def _plain(value):
     return value
 
 
-def _readonly(a: np.ndarray) -> np.ndarray:
+def read_only(a: np.ndarray) -> np.ndarray:
     a = np.asarray(a)
     a.setflags(write=False)
     return a
@@ -367,10 +367,10 @@ def auc_delong(y, score, level: float = 0.95) -> AucResult:
     """
     from scipy.stats import norm
 
-    _check_level(level)
-    yy = _outcome(y)
-    s = _values(score, yy.size, "score")
-    n1, n0 = _both_classes(yy)
+    check_level(level)
+    yy = outcome_array(y)
+    s = float_values(score, yy.size, "score")
+    n1, n0 = require_both_classes(yy)
     auc_arr, v10, v01 = _placements(yy, s[None, :])
     auc = float(auc_arr[0])
     notices: list[Notice] = []
@@ -455,11 +455,11 @@ def delong_paired(y, score_a, score_b, level: float = 0.95) -> PairedAucResult:
     """
     from scipy.stats import norm
 
-    _check_level(level)
-    yy = _outcome(y)
-    a = _values(score_a, yy.size, "first score")
-    b = _values(score_b, yy.size, "second score")
-    n1, n0 = _both_classes(yy)
+    check_level(level)
+    yy = outcome_array(y)
+    a = float_values(score_a, yy.size, "first score")
+    b = float_values(score_b, yy.size, "second score")
+    n1, n0 = require_both_classes(yy)
     if n1 < 2 or n0 < 2:
         raise TwofoldError(
             "Comparing two areas under the ROC curve needs at least two events "
@@ -520,9 +520,9 @@ def roc_points(y, score) -> RocCurve:
         Starts at (0, 0) with threshold ``+inf`` and ends at (1, 1) at the
         lowest score; one point per distinct score in between.
     """
-    yy = _outcome(y)
-    s = _values(score, yy.size, "score")
-    n1, n0 = _both_classes(yy)
+    yy = outcome_array(y)
+    s = float_values(score, yy.size, "score")
+    n1, n0 = require_both_classes(yy)
     key = _tie_safe(s)
     order = np.lexsort((-s, -key))  # by rounded score, then the exact one, so each run ends on its lowest
     s_sorted = s[order]
@@ -534,7 +534,7 @@ def roc_points(y, score) -> RocCurve:
     tpr = np.r_[0.0, tps / n1]
     fpr = np.r_[0.0, fps / n0]
     thr = np.r_[np.inf, s_sorted[last]]
-    return RocCurve(fpr=_readonly(fpr), tpr=_readonly(tpr), thresholds=_readonly(thr))
+    return RocCurve(fpr=read_only(fpr), tpr=read_only(tpr), thresholds=read_only(thr))
 
 
 def classification_table(y, p, threshold: float) -> ClassificationTable:
@@ -565,8 +565,8 @@ def classification_table(y, p, threshold: float) -> ClassificationTable:
     accuracy figure.  The predictive values also depend on how common the
     event is in these data.
     """
-    yy = _outcome(y)
-    pp = _probabilities(p, yy.size)
+    yy = outcome_array(y)
+    pp = probability_array(p, yy.size)
     t = float(threshold)
     if not (0.0 <= t <= 1.0):
         raise TwofoldError(
@@ -596,7 +596,7 @@ def classification_table(y, p, threshold: float) -> ClassificationTable:
     )
 
 
-def _check_level(level: float) -> None:
+def check_level(level: float) -> None:
     if not (0.0 < float(level) < 1.0):
         raise TwofoldError(
             f"The confidence level {level!r} is not between 0 and 1; use for "

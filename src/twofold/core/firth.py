@@ -36,16 +36,16 @@ from scipy.special import expit
 from twofold.core.errors import ModelError, Notice
 from twofold.core.profile import (
     ProfileInterval,
-    _check_column,
-    _check_full_rank,
-    _check_level,
-    _check_xy,
-    _column_scale,
-    _frozen_array,
-    _interval_notices,
-    _json_value,
-    _loglik,
-    _profile_interval,
+    check_column,
+    check_full_rank,
+    check_level,
+    check_xy,
+    column_scale,
+    frozen_array,
+    interval_notices,
+    json_value,
+    profile_loglik,
+    profile_interval,
 )
 
 __all__ = [
@@ -101,14 +101,14 @@ class FirthResult:
     def as_dict(self) -> dict:
         """JSON-ready dictionary."""
         return {
-            "params": _json_value(self.params),
-            "cov_params": _json_value(self.cov_params),
-            "bse": _json_value(self.bse),
-            "penalized_llf": _json_value(self.penalized_llf),
-            "llf": _json_value(self.llf),
+            "params": json_value(self.params),
+            "cov_params": json_value(self.cov_params),
+            "bse": json_value(self.bse),
+            "penalized_llf": json_value(self.penalized_llf),
+            "llf": json_value(self.llf),
             "converged": self.converged,
             "iterations": self.iterations,
-            "max_score": _json_value(self.max_score),
+            "max_score": json_value(self.max_score),
             "fixed": list(self.fixed),
         }
 
@@ -147,12 +147,12 @@ class FirthLRTest:
     def as_dict(self) -> dict:
         """JSON-ready dictionary."""
         return {
-            "statistic": _json_value(self.statistic),
+            "statistic": json_value(self.statistic),
             "df": self.df,
-            "p_value": _json_value(self.p_value),
+            "p_value": json_value(self.p_value),
             "dropped": list(self.dropped),
-            "penalized_llf_full": _json_value(self.penalized_llf_full),
-            "penalized_llf_restricted": _json_value(self.penalized_llf_restricted),
+            "penalized_llf_full": json_value(self.penalized_llf_full),
+            "penalized_llf_restricted": json_value(self.penalized_llf_restricted),
             "converged": self.converged,
             "notices": [n.as_dict() for n in self.notices],
         }
@@ -180,8 +180,8 @@ class FlicResult:
     def as_dict(self) -> dict:
         """JSON-ready dictionary."""
         return {
-            "params": _json_value(self.params),
-            "predicted": _json_value(self.predicted),
+            "params": json_value(self.params),
+            "predicted": json_value(self.predicted),
             "firth": self.firth.as_dict(),
         }
 
@@ -207,7 +207,7 @@ class _Point:
             logdet = 2.0 * float(np.sum(np.log(diag)))
         self.beta = beta
         self.p = p
-        self.llf = _loglik(y, eta)
+        self.llf = profile_loglik(y, eta)
         self.logdet = logdet
         self.pl = self.llf + 0.5 * logdet
         self.h = h
@@ -327,9 +327,9 @@ def _firth_core(
         bse = np.sqrt(np.diag(cov))
     max_score = float(np.max(np.abs(point.score[free]))) if free.size else 0.0
     return FirthResult(
-        params=_frozen_array(point.beta),
-        cov_params=_frozen_array(cov),
-        bse=_frozen_array(bse),
+        params=frozen_array(point.beta),
+        cov_params=frozen_array(cov),
+        bse=frozen_array(bse),
         penalized_llf=float(point.pl),
         llf=float(point.llf),
         converged=bool(converged),
@@ -369,8 +369,8 @@ def _check_fixed(fixed, k: int) -> dict[int, float]:
 
 
 def _check_inputs(X, y, offset, start):
-    X, y = _check_xy(X, y)
-    _check_full_rank(X)
+    X, y = check_xy(X, y)
+    check_full_rank(X)
     n, k = X.shape
     if offset is None:
         offset = np.zeros(n)
@@ -481,7 +481,7 @@ def firth_lr_test(
     X, y, offset, _ = _check_inputs(X, y, None, None)
     k = X.shape[1]
     try:
-        drop = sorted({int(_check_column(X, c)) for c in drop_columns})
+        drop = sorted({int(check_column(X, c)) for c in drop_columns})
     except TypeError:
         raise ModelError(
             "The columns to test must be a list of column indices, for example [1, 2]."
@@ -565,8 +565,8 @@ def firth_profile_ci(
     from scipy.stats import chi2
 
     X, y, offset, _ = _check_inputs(X, y, None, None)
-    column = _check_column(X, column)
-    level = _check_level(level)
+    column = check_column(X, column)
+    level = check_level(level)
     if full is None:
         full = _firth_core(X, y, offset, {}, None, 100, 1e-10)
     elif full.params.shape != (X.shape[1],) or full.fixed:
@@ -584,8 +584,8 @@ def firth_profile_ci(
         return 2.0 * (pl_max - res.penalized_llf)
 
     estimate = float(full.params[column])
-    lower, upper, lo_inf, up_inf = _profile_interval(
-        deviance, estimate, float(full.bse[column]), _column_scale(X[:, column]), level
+    lower, upper, lo_inf, up_inf = profile_interval(
+        deviance, estimate, float(full.bse[column]), column_scale(X[:, column]), level
     )
     ok = bool(state["converged"])
     return ProfileInterval(
@@ -599,7 +599,7 @@ def firth_profile_ci(
         upper_infinite=up_inf,
         method="penalized profile likelihood",
         converged=ok,
-        notices=_interval_notices(lo_inf, up_inf, ok, name),
+        notices=interval_notices(lo_inf, up_inf, ok, name),
     )
 
 
@@ -658,7 +658,7 @@ def flic(X, y, maxiter: int = 100, tol: float = 1e-8) -> FlicResult:
     params = np.array(firth.params, dtype=float)
     params[0] = b0
     return FlicResult(
-        params=_frozen_array(params),
-        predicted=_frozen_array(expit(b0 + slopes_lp)),
+        params=frozen_array(params),
+        predicted=frozen_array(expit(b0 + slopes_lp)),
         firth=firth,
     )

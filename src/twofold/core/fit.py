@@ -72,7 +72,7 @@ class _OneBlasThread:
         return False
 
 
-def _one_blas_thread():
+def one_blas_thread():
     return _OneBlasThread()
 
 
@@ -454,7 +454,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
 
     from statsmodels.discrete.discrete_model import Logit
 
-    with _one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
+    with one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
         warnings.simplefilter("always")
         # hasconst=False skips statsmodels' constant search (a pass over the data); nothing we read depends on it.
         model = Logit(y, X, check_rank=False, hasconst=False)
@@ -722,7 +722,7 @@ def drop_refits(fit: "LogisticFit", drops: list) -> list:
 
     everything = list(range(len(drops)))
     # One warning filter around both threads (see _newton_refit).
-    with _one_blas_thread(), warnings.catch_warnings():
+    with one_blas_thread(), warnings.catch_warnings():
         warnings.simplefilter("ignore")
         if len(drops) < 2:
             results = run(everything)
@@ -806,3 +806,14 @@ def nested_test(smaller: LogisticFit, larger: LogisticFit) -> LikelihoodRatioTes
     g = max(g, 0.0) if g > -1e-6 else g
     p = chi2_sf(g, df) if df > 0 else float("nan")
     return LikelihoodRatioTest(g, df, p, added=added, n_rows=larger.n_used)
+
+
+def warm_up() -> None:
+    """Import the fitting library and touch the distributions once, so the first fit of a session is quick."""
+    import statsmodels.discrete.discrete_model  # noqa: F401
+
+    import twofold.core.assessment  # noqa: F401
+    import twofold.core.workspace  # noqa: F401
+
+    wald_p(0.0)
+    chi2_sf(1.0, 1)

@@ -22,7 +22,7 @@ import numpy as np
 from scipy.special import expit
 
 from twofold.core.errors import ColumnError, ModelError
-from twofold.core.profile import _check_xy, _frozen_array, _json_value
+from twofold.core.profile import check_xy, frozen_array, json_value
 
 __all__ = [
     "InfluenceMeasures",
@@ -79,10 +79,10 @@ class InfluenceMeasures:
     def as_dict(self) -> dict:
         """JSON-ready dictionary of the per-row arrays."""
         return {
-            "leverage": _json_value(self.leverage),
-            "resid_pearson": _json_value(self.resid_pearson),
-            "resid_deviance": _json_value(self.resid_deviance),
-            "cooks_distance": _json_value(self.cooks_distance),
+            "leverage": json_value(self.leverage),
+            "resid_pearson": json_value(self.resid_pearson),
+            "resid_deviance": json_value(self.resid_deviance),
+            "cooks_distance": json_value(self.cooks_distance),
             "n_params": self.n_params,
         }
 
@@ -139,7 +139,7 @@ def influence_measures(X, y, params, cov=None) -> InfluenceMeasures:
     matrix.  A leverage of 1 (a record fitted exactly, as in a saturated
     model) gives an infinite or undefined Cook's distance, not an error.
     """
-    X, y = _check_xy(X, y)
+    X, y = check_xy(X, y)
     params = np.asarray(params, dtype=float).ravel()
     if params.shape[0] != X.shape[1] or not np.all(np.isfinite(params)):
         raise ModelError(
@@ -166,10 +166,10 @@ def influence_measures(X, y, params, cov=None) -> InfluenceMeasures:
         deviance = np.sign(resid) * np.sqrt(2.0 * surprise)
         cooks = pearson ** 2 * h / (k * (1.0 - h) ** 2)
     return InfluenceMeasures(
-        leverage=_frozen_array(h),
-        resid_pearson=_frozen_array(pearson),
-        resid_deviance=_frozen_array(deviance),
-        cooks_distance=_frozen_array(cooks),
+        leverage=frozen_array(h),
+        resid_pearson=frozen_array(pearson),
+        resid_deviance=frozen_array(deviance),
+        cooks_distance=frozen_array(cooks),
         n_params=int(k),
     )
 
@@ -205,7 +205,7 @@ class VifRecord:
         return {
             "name": self.name,
             "column": self.column,
-            "vif": _json_value(self.vif),
+            "vif": json_value(self.vif),
             "flagged": self.flagged,
         }
 
@@ -265,8 +265,8 @@ class GvifRecord:
             "name": self.name,
             "columns": list(self.columns),
             "df": self.df,
-            "gvif": _json_value(self.gvif),
-            "gvif_adjusted": _json_value(self.gvif_adjusted),
+            "gvif": json_value(self.gvif),
+            "gvif_adjusted": json_value(self.gvif_adjusted),
             "flagged": self.flagged,
         }
 

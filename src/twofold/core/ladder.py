@@ -104,6 +104,21 @@ class Ladder:
                 seen.setdefault(p, None)
         return list(seen)
 
+    def state(self) -> tuple:
+        """The ladder as it stands (copies of its rungs), for :meth:`restore` to put back (undo)."""
+        import copy
+
+        return ([copy.copy(r) for r in self.rungs], self.current, self.rows, list(self.notices))
+
+    def restore(self, state: tuple) -> None:
+        """Put back a state taken by :meth:`state`; the fits are the ones it held, not refitted."""
+        import copy
+
+        rungs, current, rows, notices = state
+        self.rungs = [copy.copy(r) for r in rungs]
+        self.current, self.rows, self.notices = current, rows, list(notices)
+        self.events.changed.emit("restored")
+
     def clear(self) -> None:
         self.rungs.clear()
         self.current = None

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from twofold.core.errors import ModelError, TwofoldError
-from twofold.core.fit import Z95, LogisticFit, chi2_sf, nested_test
+from twofold.core.fit import Z95, LogisticFit, nested_test
 
 
 @dataclass(frozen=True)
@@ -198,6 +198,20 @@ class Validation:
             "brier_corrected": self.brier_corrected,
         }
 
+    @classmethod
+    def from_dict(cls, d: dict) -> "Validation":
+        """The validation :meth:`as_dict` wrote (a saved session's); missing figures are NaN."""
+        nan = float("nan")
+
+        def num(key):
+            v = d.get(key)
+            return nan if v is None else float(v)
+
+        return cls(int(d.get("repetitions") or 0), int(d.get("completed") or 0), int(d.get("failed") or 0),
+                   d.get("seed"), num("auc_apparent"), num("auc_optimism"), num("calibration_slope_apparent"),
+                   num("calibration_slope_apparent") - num("calibration_slope_corrected"), num("brier_apparent"),
+                   num("brier_optimism"))
+
 
 class ValidationCancelled(TwofoldError):
     """The bootstrap was cancelled; nothing was changed."""
@@ -251,7 +265,7 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
 
     from statsmodels.discrete.discrete_model import Logit
 
-    from twofold.core.fit import _one_blas_thread
+    from twofold.core.fit import one_blas_thread
 
     if repetitions < 1:
         raise ModelError("The number of bootstrap repetitions must be at least 1; 200 is usual.")
@@ -294,7 +308,7 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
 
     results = []
     done = 0
-    with _one_blas_thread(), ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
+    with one_blas_thread(), ThreadPoolExecutor(max_workers=max(1, workers)) as pool:
         for r in pool.map(one, range(repetitions)):
             if r is None:
                 pool.shutdown(wait=False, cancel_futures=True)

@@ -48,18 +48,18 @@ _LOGIT_LIMIT = 100.0
 # ---------------------------------------------------------------------------
 
 
-def _json_value(value):
+def json_value(value):
     """Turn numpy values and arrays into JSON-safe Python values.
 
     Non-finite floats (``inf``, ``nan``) become ``None`` because JSON has no
     spelling for them; the records carry explicit flags where it matters.
     """
     if isinstance(value, np.ndarray):
-        return _json_value(value.tolist())
+        return json_value(value.tolist())
     if isinstance(value, (list, tuple)):
-        return [_json_value(v) for v in value]
+        return [json_value(v) for v in value]
     if isinstance(value, dict):
-        return {str(k): _json_value(v) for k, v in value.items()}
+        return {str(k): json_value(v) for k, v in value.items()}
     if isinstance(value, (bool, np.bool_)):
         return bool(value)
     if isinstance(value, (int, np.integer)):
@@ -72,14 +72,14 @@ def _json_value(value):
     return value
 
 
-def _frozen_array(values, dtype=float) -> np.ndarray:
+def frozen_array(values, dtype=float) -> np.ndarray:
     """A private read-only copy, so a frozen record cannot be changed in place."""
     arr = np.array(values, dtype=dtype, copy=True)
     arr.setflags(write=False)
     return arr
 
 
-def _check_xy(X, y) -> tuple[np.ndarray, np.ndarray]:
+def check_xy(X, y) -> tuple[np.ndarray, np.ndarray]:
     """Check and convert a design matrix and a 0/1 outcome to float arrays."""
     X = np.asarray(X, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -110,7 +110,7 @@ def _check_xy(X, y) -> tuple[np.ndarray, np.ndarray]:
     return X, y
 
 
-def _check_full_rank(X: np.ndarray) -> None:
+def check_full_rank(X: np.ndarray) -> None:
     """Refuse a design whose columns are linearly dependent."""
     rank = np.linalg.matrix_rank(X)
     if rank < X.shape[1]:
@@ -120,7 +120,7 @@ def _check_full_rank(X: np.ndarray) -> None:
         )
 
 
-def _check_column(X: np.ndarray, column) -> int:
+def check_column(X: np.ndarray, column) -> int:
     k = X.shape[1]
     if isinstance(column, (bool, np.bool_)) or not isinstance(column, (int, np.integer)):
         raise ModelError(
@@ -135,7 +135,7 @@ def _check_column(X: np.ndarray, column) -> int:
     return column
 
 
-def _check_level(level) -> float:
+def check_level(level) -> float:
     level = float(level)
     if not 0.0 < level < 1.0:
         raise ModelError(
@@ -144,12 +144,12 @@ def _check_level(level) -> float:
     return level
 
 
-def _loglik(y: np.ndarray, eta: np.ndarray) -> float:
+def profile_loglik(y: np.ndarray, eta: np.ndarray) -> float:
     """Bernoulli log-likelihood on the logit scale: sum(y*eta - log(1 + e^eta))."""
     return float(np.sum(y * eta - np.logaddexp(0.0, eta)))
 
 
-def _column_scale(x: np.ndarray) -> float:
+def column_scale(x: np.ndarray) -> float:
     """Typical size of a column (standard deviation, or size of a constant)."""
     sd = float(np.std(x))
     if sd > 0:
@@ -158,7 +158,7 @@ def _column_scale(x: np.ndarray) -> float:
     return size if size > 0 else 1.0
 
 
-def _profile_interval(
+def profile_interval(
     deviance: Callable[[float], float],
     estimate: float,
     step: float,
@@ -258,7 +258,7 @@ def _logit_ml(
     """
     beta = np.array(start, dtype=float, copy=True)
     eta = offset + X @ beta if X.shape[1] else offset.copy()
-    llf = _loglik(y, eta)
+    llf = profile_loglik(y, eta)
     if X.shape[1] == 0:
         return beta, llf, True
     for _ in range(maxiter):
@@ -284,7 +284,7 @@ def _logit_ml(
         for _half in range(40):
             cand = beta + t * delta
             cand_eta = offset + X @ cand
-            cand_llf = _loglik(y, cand_eta)
+            cand_llf = profile_loglik(y, cand_eta)
             if cand_llf >= llf - slack:
                 break
             t *= 0.5
@@ -354,9 +354,9 @@ class ProfileInterval:
         """JSON-ready dictionary; infinite ends become ``None`` (see the flags)."""
         return {
             "column": self.column,
-            "estimate": _json_value(self.estimate),
-            "lower": _json_value(self.lower),
-            "upper": _json_value(self.upper),
+            "estimate": json_value(self.estimate),
+            "lower": json_value(self.lower),
+            "upper": json_value(self.upper),
             "level": self.level,
             "cutoff": self.cutoff,
             "lower_infinite": self.lower_infinite,
@@ -387,7 +387,7 @@ class ProfileTable:
         return {"intervals": [iv.as_dict() for iv in self.intervals]}
 
 
-def _interval_notices(
+def interval_notices(
     lower_inf: bool, upper_inf: bool, converged: bool, subject: str | None
 ) -> tuple[Notice, ...]:
     subjects = () if subject is None else (str(subject),)
@@ -451,11 +451,11 @@ def _profile_ml(
         return 2.0 * (llf_hat - llf)
 
     estimate = float(params_hat[column])
-    lower, upper, lo_inf, up_inf = _profile_interval(
+    lower, upper, lo_inf, up_inf = profile_interval(
         deviance,
         estimate,
         _wald_se(X, params_hat, column),
-        _column_scale(x_j),
+        column_scale(x_j),
         level,
     )
     from scipy.stats import chi2
@@ -471,7 +471,7 @@ def _profile_ml(
         upper_infinite=up_inf,
         method="profile likelihood",
         converged=bool(state["converged"]),
-        notices=_interval_notices(lo_inf, up_inf, bool(state["converged"]), name),
+        notices=interval_notices(lo_inf, up_inf, bool(state["converged"]), name),
     )
 
 
@@ -536,9 +536,9 @@ def profile_likelihood_ci(
     along the profile; each end is found with :func:`scipy.optimize.brentq`
     after stepping outward from the estimate to bracket it.
     """
-    X, y = _check_xy(X, y)
-    column = _check_column(X, column)
-    level = _check_level(level)
+    X, y = check_xy(X, y)
+    column = check_column(X, column)
+    level = check_level(level)
     params_hat, llf_hat = _check_params(X, params_hat, llf_hat)
     return _profile_ml(X, y, column, params_hat, llf_hat, level, name)
 
@@ -571,8 +571,8 @@ def profile_all(
     ProfileTable
         One :class:`ProfileInterval` per requested column, in order.
     """
-    X, y = _check_xy(X, y)
-    level = _check_level(level)
+    X, y = check_xy(X, y)
+    level = check_level(level)
     params_hat, llf_hat = _check_params(X, params_hat, llf_hat)
     if columns is None:
         columns = range(X.shape[1])
@@ -583,7 +583,7 @@ def profile_all(
         )
     out = []
     for c in columns:
-        c = _check_column(X, c)
+        c = check_column(X, c)
         out.append(
             _profile_ml(
                 X, y, c, params_hat, llf_hat, level, None if names is None else names[c]

@@ -1,4 +1,4 @@
-"""A report of one analysis for a committee: self-contained HTML or PDF.
+"""The content of a report of one analysis for a committee.
 
 The report holds aggregate figures only: no row-level values, no identifiers,
 no dates from the data.  Every count of people in its descriptive tables,
@@ -6,31 +6,23 @@ risk-group table and cross-tabulations passes through
 :mod:`twofold.core.privacy` (small counts hidden, with complementary
 suppression).  Record numbers of influential rows appear only when asked for.
 
-The content is built once as a list of blocks (headings, paragraphs, tables,
-figures) and then laid out as HTML (plots embedded as base64 PNG, inline
-CSS, no scripts, fonts, links or anything fetched from elsewhere) or as PDF
-(matplotlib's PdfPages: text pages with the plots drawn on them).  matplotlib
-is imported only inside the functions that draw, with the Agg canvas.
+:func:`build_report` builds the content once, as a list of blocks (headings,
+paragraphs, tables, figures).  A figure carries the kind of plot and the
+aggregate numbers it shows, not a drawing: laying the report out as HTML or
+PDF, and drawing its plots, happens outside the statistical core, in
+:mod:`twofold.render` (``twofold.render.report_writer.write_report`` writes
+the file).  Nothing here imports matplotlib or Qt.
 """
 
 from __future__ import annotations
 
-from twofold.paths import use_own_matplotlib_folder
-
-use_own_matplotlib_folder()  # before any matplotlib import: its cache goes to our own folder
-
-import base64
 import datetime as _dt
-import html
-import io
-import os
 import platform
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from twofold.core.errors import DataFileError
 from twofold.core.privacy import DEFAULT_THRESHOLD, SUPPRESSED, is_small, protect_table, show_count, suppression_note
 from twofold.core.text import fmt_num, fmt_or, fmt_p
 
@@ -104,7 +96,15 @@ class Table:
 
 @dataclass
 class Figure:
-    draw: object        # callable(ax)
+    """A plot: its kind and the aggregate numbers it shows, with a caption and a text alternative.
+
+    ``kind`` names the plot (``"roc"`` or ``"calibration"``); ``data`` holds
+    its numbers as keyword arguments of the drawing function of that kind in
+    :mod:`twofold.render.figures` (lists of floats, so the content stays plain).
+    """
+
+    kind: str
+    data: dict
     caption: str
     alt: str
 
@@ -136,67 +136,6 @@ class Report:
 
 
 # ---------------------------------------------------------------------------
-# plots (aggregate only)
-# ---------------------------------------------------------------------------
-
-
-def _draw_roc(fpr, tpr, auc):
-    fpr, tpr = np.asarray(fpr, dtype=float), np.asarray(tpr, dtype=float)
-
-    def draw(ax):
-        ax.plot([0, 1], [0, 1], linestyle="--", color="0.6", linewidth=1, label="no better than chance")
-        ax.plot(fpr, tpr, color="#1f5f8b", linewidth=1.8, label=f"this model (area {auc:.3f})")
-        ax.set_xlim(0, 1)
-        ax.set_ylim(0, 1)
-        ax.set_aspect("equal")
-        ax.set_xlabel("1 - specificity (share of non-events flagged)")
-        ax.set_ylabel("sensitivity (share of events flagged)")
-        ax.legend(loc="lower right", fontsize=8, frameon=False)
-        ax.grid(True, color="0.92")
-    return draw
-
-
-def _draw_calibration(pred, obs, lo, hi, hidden_groups: int):
-    pred, obs, lo, hi = (np.asarray(v, dtype=float) for v in (pred, obs, lo, hi))
-
-    def draw(ax):
-        top = float(max([0.05] + list(hi) + list(pred))) if len(pred) else 1.0
-        top = min(1.0, top * 1.1)
-        ax.plot([0, top], [0, top], linestyle="--", color="0.6", linewidth=1, label="predicted = observed")
-        if len(pred):
-            # Clipped: a Wilson bound can sit a rounding error beyond the observed share.
-            err = [np.clip(obs - lo, 0, None), np.clip(hi - obs, 0, None)]
-            ax.errorbar(pred, obs, yerr=err, fmt="o", color="#1f5f8b", ecolor="#7aa6c2", capsize=3, markersize=5,
-                        label="risk group (95% interval)")
-        ax.set_xlim(0, top)
-        ax.set_ylim(0, top)
-        ax.set_aspect("equal")
-        ax.set_xlabel("mean predicted risk in the group")
-        ax.set_ylabel("observed share with the event")
-        ax.legend(loc="upper left", fontsize=8, frameon=False)
-        ax.grid(True, color="0.92")
-        if hidden_groups:
-            ax.text(0.98, 0.02, f"{hidden_groups} group(s) with suppressed counts not shown", transform=ax.transAxes,
-                    ha="right", va="bottom", fontsize=7, color="0.35")
-    return draw
-
-
-def _png(draw, width=5.0, height=4.2) -> bytes:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure as MplFigure
-
-    fig = MplFigure(figsize=(width, height), dpi=110)
-    FigureCanvasAgg(fig)
-    ax = fig.add_subplot(1, 1, 1)
-    draw(ax)
-    fig.tight_layout()
-    buf = io.BytesIO()
-    # No "Software" entry: the PNG carries no text beyond the pixels.
-    fig.savefig(buf, format="png", metadata={"Software": None})
-    return buf.getvalue()
-
-
-# ---------------------------------------------------------------------------
 # building the content
 # ---------------------------------------------------------------------------
 
@@ -211,6 +150,10 @@ def _label(t: dict) -> tuple[str, str]:
 
 def _ci(lo, hi, f=fmt_or) -> str:
     return f"{f(lo)} to {f(hi)}"
+
+
+def _floats(values) -> list[float]:
+    return [float(v) for v in np.asarray(values, dtype=float)]
 
 
 def _pct(a, b) -> str:
@@ -410,7 +353,9 @@ def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshol
                  f"{fmt_num(hi, 3)} (DeLong et al. 1988): the chance that a randomly chosen person with the event "
                  "has a higher predicted risk than one without; 0.5 is a coin toss and 1 perfect."))
     roc = assessment.roc
-    rep.add(Figure(_draw_roc(roc.fpr, roc.tpr, a["auc"] or float("nan")), "ROC curve over all risk thresholds.",
+    rep.add(Figure("roc", {"fpr": _floats(roc.fpr), "tpr": _floats(roc.tpr),
+                           "auc": float(a["auc"] or float("nan"))},
+                   "ROC curve over all risk thresholds.",
                    f"ROC curve of the model; area under the curve {fmt_num(a['auc'], 3)}."))
     rep.add(Heading("Calibration", 3))
     cal_text = (f"Calibration slope {fmt_num(a['calibration_slope'], 3)} and calibration-in-the-large "
@@ -439,9 +384,12 @@ def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshol
                          if ok else SUPPRESSED])
             keep.append(ok)
         keep = np.array(keep, dtype=bool)
-        rep.add(Figure(_draw_calibration(np.asarray(groups.mean_predicted)[keep], np.asarray(groups.observed)[keep],
-                                         np.asarray(groups.ci_low)[keep], np.asarray(groups.ci_high)[keep],
-                                         int((~keep).sum())),
+        rep.add(Figure("calibration",
+                       {"mean_predicted": _floats(np.asarray(groups.mean_predicted)[keep]),
+                        "observed": _floats(np.asarray(groups.observed)[keep]),
+                        "ci_low": _floats(np.asarray(groups.ci_low)[keep]),
+                        "ci_high": _floats(np.asarray(groups.ci_high)[keep]),
+                        "hidden_groups": int((~keep).sum())},
                        f"Observed against predicted risk in {groups.groups_used} groups of predicted risk "
                        "(about equal numbers of people each), with 95% Wilson intervals; points on the dashed "
                        "line are perfectly calibrated.",
@@ -621,7 +569,7 @@ def _header(record: dict, data_path, frozen: bool) -> Report:
     if data_path is not None:
         p = Path(data_path)
         try:
-            from twofold.core.session import file_sha256
+            from twofold.core.storage import file_sha256
 
             digest = file_sha256(p)
         except OSError:
@@ -683,370 +631,3 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
              lad is not None)
     _closing(rep, record, notices, threshold)
     return rep
-
-
-# ---------------------------------------------------------------------------
-# HTML
-# ---------------------------------------------------------------------------
-
-_CSS = """
-body { font-family: system-ui, "Segoe UI", Helvetica, Arial, sans-serif; color: #1d1d1d; max-width: 58em;
-       margin: 2em auto; padding: 0 1.2em; line-height: 1.45; font-size: 15px; }
-h1 { font-size: 1.5em; margin-bottom: 0.2em; }
-h2 { font-size: 1.2em; border-bottom: 1px solid #c9c9c9; padding-bottom: 0.2em; margin-top: 1.8em; }
-h3 { font-size: 1.02em; margin-top: 1.3em; }
-table { border-collapse: collapse; margin: 0.6em 0 0.3em; font-size: 0.9em; }
-th, td { padding: 0.25em 0.7em; border-bottom: 1px solid #e2e2e2; vertical-align: top; }
-th { text-align: left; border-bottom: 1px solid #8a8a8a; font-weight: 600; }
-td.r, th.r { text-align: right; font-variant-numeric: tabular-nums; }
-caption { caption-side: bottom; text-align: left; font-size: 0.85em; color: #555; padding-top: 0.3em; }
-p.note, p.small, ul.small { font-size: 0.88em; color: #444; }
-p.caution { border-left: 4px solid #b07d00; background: #fbf6e9; padding: 0.5em 0.8em; }
-p.warning, ul.warning li { color: #7a2a00; }
-figure { margin: 1em 0; }
-figure img { max-width: 30em; width: 100%; height: auto; }
-figcaption { font-size: 0.85em; color: #555; }
-.subtitle { color: #555; margin-top: 0; }
-@media print { body { max-width: none; margin: 0; } h2 { page-break-after: avoid; } table, figure { page-break-inside: avoid; } }
-"""
-
-
-def render_html(rep: Report) -> str:
-    """The report as one self-contained HTML page (no scripts, links, fonts or external files)."""
-    e = html.escape
-    out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
-           f"<title>{e(rep.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
-           f"<h1>{e(rep.title)}</h1>", f'<p class="subtitle">{e(rep.subtitle)}</p>']
-    for b in rep.blocks:
-        if isinstance(b, Heading):
-            out.append(f"<h{b.level}>{e(b.text)}</h{b.level}>")
-        elif isinstance(b, Para):
-            out.append(f'<p class="{b.style}">{e(b.text)}</p>')
-        elif isinstance(b, Bullets):
-            out.append(f'<ul class="{b.style}">' + "".join(f"<li>{e(i)}</li>" for i in b.items) + "</ul>")
-        elif isinstance(b, Table):
-            al = b.alignment()
-            cls = lambda j: ' class="r"' if j < len(al) and al[j] == "r" else ""  # noqa: E731
-            parts = ["<table>"]
-            if b.caption:
-                parts.append(f"<caption>{e(b.caption)}</caption>")
-            parts.append("<thead><tr>" + "".join(f"<th{cls(j)}>{e(h)}</th>" for j, h in enumerate(b.headers))
-                         + "</tr></thead><tbody>")
-            for row in b.rows:
-                parts.append("<tr>" + "".join(f"<td{cls(j)}>{e(str(c))}</td>" for j, c in enumerate(row)) + "</tr>")
-            parts.append("</tbody></table>")
-            out.append("".join(parts))
-        elif isinstance(b, Figure):
-            data = base64.b64encode(_png(b.draw)).decode("ascii")
-            out.append(f'<figure><img src="data:image/png;base64,{data}" alt="{e(b.alt)}">'
-                       f"<figcaption>{e(b.caption)}</figcaption></figure>")
-    out += ["</body>", "</html>"]
-    return "\n".join(out) + "\n"
-
-
-# ---------------------------------------------------------------------------
-# PDF
-# ---------------------------------------------------------------------------
-
-_PAGE_W, _PAGE_H = 8.27 * 72, 11.69 * 72   # A4 in points
-_MARGIN = 54.0
-_STYLES = {  # size, weight, colour
-    "title": (15, "bold", "#1d1d1d"), "h2": (12.5, "bold", "#1d1d1d"), "h3": (10.5, "bold", "#1d1d1d"),
-    "normal": (9, "normal", "#1d1d1d"), "note": (8.3, "normal", "#444444"), "small": (7.8, "normal", "#444444"),
-    "caution": (9, "normal", "#6b4c00"), "warning": (9, "normal", "#7a2a00"), "cell": (7.6, "normal", "#1d1d1d"),
-    "head": (7.6, "bold", "#1d1d1d"), "caption": (7.4, "normal", "#555555"), "footer": (7, "normal", "#777777"),
-}
-
-
-class _Pdf:
-    """A tiny top-to-bottom layout engine on matplotlib figures, one per A4 page."""
-
-    def __init__(self, pages, footer: str):
-        self.pages = pages
-        self.footer = footer
-        self.fig = None
-        self.y = 0.0
-        self.page_no = 0
-        self._fonts = {}
-        self._advance = {}
-        self.new_page()
-
-    # ---- text measurement ---------------------------------------------
-    def width(self, text: str, style: str) -> float:
-        """Width in points: the sum of the glyphs' unhinted advances (kerning ignored, under 1%)."""
-        from matplotlib.font_manager import FontProperties, findfont, get_font
-        from matplotlib.ft2font import LoadFlags
-
-        size, weight, _ = _STYLES[style]
-        font = self._fonts.get((size, weight))
-        if font is None:
-            font = get_font(findfont(FontProperties(family="DejaVu Sans", weight=weight)))
-            self._fonts[(size, weight)] = font
-        total = 0.0
-        for ch in text:
-            key = (ch, size, weight)
-            adv = self._advance.get(key)
-            if adv is None:
-                font.set_size(size, 72)
-                glyph = font.load_char(ord(ch) if ch not in "\n\t" else 32, flags=LoadFlags.NO_HINTING)
-                adv = self._advance[key] = glyph.linearHoriAdvance / 65536.0
-            total += adv
-        return total * 1.01
-
-    def wrap(self, text: str, style: str, width: float) -> list[str]:
-        lines = []
-        for para in str(text).split("\n"):
-            words = para.split(" ")
-            line = ""
-            for word in words:
-                trial = word if not line else f"{line} {word}"
-                if self.width(trial, style) <= width:
-                    line = trial
-                    continue
-                if line:
-                    lines.append(line)
-                # A word longer than the line (a checksum) is cut where it must.
-                while self.width(word, style) > width and len(word) > 1:
-                    k = len(word)
-                    while k > 1 and self.width(word[:k], style) > width:
-                        k -= 1
-                    lines.append(word[:k])
-                    word = word[k:]
-                line = word
-            lines.append(line)
-        return lines
-
-    # ---- pages --------------------------------------------------------
-    def new_page(self):
-        from matplotlib.figure import Figure as MplFigure
-
-        if self.fig is not None:
-            self.finish_page()
-        self.fig = MplFigure(figsize=(_PAGE_W / 72, _PAGE_H / 72))
-        self.page_no += 1
-        self.y = _MARGIN
-
-    def finish_page(self):
-        self.text_at(_MARGIN, _PAGE_H - _MARGIN / 2, f"{self.footer} - page {self.page_no}", "footer")
-        self.pages.savefig(self.fig)
-        self.fig = None
-
-    def need(self, height: float):
-        if self.y + height > _PAGE_H - _MARGIN:
-            self.new_page()
-
-    def text_at(self, x: float, y: float, text: str, style: str, ha="left"):
-        size, weight, colour = _STYLES[style]
-        self.fig.text(x / _PAGE_W, 1 - y / _PAGE_H, text, fontsize=size, fontweight=weight, color=colour,
-                      va="top", ha=ha, family="DejaVu Sans")
-
-    def line(self, x0, x1, y, colour="0.55", width=0.6):
-        from matplotlib.lines import Line2D
-
-        self.fig.add_artist(Line2D([x0 / _PAGE_W, x1 / _PAGE_W], [1 - y / _PAGE_H] * 2, color=colour,
-                                   linewidth=width, transform=self.fig.transFigure))
-
-    # ---- blocks -------------------------------------------------------
-    def paragraph(self, text: str, style: str = "normal", indent: float = 0.0, after: float = 5.0, bullet=False):
-        size = _STYLES[style][0]
-        lh = size * 1.35
-        width = _PAGE_W - 2 * _MARGIN - indent - (10 if bullet else 0)
-        lines = self.wrap(text, style, width)
-        for k, ln in enumerate(lines):
-            self.need(lh)
-            if bullet and k == 0:
-                self.text_at(_MARGIN + indent, self.y, "-", style)
-            self.text_at(_MARGIN + indent + (10 if bullet else 0), self.y, ln, style)
-            self.y += lh
-        self.y += after
-
-    def heading(self, text: str, level: int):
-        style = "h2" if level <= 2 else "h3"
-        size = _STYLES[style][0]
-        self.need(size * 1.4 + 90)  # keep a heading with what follows it
-        self.y += 6 if level <= 2 else 3
-        self.paragraph(text, style, after=2)
-        if level <= 2:
-            self.line(_MARGIN, _PAGE_W - _MARGIN, self.y - 1, "0.7")
-            self.y += 3
-
-    def table(self, t: Table):
-        avail = _PAGE_W - 2 * _MARGIN
-        pad = 6.0
-        ncol = len(t.headers)
-        natural, minimal = [], []
-        al = t.alignment()
-        for j in range(ncol):
-            keep_whole = j < len(al) and al[j] == "r"
-            cells = [(str(t.headers[j]), "head")] + [(str(r[j]), "cell") for r in t.rows]
-            natural.append(max(self.width(c, st) for c, st in cells) + pad + 1.0)
-            # Short cells of number columns ("1.013 to 1.025", "below 0.001") are kept on one line.
-            minimal.append(max(self.width(w, st) for c, st in cells
-                               for w in ([c] if keep_whole and len(c) <= 16 and st == "cell" else c.split(" ")))
-                           + pad + 1.0)
-        if sum(natural) <= avail:
-            widths = natural
-        elif sum(minimal) <= avail:
-            # Every word fits whole; the room left goes to the columns that want it most.
-            spare = avail - sum(minimal)
-            want = [n - m for n, m in zip(natural, minimal)]
-            total = sum(want) or 1.0
-            widths = [m + spare * w / total for m, w in zip(minimal, want)]
-        else:
-            # Short columns (numbers) keep their width; the long-worded ones share the rest and break words.
-            short = [m <= 70.0 for m in minimal]
-            rest = avail - sum(m for m, sh in zip(minimal, short) if sh)
-            long_total = sum(m for m, sh in zip(minimal, short) if not sh) or 1.0
-            widths = [m if sh else max(30.0, m * rest / long_total) for m, sh in zip(minimal, short)]
-        al = t.alignment()
-        lh = _STYLES["cell"][0] * 1.3
-
-        def row_lines(cells, style):
-            out = []
-            for j, c in enumerate(cells):
-                c = str(c)
-                room = max(widths[j] - pad, 10)
-                out.append([c] if len(c) <= 16 and self.width(c, style) <= room + 0.5 else self.wrap(c, style, room))
-            return out
-
-        def draw_row(lines, style):
-            height = max(len(ls) for ls in lines) * lh + 3
-            x = _MARGIN
-            for j, ls in enumerate(lines):
-                for k, ln in enumerate(ls):
-                    if al[j] == "r" if j < len(al) else False:
-                        self.text_at(x + widths[j] - pad / 2, self.y + k * lh, ln, style, ha="right")
-                    else:
-                        self.text_at(x + pad / 2 - 3, self.y + k * lh, ln, style)
-                x += widths[j]
-            self.y += height
-
-        head = row_lines(t.headers, "head")
-        head_h = max(len(ls) for ls in head) * lh + 3
-        total_w = sum(widths)
-
-        def draw_head():
-            draw_row(head, "head")
-            self.line(_MARGIN, _MARGIN + total_w, self.y - 1.5)
-
-        first = row_lines(t.rows[0], "cell") if t.rows else [[""]]
-        self.need(head_h + max(len(ls) for ls in first) * lh + 6)
-        draw_head()
-        for row in t.rows:
-            lines = row_lines(row, "cell")
-            h = max(len(ls) for ls in lines) * lh + 3
-            if self.y + h > _PAGE_H - _MARGIN:
-                self.new_page()
-                draw_head()
-            draw_row(lines, "cell")
-        self.line(_MARGIN, _MARGIN + total_w, self.y - 1.5, "0.8", 0.4)
-        self.y += 3
-        if t.caption:
-            self.paragraph(t.caption, "caption", after=6)
-        else:
-            self.y += 5
-
-    def figure(self, f: Figure):
-        w, h, below = 250.0, 200.0, 34.0   # axes size, and room under them for ticks and the axis label
-        self.need(h + below + 30)
-        bottom = self.y + h
-        ax = self.fig.add_axes([(_MARGIN + 50) / _PAGE_W, 1 - bottom / _PAGE_H, w / _PAGE_W, (h - 10) / _PAGE_H])
-        f.draw(ax)
-        for item in [ax.xaxis.label, ax.yaxis.label] + ax.get_xticklabels() + ax.get_yticklabels():
-            item.set_fontsize(7.5)
-        self.y = bottom + below
-        self.paragraph(f.caption, "caption", after=8)
-
-
-def render_pdf(rep: Report, path: Path) -> None:
-    """Lay the report out on A4 pages and write it as PDF (text kept as text, plots as vector drawings)."""
-    import matplotlib
-    from matplotlib.backends.backend_pdf import PdfPages
-
-    from twofold import __version__
-
-    meta = {"Title": rep.title, "Creator": f"Twofold {__version__}",
-            "Producer": f"Twofold {__version__} with matplotlib {matplotlib.__version__}", "CreationDate": None}
-    # TrueType fonts (type 42) keep the text selectable and searchable.
-    with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}), \
-            PdfPages(path, metadata=meta) as pages:
-        pdf = _Pdf(pages, "Twofold report: " + rep.title)
-        pdf.paragraph(rep.title, "title", after=2)
-        pdf.paragraph(rep.subtitle, "note", after=8)
-        for b in rep.blocks:
-            if isinstance(b, Heading):
-                pdf.heading(b.text, b.level)
-            elif isinstance(b, Para):
-                pdf.paragraph(b.text, b.style)
-            elif isinstance(b, Bullets):
-                for item in b.items:
-                    pdf.paragraph(item, b.style if b.style in _STYLES else "normal", after=2, bullet=True)
-                pdf.y += 4
-            elif isinstance(b, Table):
-                pdf.table(b)
-            elif isinstance(b, Figure):
-                pdf.figure(b)
-        pdf.finish_page()
-
-
-# ---------------------------------------------------------------------------
-# entry point
-# ---------------------------------------------------------------------------
-
-
-def _data_path(result):
-    return result.data if getattr(result, "frozen", False) else result.spec.data
-
-
-def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESHOLD,
-                 include_records: bool = False) -> Path:
-    """Write the report of an analysis as ``.html`` or ``.pdf`` (chosen by the suffix).
-
-    Parameters
-    ----------
-    result : AnalysisResult or FrozenResult
-    path : path
-        Ends in .html/.htm or .pdf.
-    ladder : Ladder or list of lists of str, optional
-    suppress_below : int
-        Counts of 1 up to this many people are suppressed (default 10).
-    include_records : bool
-        Also list the row numbers of the most influential records.
-
-    Raises
-    ------
-    DataFileError
-        Another suffix, the data file itself as the target, or a folder that
-        cannot be written.
-    """
-    path = Path(os.fspath(path))
-    data = Path(os.fspath(_data_path(result)))
-    try:
-        same = path.exists() and data.exists() and os.path.samefile(path, data)
-    except OSError:
-        same = False
-    if same:
-        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
-                            "so choose another file name.")
-    suffix = path.suffix.lower()
-    if suffix not in (".html", ".htm", ".pdf"):
-        raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{path.suffix or path.name}'; "
-                            "end the file name with .html or .pdf.")
-    rep = build_report(result, ladder=ladder, suppress_below=suppress_below, include_records=include_records)
-    try:
-        if suffix == ".pdf":
-            tmp = path.with_name(f".{path.name}.tmp")
-            try:
-                render_pdf(rep, tmp)
-                os.replace(tmp, path)
-            finally:
-                if tmp.exists():
-                    tmp.unlink()
-        else:
-            from twofold.core.session import atomic_write_text
-
-            atomic_write_text(path, render_html(rep))
-    except OSError as exc:
-        raise DataFileError(f"Could not write the report {path} ({exc.strerror}); "
-                            "choose a folder you can write to.") from None
-    return path

@@ -32,6 +32,11 @@ other format that can run code when read).  Its fields:
                      influential records by row number)
 ``ladder``           the models tried, each a list of predictors
 ``chosen``           index (from 0) of the chosen model in ``ladder``
+``parents``          per model of ``ladder``, the index of the model it was
+                     built from (null for the first); missing: each model was
+                     built from the one before it
+``validation_result`` the bootstrap validation shown when saved (the figures
+                     of ``validate`` and ``seed``), or null
 ``model``            the chosen model as numbers: ``outcome``, ``event``,
                      ``method``, ``names``, ``coefficients``, ``covariance``
                      (null where not estimable) and ``terms`` (per predictor:
@@ -44,24 +49,25 @@ superset of the spec it was made from.  Fields added after version 1 was
 first written (``rows_complete_in``, ``report``) take their defaults when a
 file lacks them, which is what the files saved before them meant.
 
-:func:`load_session` refuses anything else in one sentence: other types,
-unknown keys, numbers too large or not finite, strings and lists beyond
-generous caps, nesting deeper than the format uses, text that is not JSON.
+:func:`~twofold.core.storage.load_session` refuses anything else in one
+sentence: other types, unknown keys, numbers too large or not finite, strings
+and lists beyond generous caps, nesting deeper than the format uses, text
+that is not JSON.
+
+This module holds the schema: making a session from an analysis, turning it
+back into a spec and a model, and checking it.  Reading and writing the files
+is in :mod:`twofold.core.storage`, and the autosave with its recovery after
+a crash in :mod:`twofold.core.autosave`; their functions can still be
+imported from here.
 """
 
 from __future__ import annotations
 
 import datetime as _dt
-import hashlib
-import json
 import math
 import os
 import re
-import sys
-import tempfile
 from pathlib import Path
-
-import numpy as np
 
 from twofold.core.errors import ColumnError, DataFileError, Notice
 from twofold.core.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
@@ -115,7 +121,9 @@ CHECKED_SPEC_KEYS = ("data", "outcome", "predictors", "event", "smaller", "refer
                      "profile_ci", "threshold", "splines", "interactions", "validate", "seed", "rows_complete_in")
 KEYS = ("format", "schema_version", "saved_by", "saved_at",
         *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model",
-        "report")
+        "report", "parents", "validation_result")
+#: Fields added after version 1 was first written, with what a file without them means.
+LATER_DEFAULTS = {"parents": None, "validation_result": None}
 #: The report's options and what a session without them means.
 REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False}
 TERM_KEYS = ("column", "kind", "levels", "reference", "range", "knots", "of")
@@ -126,32 +134,15 @@ class SessionFileError(DataFileError):
     """A session file that cannot be used, explained in one sentence."""
 
 
+def session_file_error(path, what: str) -> SessionFileError:
+    """The one-sentence error for a session file that cannot be used because of ``what``."""
+    return SessionFileError(f"The session file {Path(path).name} cannot be used: {what}; "
+                            "open the data file and save the session again from Twofold.")
+
+
 # ---------------------------------------------------------------------------
 # making a session
 # ---------------------------------------------------------------------------
-
-
-_DIGESTS: dict = {}  # (path, size, mtime_ns) -> digest, for autosaves after every tick
-
-
-def file_sha256(path, reuse: bool = False) -> str:
-    """SHA-256 of a file's bytes, read in chunks (the file is opened read-only).
-
-    With ``reuse``, a digest computed earlier in this process for the same
-    path, size and modification time is returned without reading the file
-    again: autosaving after every tick must not re-read a large extract
-    (about 1 s per GB).  Checks of whether the data changed never reuse.
-    """
-    st = os.stat(path)
-    key = (str(Path(path).resolve()), st.st_size, st.st_mtime_ns)
-    if reuse and key in _DIGESTS:
-        return _DIGESTS[key]
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    _DIGESTS[key] = h.hexdigest()
-    return _DIGESTS[key]
 
 
 def _rungs_of(ladder) -> list[list[str]]:
@@ -181,6 +172,7 @@ def session_from_result(result, ladder=None, report=None) -> dict:
     """
     from twofold import __version__
     from twofold.core.predict import frozen_model
+    from twofold.core.storage import file_sha256
     from twofold.core.summary import plain_value
 
     spec, study, fit = result.spec, result.study, result.fit
@@ -333,6 +325,8 @@ def check_data(session: dict, path=None, frame=None) -> list[Notice]:
     frame : pandas.DataFrame, optional
         The file already read (saves reading it again for its columns).
     """
+    from twofold.core.storage import file_sha256
+
     path = Path(os.fspath(path if path is not None else session["data"]))
     require_data_file(path)
     notices = []
@@ -379,177 +373,8 @@ def missing_columns_error(notices, path) -> ColumnError | None:
 
 
 # ---------------------------------------------------------------------------
-# writing
+# checking
 # ---------------------------------------------------------------------------
-
-
-def _umask() -> int:
-    """The process umask, read without changing it where the system allows (Linux), else 0o022."""
-    try:
-        with open("/proc/self/status", encoding="ascii") as fh:
-            for line in fh:
-                if line.startswith("Umask:"):
-                    return int(line.split()[1], 8)
-    except (OSError, ValueError):
-        pass
-    return 0o022
-
-
-def atomic_write_text(path, text: str, private: bool = False) -> None:
-    """Write through a temporary file in the same folder, then os.replace: never a half-written file.
-
-    The file gets ordinary permissions (0o666 less the umask), or owner-only
-    ones when ``private`` (autosaves).
-    """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        if not sys.platform.startswith("win"):
-            os.chmod(tmp, 0o600 if private else 0o666 & ~_umask())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
-def _same_file(a: Path, b: Path) -> bool:
-    try:
-        return a.exists() and b.exists() and os.path.samefile(a, b)
-    except OSError:
-        return False
-
-
-def save_session(session: dict, path) -> Path:
-    """Write a session file atomically (temporary file, then ``os.replace``).
-
-    A data path inside the session file's folder is written relative to it,
-    so the folder can be moved as a whole.
-
-    Raises
-    ------
-    SessionFileError
-        When the session is not valid, or ``path`` is the data file.
-    DataFileError
-        When the folder cannot be written.
-    """
-    path = Path(os.fspath(path))
-    validate_session(session)
-    data = Path(session["data"])
-    if _same_file(path, data) or (not data.is_absolute() and _same_file(path, path.parent / data)):
-        raise SessionFileError(f"{path} is the data file itself; Twofold never writes to the data, "
-                               "so choose another file name for the session.")
-    out = dict(session)
-    try:
-        rel = data.resolve().relative_to(path.parent.resolve())
-        out["data"] = rel.as_posix()
-    except (ValueError, OSError):
-        pass
-    text = json.dumps(out, indent=1, ensure_ascii=False, allow_nan=False)
-    try:
-        atomic_write_text(path, text + "\n")
-    except OSError as exc:
-        raise DataFileError(f"Could not write the session file {path} ({exc.strerror}); "
-                            "choose a folder you can write to.") from None
-    return path
-
-
-# ---------------------------------------------------------------------------
-# reading, strictly
-# ---------------------------------------------------------------------------
-
-
-def _bad(path, what: str) -> SessionFileError:
-    return SessionFileError(f"The session file {Path(path).name} cannot be used: {what}; "
-                            "open the data file and save the session again from Twofold.")
-
-
-def _max_depth(text: str) -> int:
-    """Deepest nesting of [ and { outside strings, without recursion."""
-    stripped = re.sub(r'"(?:[^"\\]|\\.)*"', '""', text)
-    brackets = np.frombuffer(re.sub(r"[^\[\]{}]", "", stripped).encode("ascii"), dtype=np.uint8)
-    if not brackets.size:
-        return 0
-    step = np.where((brackets == ord("[")) | (brackets == ord("{")), 1, -1)
-    return int(np.cumsum(step).max())
-
-
-def _parse(text: str, path) -> object:
-    def no_constant(name):
-        raise _bad(path, f"it holds {name}, which is not a number")
-
-    def checked_int(digits: str):
-        if len(digits.lstrip("-")) > MAX_INTEGER_DIGITS:
-            raise _bad(path, f"it holds a whole number of {len(digits.lstrip('-'))} digits, far too large")
-        return int(digits)
-
-    def checked_float(s: str):
-        x = float(s)
-        if not math.isfinite(x) or abs(x) > MAX_ABS_NUMBER:
-            raise _bad(path, f"it holds the number {s[:30]}, which is too large")
-        return x
-
-    def no_duplicates(pairs):
-        out = {}
-        for k, v in pairs:
-            if k in out:
-                raise _bad(path, f"the key '{k[:40]}' appears twice")
-            out[k] = v
-        return out
-
-    return json.loads(text, parse_constant=no_constant, parse_int=checked_int, parse_float=checked_float,
-                      object_pairs_hook=no_duplicates)
-
-
-def load_session(path) -> dict:
-    """Read and check a session file; nothing in it is ever run.
-
-    Relative data paths are resolved against the session file's folder.  The
-    data file itself is not opened here.
-
-    Raises
-    ------
-    SessionFileError
-        With one sentence saying what is wrong, for any file that is not a
-        valid session of this schema version.
-    """
-    path = Path(os.fspath(path))
-    if not path.is_file():
-        raise SessionFileError(f"The session file {path} does not exist or is not a file; check the name and folder.")
-    size = path.stat().st_size
-    if size > MAX_FILE_BYTES:
-        raise _bad(path, f"it is {size / 1e6:.0f} MB, far larger than any session")
-    with open(path, "rb") as fh:
-        raw = fh.read(MAX_FILE_BYTES + 1)
-    if raw[:2] in (b"\x80\x02", b"\x80\x03", b"\x80\x04", b"\x80\x05") or raw[:1] == b"\x80":
-        raise _bad(path, "it is a Python pickle, which Twofold never reads because loading one can run code")
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise _bad(path, "it is not text (a session is JSON text)") from None
-    if not text.strip():
-        raise _bad(path, "it is empty")
-    if _max_depth(text) > MAX_DEPTH:
-        raise _bad(path, f"it nests lists or objects more than {MAX_DEPTH} deep, which no session does")
-    try:
-        session = _parse(text, path)
-    except SessionFileError:
-        raise
-    except (ValueError, RecursionError) as exc:
-        where = f" (line {exc.lineno}, column {exc.colno})" if isinstance(exc, json.JSONDecodeError) else ""
-        raise _bad(path, f"it is not valid JSON{where}") from None
-    validate_session(session, path)
-    data = Path(session["data"])
-    if not data.is_absolute():
-        session["data"] = str((path.parent / data).resolve())
-    return session
 
 
 def _type_name(v) -> str:
@@ -564,7 +389,7 @@ class _Checker:
         self.path = path or "(unsaved)"
 
     def fail(self, what):
-        raise _bad(self.path, what)
+        raise session_file_error(self.path, what)
 
     def text(self, v, where, cap=MAX_STRING, empty=False):
         if not isinstance(v, str):
@@ -663,6 +488,8 @@ def validate_session(session, path=None) -> dict:
         # A spec option added after a session was written takes its default (no effect).
         session.setdefault(key, default)
     session.setdefault("report", dict(REPORT_DEFAULTS))  # saved before reports had options: the defaults
+    for key, default in LATER_DEFAULTS.items():
+        session.setdefault(key, default)
     c.fields(session, KEYS, "it has", "the field '{}' is missing")
 
     c.text(session["saved_by"], "saved_by", 200)
@@ -736,6 +563,23 @@ def validate_session(session, path=None) -> dict:
     for rung in ladder:
         c.names(rung, "ladder")
     chosen = c.integer(session["chosen"], "chosen", 0, len(ladder) - 1)
+    parents = session["parents"]
+    if parents is not None:
+        if not isinstance(parents, list) or len(parents) != len(ladder):
+            c.fail("'parents' should list one entry per model of the ladder")
+        for i, p in enumerate(parents):
+            if p is not None:
+                c.integer(p, "parents", 0, max(i - 1, 0))
+                if p >= i:
+                    c.fail("'parents' names a model built after the one it says it came from")
+    if session["validation_result"] is not None:
+        v = c.obj(session["validation_result"], "validation_result")
+        if len(v) > 40:
+            c.fail("'validation_result' has more entries than allowed")
+        for k, x in v.items():
+            c.name(k, "a key of 'validation_result'")
+            if x is not None:
+                c.number(x, f"validation_result of {k[:40]}")
     if set(ladder[chosen]) != set(predictors):
         c.fail("the chosen model of the ladder does not have the session's predictors")
     if outcome in predictors:
@@ -865,110 +709,22 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
 
 
 # ---------------------------------------------------------------------------
-# autosave
+# names that moved to twofold.core.storage and twofold.core.autosave
 # ---------------------------------------------------------------------------
 
-
-def _autosave_dir() -> Path:
-    from twofold.paths import app_dir
-
-    folder = app_dir() / "autosave"
-    folder.mkdir(parents=True, exist_ok=True)
-    return folder
+#: Reading and writing files, in twofold.core.storage.
+_STORAGE_NAMES = ("atomic_write_text", "file_sha256", "load_session", "save_session")
+#: The autosave and recovery, in twofold.core.autosave.
+_AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "recoverable", "start_autosave")
 
 
-def autosave_path(pid: int | None = None) -> Path:
-    """Where this process (or process ``pid``) keeps its autosaved session."""
-    return _autosave_dir() / f"session-{os.getpid() if pid is None else int(pid)}.json"
-
-
-def _lock_path(pid: int | None = None) -> Path:
-    return _autosave_dir() / f"running-{os.getpid() if pid is None else int(pid)}.lock"
-
-
-def start_autosave() -> Path:
-    """Mark this process as running (a small lock file with its pid); call once at start."""
-    lock = _lock_path()
-    atomic_write_text(lock, json.dumps({"pid": os.getpid(), "started": _dt.datetime.now(
-        _dt.timezone.utc).replace(microsecond=0).isoformat()}) + "\n", private=True)
-    return lock
-
-
-def autosave(session: dict) -> Path:
-    """Save the session to this process's autosave file (atomically), marking the process as running."""
-    if not _lock_path().exists():
-        start_autosave()
-    path = autosave_path()
-    validate_session(session)
-    atomic_write_text(path, json.dumps(session, indent=1, ensure_ascii=False, allow_nan=False) + "\n", private=True)
-    return path
-
-
-def clean_exit() -> None:
-    """On a clean exit: remove this process's autosave and its lock."""
-    for p in (autosave_path(), _lock_path()):
-        try:
-            p.unlink()
-        except FileNotFoundError:
-            pass
-
-
-def _pid_alive(pid: int) -> bool:
-    """Whether a process with this id is running (never sends it a signal that acts)."""
-    if pid <= 0:
-        return False
-    if sys.platform.startswith("win"):
-        import ctypes
-
-        kernel32 = ctypes.windll.kernel32  # type: ignore[attr-defined]
-        handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
-        if not handle:
-            return False
-        try:
-            code = ctypes.c_ulong()
-            ok = kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
-            return bool(ok) and code.value == 259  # STILL_ACTIVE
-        finally:
-            kernel32.CloseHandle(handle)
-    try:
-        os.kill(pid, 0)  # signal 0: existence check only
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
-
-
-def recoverable() -> Path | None:
-    """The newest autosave left by a Twofold process that did not close cleanly, or None.
-
-    An autosave belongs to a live process when that process's lock file is
-    present and the pid is running; those (and this process's own) are left
-    alone.
-    """
-    found = []
-    for p in _autosave_dir().glob("session-*.json"):
-        m = re.fullmatch(r"session-(\d+)\.json", p.name)
-        if not m:
-            continue
-        pid = int(m.group(1))
-        if pid == os.getpid():
-            continue
-        if _lock_path(pid).exists() and _pid_alive(pid):
-            continue
-        found.append(p)
-    if not found:
-        return None
-    return max(found, key=lambda p: p.stat().st_mtime)
-
-
-def discard_autosave(path) -> None:
-    """Remove a recovered (or declined) autosave and the lock of the process that left it."""
-    path = Path(path)
-    m = re.fullmatch(r"session-(\d+)\.json", path.name)
-    targets = [path] + ([_lock_path(int(m.group(1)))] if m else [])
-    for p in targets:
-        try:
-            p.unlink()
-        except FileNotFoundError:
-            pass
+def __getattr__(name: str):
+    """Find the reading, writing and autosave functions in their own modules, so older imports keep working."""
+    # Imported here, not at the top: those modules import this one.
+    if name in _STORAGE_NAMES:
+        from twofold.core import storage as module
+    elif name in _AUTOSAVE_NAMES:
+        from twofold.core import autosave as module
+    else:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    return getattr(module, name)

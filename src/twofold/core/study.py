@@ -137,6 +137,25 @@ class Study:
         self._blocks = {k: v for k, v in self._blocks.items() if not touches(k[0])}
         self._aliased = {k: v for k, v in self._aliased.items() if not any(touches(t) for t in k[0])}
 
+    def settings(self) -> dict:
+        """The user's choices on this study (roles, references, curves, outcome and event), to restore later."""
+        return {"columns": dict(self._columns), "references": dict(self._references),
+                "splines": dict(self._splines), "outcome": self.outcome, "event": self.event}
+
+    def restore_settings(self, settings: dict) -> None:
+        """Put back choices taken by :meth:`settings` (undo); cached encodings are rebuilt as needed."""
+        self._columns = dict(settings["columns"])
+        self._references = dict(settings["references"])
+        self._splines = dict(settings["splines"])
+        self._blocks.clear()
+        self._aliased.clear()
+        if settings["outcome"] is None:
+            self.outcome, self.event, self.outcome_levels, self._y_all = None, None, [], None
+        elif (settings["outcome"], settings["event"]) != (self.outcome, self.event):
+            self.set_outcome(settings["outcome"], settings["event"], guess=False)
+        self.events.roles.emit(None)
+        self.events.outcome.emit(self.outcome)
+
     def candidates(self) -> list[str]:
         """Columns offered as predictors: those with a predictor role, other than the outcome."""
         return [n for n, c in self._columns.items() if c.role.is_predictor and n != self.outcome]

@@ -17,7 +17,7 @@ when the panel closes.
 
 from __future__ import annotations
 
-from PySide6.QtCore import QObject, Qt, QTimer, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (
     QComboBox, QDialog, QDialogButtonBox, QFormLayout, QFrame, QHBoxLayout, QLabel, QLineEdit, QPushButton,
     QScrollArea, QSizePolicy, QVBoxLayout, QWidget,
@@ -31,28 +31,21 @@ from twofold.gui import style
 NOT_KEPT = "The values typed here are not saved anywhere and are cleared when this panel closes."
 
 
-class _Relay(QObject):
-    """Emitted on the worker thread; delivered (queued) on the GUI thread."""
-
-    model = Signal(int, object)
-    prediction = Signal(int, object)
-
-
-def _model_job(s):
+def _model_job(ws):
     """The model shown as numbers, with a few words about it (worker thread)."""
     from twofold.core.errors import TwofoldError
     from twofold.core.predict import frozen_model
 
-    fit = s._shown_fit() if s._study is not None else None
+    fit = ws.shown_fit() if ws.study is not None else None
     if fit is None:
         return None
-    study, ladder = s._study, s._ladder
+    study, ladder = ws.study, ws.ladder
     try:
         model = frozen_model(fit, study.outcome, study.event)
     except TwofoldError as exc:
         return {"problem": str(exc)}
     return {"model": model, "rung": ladder.current, "source": study.source, "rows": int(fit.n_used),
-            "penalised": bool(getattr(s._choice, "penalised", False))}
+            "penalised": bool(ws.penalised)}
 
 
 def _predict_job(model, values):
@@ -105,9 +98,6 @@ class RiskCalculator(QDialog):
         self._latest = 0
         self._latest_model = 0
         self._stale = True
-        self._relay = _Relay()
-        self._relay.model.connect(self._on_model)
-        self._relay.prediction.connect(self._on_prediction)
         self.setWindowTitle("Twofold: risk for one patient")
         self.setAccessibleName("Risk for one patient")
         self.setModal(False)
@@ -195,17 +185,12 @@ class RiskCalculator(QDialog):
         if self.session.last_results is None:
             self._set_model(None)
             return None
-        s = self.session
-        job_id = s._next_id + 1  # the id _submit gives next (only the GUI thread submits)
-        relay = self._relay
-
-        def job():
-            relay.model.emit(job_id, _model_job(s))
-            return {}
-
-        self._latest_model = job_id
+        asked = {}
+        job_id = self.session.call("calculator-model", _model_job, coalesce="calculator-model",
+                                   done=lambda payload: self._on_model(asked["id"], payload))
+        asked["id"] = self._latest_model = job_id
         self._stale = False
-        return s._submit("calculator-model", job, facets=(), coalesce="calculator-model")
+        return job_id
 
     def _on_model(self, job_id: int, payload) -> None:
         if job_id != self._latest_model:
@@ -341,16 +326,11 @@ class RiskCalculator(QDialog):
             self._latest += 1
             self._show_answer(None, "Fill in every value to see the risk (still empty: " + ", ".join(empty) + ").")
             return None
-        s = self.session
-        job_id = s._next_id + 1
-        relay, model = self._relay, self.model
-
-        def job():
-            relay.prediction.emit(job_id, _predict_job(model, values))
-            return {}
-
-        self._latest = job_id
-        return s._submit("calculator", job, facets=(), coalesce="calculator")
+        model, asked = self.model, {}
+        job_id = self.session.call("calculator", lambda ws: _predict_job(model, values), coalesce="calculator",
+                                   done=lambda answer: self._on_prediction(asked["id"], answer))
+        asked["id"] = self._latest = job_id
+        return job_id
 
     def _on_prediction(self, job_id: int, answer) -> None:
         if job_id != self._latest:

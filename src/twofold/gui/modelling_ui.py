@@ -27,30 +27,19 @@ INTERACTION_NOTE = ("Once two predictors interact, the odds ratio of one depends
                     "odds ratios in this table instead.")
 
 
-# ---- worker-side jobs (run on the core worker thread; no Qt here) ------------------
-def _current_fit(ladder):
-    from twofold.core.errors import ModelError
-
-    if ladder is None or ladder.current is None or not ladder.rungs:
-        raise ModelError("There is no model yet; choose the outcome and tick at least one predictor first.")
-    return ladder.rungs[ladder.current]
-
-
+# ---- worker-side jobs (run on the core worker thread with the workspace; no Qt here) --------
 def spline_job(column: str, knots: int | None):
-    """A job for :meth:`Session.run_modelling`: set the shape of ``column`` and refit."""
+    """A job for :meth:`Session.run_modelling`: set the shape of ``column`` (the workspace refits)."""
 
-    def job(study, ladder, add):
-        from twofold.core.modelling import effect_curve, nonlinearity_tests
+    def job(ws):
+        from twofold.core.modelling import effect_curve
+        from twofold.render.figures import effect_figure
 
-        rung = _current_fit(ladder)
-        name = study.column(column)
-        study.set_spline(name, knots)
-        if name in ladder.used_predictors:
-            ladder.refit()
-        else:
-            add(list(rung.predictors) + [name])
-        fit = ladder.rungs[ladder.current].fit
-        tests = [t for t in nonlinearity_tests(study, fit) if t.term == name]
+        ws.set_spline(column, knots)
+        name = ws.study.column(column)
+        fit = ws.shown_fit()
+        curves, _ = ws.shape_tests(fit)
+        tests = [t for t in curves if t.term == name]
         curve = effect_curve(fit, name)
         return {"kind": "spline", "column": name, "knots": knots, "tests": tests,
                 "png": effect_figure(curve, knots), "fit": fit}
@@ -61,69 +50,24 @@ def spline_job(column: str, knots: int | None):
 def interaction_job(focus: str, other: str, at=None):
     """A job: add ``focus:other`` (and both main effects) as a new rung, with its test and odds ratios."""
 
-    def job(study, ladder, add):
-        from twofold.core.errors import ModelError
-        from twofold.core.modelling import conditional_odds_ratios, interaction_tests
+    def job(ws):
+        from twofold.core.modelling import conditional_odds_ratios
 
-        rung = _current_fit(ladder)
-        a, b = study.column(focus), study.column(other)
-        if a == b:
-            raise ModelError("An interaction needs two different predictors; choose another second predictor.")
-        term = f"{a}:{b}"
-        preds = list(rung.predictors)
-        same = [p for p in preds if p in (f"{a}:{b}", f"{b}:{a}")]
-        if not same:
-            preds += [p for p in (a, b) if p not in preds] + [term]
-            add(preds)
-        else:
-            term = same[0]
-        fit = ladder.rungs[ladder.current].fit
-        tests = [t for t in interaction_tests(study, fit) if t.term == term]
+        _, term = ws.add_interaction(focus, other)
+        fit = ws.shown_fit()
+        _, crossings = ws.shape_tests(fit)
+        tests = [t for t in crossings if t.term == term]
+        a, b = ws.study.column(focus), ws.study.column(other)
         table = conditional_odds_ratios(fit, a, b, at=at)
         return {"kind": "interaction", "term": term, "tests": tests, "table": table, "fit": fit}
 
     return job
 
 
-def current_fit_job(study, ladder, add):
+def current_fit_job(ws):
     """A job returning the fit of the model shown (for the bootstrap, which only reads it)."""
-    return {"kind": "current", "fit": _current_fit(ladder).fit}
-
-
-def effect_figure(curve: dict, knots) -> bytes:
-    """Odds ratio against the reference value, with its 95% band: exp((b(x) - b(ref))' beta)."""
-    from twofold.gui import figures
-
-    fig = figures._new_figure()
-    ax = fig.add_subplot()
-    x = curve["x"]
-    ax.fill_between(x, curve["low"], curve["high"], color=figures.BLUE, alpha=0.2, linewidth=0,
-                    label="95% confidence band")
-    ax.plot(x, curve["odds_ratio"], color=figures.BLUE, linewidth=1.8,
-            label="straight line" if knots is None else f"spline, {knots} knots")
-    ax.axhline(1.0, color=figures.BLACK, linestyle="--", linewidth=0.8)
-    ax.axvline(curve["reference"], color=figures.ORANGE, linestyle=":", linewidth=1.2,
-               label=f"reference value {curve['reference']:g}")
-    ax.set_yscale("log")
-    _plain_log_ticks(ax, min(curve["low"]), max(curve["high"]))
-    ax.set_xlabel(curve["column"])
-    ax.set_ylabel("Odds ratio (log scale)")
-    ax.set_title(f"Against {curve['column']} = {curve['reference']:g}", fontsize="medium")
-    ax.legend(loc="best", fontsize="small", frameon=False)
-    return figures._png(fig)
-
-
-def _plain_log_ticks(ax, low: float, high: float) -> None:
-    """Odds-ratio ticks written as plain numbers (0.5, 1, 2), not powers of ten."""
-    from matplotlib.ticker import FixedLocator, FuncFormatter, NullLocator
-
-    candidates = [0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 4, 5, 10, 20, 50, 100]
-    ticks = [t for t in candidates if low / 1.05 <= t <= high * 1.05] or [1]
-    if len(ticks) > 7:
-        ticks = ticks[::2] if 1 in ticks[::2] else ticks[1::2]
-    ax.yaxis.set_major_locator(FixedLocator(ticks))
-    ax.yaxis.set_minor_locator(NullLocator())
-    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ws.require_model()
+    return {"kind": "current", "fit": ws.shown_fit()}
 
 
 def _df(df: int) -> str:
@@ -182,6 +126,7 @@ class ModelShapeDialog(QDialog):
         self.spline_result = None
         self.interaction_result = None
         self.validation = None
+        self._boot_fit = None
         self.boot_thread: BootstrapThread | None = None
 
         tabs = QTabWidget()
@@ -195,7 +140,7 @@ class ModelShapeDialog(QDialog):
         lay.addWidget(tabs)
         lay.addWidget(self.status)
 
-        session.modellingReady.connect(self._on_ready)
+        session.payloadReady.connect(self._on_ready)
         session.failed.connect(self._on_failed)
         session.columnsChanged.connect(self._fill_columns)
         session.studyLoaded.connect(self._fill_columns)
@@ -213,7 +158,7 @@ class ModelShapeDialog(QDialog):
         for text, knots in SHAPES:
             self.shape_combo.addItem(text, knots)
         self.apply_shape = QPushButton("Apply and refit")
-        self.apply_shape.clicked.connect(self.apply_spline)
+        self.apply_shape.clicked.connect(lambda _checked=False: self.apply_spline())
         form.addRow("Numeric predictor", self.spline_column)
         form.addRow("Shape", self.shape_combo)
         self.nonlinear_label = QLabel("")
@@ -241,7 +186,7 @@ class ModelShapeDialog(QDialog):
         form.addRow("at values of", self.other_combo)
         form.addRow("Values (numeric only)", self.at_edit)
         self.apply_interaction = QPushButton("Add the interaction and refit")
-        self.apply_interaction.clicked.connect(self.add_interaction)
+        self.apply_interaction.clicked.connect(lambda _checked=False: self.add_interaction())
         self.interaction_label = QLabel("")
         self.interaction_label.setWordWrap(True)
         self.or_table = QTableWidget(0, 3)
@@ -271,7 +216,8 @@ class ModelShapeDialog(QDialog):
         form.addRow("Repetitions", self.reps_spin)
         form.addRow("Seed (same seed, same answer)", self.seed_spin)
         self.run_boot = QPushButton("Run the bootstrap")
-        self.run_boot.clicked.connect(self.start_bootstrap)
+        # clicked(bool) must not reach the repetitions parameter: the typed number is used.
+        self.run_boot.clicked.connect(lambda _checked=False: self.start_bootstrap())
         self.cancel_boot = QPushButton("Cancel")
         self.cancel_boot.setEnabled(False)
         self.cancel_boot.clicked.connect(self.cancel_bootstrap)
@@ -353,7 +299,7 @@ class ModelShapeDialog(QDialog):
         self.cancel_boot.setEnabled(True)
         self.boot_bar.setRange(0, 0)
         self.status.setText("Getting the model shown\u2026")
-        rid = self.session.run_modelling(current_fit_job)
+        rid = self.session.call("modelling", current_fit_job)
         self._wanted["bootstrap"] = rid
         return rid
 
@@ -452,6 +398,7 @@ class ModelShapeDialog(QDialog):
 
     def _launch(self, fit) -> None:
         thread = BootstrapThread(fit, self.reps_spin.value(), self.seed_spin.value(), self)
+        self._boot_fit = fit
         thread.progressed.connect(self._on_boot_progress)
         thread.done.connect(self._on_boot_done)
         thread.cancelled.connect(
@@ -471,6 +418,9 @@ class ModelShapeDialog(QDialog):
         from twofold.core.text import fmt_num
 
         self.validation = v
+        fit, reps, seed = self._boot_fit, v.repetitions, self.seed_spin.value()
+        # Kept with the analysis, so a saved session and a report carry the same figures.
+        self.session.call("validation", lambda ws: ws.record_validation(fit, v, reps, seed))
         self.boot_labels["auc"].setText(
             f"{fmt_num(v.auc_corrected)} corrected for optimism: {fmt_num(v.auc_apparent)} on the data it was "
             f"built from, minus an optimism of {fmt_num(v.auc_optimism)}")

@@ -969,10 +969,13 @@ class AssessmentSection(QFrame):
         session.assessmentChanged.connect(self.show_assessment)
 
     def results_shown(self, results) -> None:
-        """New results are on screen: their assessment follows."""
-        if self.view is None or results is None or self.view.rung != results.rung:
-            self.status.setText("Working out how good the model is\u2026")
-            self.status.show()
+        """New results are on screen: the assessment below describes an older model until its own arrives."""
+        if results is None:
+            return
+        # Never leave another model's figures under these results: hide them until the new ones come.
+        self.body.hide()
+        self.status.setText("Working out how good the model is\u2026")
+        self.status.show()
 
     def _threshold_changed(self, value: float) -> None:
         self.session.set_threshold(value)
@@ -1096,6 +1099,7 @@ class LadderPane(QWidget):
         self.comparison = _wrapped("", "Comparison of two models")
         layout.addWidget(self.comparison)
         self._enable()
+        self._compared = None  # (index, predictors) of the two models whose comparison is shown
         session.resultsChanged.connect(self._on_results)
         session.comparisonReady.connect(self._on_comparison)
 
@@ -1135,9 +1139,17 @@ class LadderPane(QWidget):
             if n > 1:
                 self.first.setCurrentIndex(a if 0 <= a < n and a != n - 1 else n - 2)
                 self.second.setCurrentIndex(b if 0 <= b < n and b != self.first.currentIndex() else n - 1)
-        if view is None:
+        if view is None or not self._comparison_still_holds(view):
             self.comparison.setText("")
+            self._compared = None
         self._enable()
+
+    def _comparison_still_holds(self, view) -> bool:
+        """Whether the two models compared are still in the ladder as they were (else their text goes)."""
+        if self._compared is None:
+            return True
+        rows = view.ladder.rows
+        return all(k < len(rows) and tuple(rows[k].predictors) == preds for k, preds in self._compared)
 
     def _selection_changed(self, *args) -> None:
         rows = sorted({i.row() for i in self.table.selectionModel().selectedRows()})
@@ -1163,7 +1175,10 @@ class LadderPane(QWidget):
     def _on_comparison(self, view) -> None:
         if view is None:
             self.comparison.setText("")
+            self._compared = None
             return
+        rows = self.model.rows if hasattr(self.model, "rows") else ()
+        self._compared = tuple((k, tuple(rows[k].predictors)) for k in (view.first, view.second) if k < len(rows))
         parts = [f"<b>Model {view.first + 1} compared with model {view.second + 1}.</b> {esc(view.text)}"]
         if view.reading:
             parts.append(esc(view.reading))

@@ -17,11 +17,7 @@ from twofold.gui.views import (
     OutcomeView, ProfileView, ResultsView, StudyView, TestView,
 )
 
-#: Profile-likelihood intervals are worked out without being asked when rows times
-#: coefficients is at most this (maximum likelihood) or the second figure (penalised):
-#: measured on this project's samples on one core, about 0.2 s and 0.4 s at those sizes.
-PROFILE_AUTO_WORK = 50_000
-PENALISED_PROFILE_AUTO_WORK = 20_000
+from twofold.core.workspace import is_penalised, profile_auto  # noqa: F401  (used by the panes' texts)
 
 #: The multiplication sign joining the two predictors of an interaction ("age \u00d7 sex").
 TIMES = "\u00d7"
@@ -259,11 +255,6 @@ def coefficient_lines(fit, warned: dict) -> tuple:
     return tuple(lines)
 
 
-def is_penalised(fit) -> bool:
-    """Whether ``fit`` is Firth's penalised fit (it carries a penalised log-likelihood)."""
-    return getattr(fit, "penalized_llf", None) is not None
-
-
 def _lr_name(fit) -> str:
     return "Penalised likelihood-ratio" if is_penalised(fit) else "Likelihood-ratio"
 
@@ -278,47 +269,14 @@ def overall_view(fit) -> TestView:
     return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
 
 
-def nested_between(ladder, i: int, j: int):
-    """The core's likelihood-ratio test between rungs i and j when one is nested in the other, else None.
-
-    ``Ladder.nested`` gives just the test (two log-likelihoods), without the
-    AUC comparison that ``Ladder.compare`` adds at the cost of a sort of every row.
-    """
-    return ladder.nested(i, j)
-    if sa <= sb:
-        return nested_test(a.fit, b.fit)
-    if sb <= sa:
-        t = nested_test(b.fit, a.fit)
-        return LikelihoodRatioTest(t.g, t.df, t.p_value, added=(), removed=tuple(p for p in a.predictors
-                                                                                 if p not in sb),
-                                   n_rows=t.n_rows)
-    return None
-
-
-def _penalised_between(ladder, choice, study, i: int, j: int):
-    """The penalised likelihood-ratio test between the penalised fits of rungs i and j (None if not nested)."""
-    from twofold.core.fit import LikelihoodRatioTest, nested_test
-
-    si, sj = set(ladder.rungs[i].predictors), set(ladder.rungs[j].predictors)
-    a, b = choice.fit_of(study, ladder, i), choice.fit_of(study, ladder, j)
-    if si == sj:
-        return None
-    if si <= sj:
-        return nested_test(a, b)
-    if sj <= si:
-        t = nested_test(b, a)
-        return LikelihoodRatioTest(t.g, t.df, t.p_value, removed=tuple(sorted(si - sj)), n_rows=t.n_rows)
-    return None
-
-
-def nested_view(ladder, parent: int, index: int, choice=None, study=None) -> TestView:
-    """The test of rung ``index`` against the rung it was built from (penalised when ``choice`` says so)."""
+def nested_view(ws, parent: int, index: int) -> TestView:
+    """The test of rung ``index`` against the rung it was built from (penalised when that fit is shown)."""
+    ladder, study = ws.ladder, ws.study
     rung = ladder.rungs[index]
     change = _change_text(rung, study) or "no change of predictors"
     title = f"Change from model {parent + 1} ({change})"
-    penalised = choice is not None and choice.penalised
-    t = (_penalised_between(ladder, choice, study, parent, index) if penalised
-         else nested_between(ladder, parent, index))
+    penalised = ws.penalised
+    t = ws.nested_between(parent, index)
     if t is None:
         cmp = ladder.compare(parent, index)
         text = (f"{cmp.note} AIC difference (this model minus model {parent + 1}): "
@@ -336,7 +294,8 @@ def nested_view(ladder, parent: int, index: int, choice=None, study=None) -> Tes
     return TestView(title, text, reading, t.g, t.df, t.p_value)
 
 
-def ladder_view(ladder, parents: dict, study=None, penalised: bool = False) -> LadderView:
+def ladder_view(ws) -> LadderView:
+    ladder, parents, study, penalised = ws.ladder, ws.parents, ws.study, ws.penalised
     rows = []
     for k, rung in enumerate(ladder.rungs):
         fit = rung.fit
@@ -347,7 +306,7 @@ def ladder_view(ladder, parents: dict, study=None, penalised: bool = False) -> L
         change = "first model"
         if parent is not None:
             change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
-            test = nested_between(ladder, parent, k)
+            test = ladder.nested(parent, k)
             if test is not None:
                 g, df, p = test.g, test.df, test.p_value
                 texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
@@ -358,8 +317,8 @@ def ladder_view(ladder, parents: dict, study=None, penalised: bool = False) -> L
     n = len(ladder.rows) if ladder.rows is not None else 0
     notices = [x.message for x in ladder.notices]
     if penalised:
-        notices.append("The ladder lists the ordinary (maximum-likelihood) fits; the results pane shows the "
-                       "penalised fit of the model chosen.")
+        notices.append("The ladder lists the ordinary (maximum-likelihood) fits, so its log-likelihoods, AIC and "
+                       "tests differ from the penalised ones the results pane shows for the model chosen.")
     return LadderView(tuple(rows), ladder.current, n, tuple(notices))
 
 
@@ -372,59 +331,11 @@ PENALISED_TEXT = (
 )
 
 
-class FitChoice:
-    """Which fit the window shows for a rung: the ladder's own (maximum likelihood) or Firth's penalised refit.
-
-    Lives on the worker thread.  Penalised refits are cached per rung and
-    dropped when the rung is refitted or leaves the ladder.
-    """
-
-    def __init__(self):
-        self.penalised = False
-        self.problem = ""
-        self._cache: list = []   # (rung, its maximum-likelihood fit, the penalised fit)
-
-    def fit_of(self, study, ladder, index: int):
-        """The fit to show for rung ``index``; falls back to the ordinary fit (and says why) if Firth's fails."""
-        from twofold.core.errors import TwofoldError
-
-        rung = ladder.rungs[index]
-        if not self.penalised:
-            return rung.fit
-        for r, ml, pen in self._cache:
-            if r is rung and ml is rung.fit:
-                return pen
-        try:
-            pen = study.fit(list(rung.predictors), rows=rung.fit.design.rows, firth=True)
-        except TwofoldError as exc:
-            self.penalised = False
-            self.problem = f"The penalised fit could not be worked out ({exc}), so the ordinary fit is shown."
-            return rung.fit
-        live = [e for e in self._cache if e[0].fit is e[1] and any(e[0] is r for r in ladder.rungs)]
-        self._cache = live + [(rung, rung.fit, pen)]
-        return pen
-
-    def shown(self, study, ladder):
-        """The fit of the model shown, or None when the ladder is empty."""
-        if study is None or ladder is None or ladder.current is None or not ladder.rungs:
-            return None
-        return self.fit_of(study, ladder, ladder.current)
-
-
-def shape_tests(study, fit) -> tuple:
-    """Tests of the model's shape: a straight line against each spline, the model without each interaction."""
-    from twofold.core.errors import TwofoldError
-    from twofold.core.modelling import interaction_tests, nonlinearity_tests
-
+def shape_tests(ws, fit) -> tuple:
+    """Tests of the model's shape, worded: a straight line against each spline, the model without each interaction."""
+    study = ws.study
     out = []
-    try:
-        curves = nonlinearity_tests(study, fit)
-    except TwofoldError:  # a test the core cannot make here is left out, not guessed
-        curves = []
-    try:
-        crossings = interaction_tests(study, fit)
-    except TwofoldError:
-        crossings = []
+    curves, crossings = ws.shape_tests(fit)
     for t in curves:
         text = (f"{_lr_name(fit)} test of the curve ({len(t.knots)} knots) against a straight line, on the same "
                 f"rows: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
@@ -441,24 +352,16 @@ def shape_tests(study, fit) -> tuple:
     return tuple(out)
 
 
-def profile_auto(fit) -> bool:
-    """Whether ``fit`` is small enough for its profile intervals to be worked out without being asked."""
-    limit = PENALISED_PROFILE_AUTO_WORK if is_penalised(fit) else PROFILE_AUTO_WORK
-    return fit.n_used * max(fit.n_params - 1, 0) <= min(limit, PROFILE_AUTO_WORK)
+def profile_view(ws, fit, rung: int) -> ProfileView:
+    """The core's profile-likelihood intervals of ``fit`` (profile penalised likelihood for a Firth fit), worded.
 
-
-def profile_view(fit, rung: int) -> ProfileView:
-    """The core's profile-likelihood intervals of ``fit`` (profile penalised likelihood for a Firth fit), worded."""
+    Safe on a thread of its own: the workspace traces them from the read-only fit.
+    """
     from twofold.core.errors import TwofoldError
-    from twofold.core.penalised import profile_intervals
-
-    from twofold.core.fit import _one_blas_thread
 
     penalised = is_penalised(fit)
     try:
-        # One BLAS thread, as for every fit: this thread runs beside the core worker on two cores.
-        with _one_blas_thread():
-            intervals = profile_intervals(fit)
+        intervals = ws.profile_intervals(fit)
     except TwofoldError as exc:
         return ProfileView(rung, penalised, error=f"The profile-likelihood intervals could not be worked out: {exc}")
     missing = [name for name, (lo, hi) in intervals.items() if math.isnan(lo) or math.isnan(hi)]
@@ -476,16 +379,14 @@ def profile_view(fit, rung: int) -> ProfileView:
     return ProfileView(rung, penalised, dict(intervals), texts, note)
 
 
-def results_view(study, ladder, parents: dict, choice: FitChoice | None = None) -> ResultsView | None:
-    """The current rung's results, or None when the ladder is empty.
-
-    ``choice`` says whether the rung's penalised (Firth) refit is shown instead of its own fit.
-    """
-    if ladder is None or ladder.current is None or not ladder.rungs:
+def results_view(ws) -> ResultsView | None:
+    """The current rung's results (its penalised refit when that is chosen), or None when the ladder is empty."""
+    if not ws.has_model:
         return None
+    study, ladder, parents = ws.study, ws.ladder, ws.parents
     index = ladder.current
     rung = ladder.rungs[index]
-    fit = choice.fit_of(study, ladder, index) if choice is not None else rung.fit
+    fit = ws.fit_of(index)
     penalised = is_penalised(fit)
     in_model = set(rung.predictors)
     warned: dict[str, list[str]] = {}
@@ -498,9 +399,9 @@ def results_view(study, ladder, parents: dict, choice: FitChoice | None = None) 
                 predictor_notes.append(NoteView(n.code, n.message, s))
         else:
             model_notes.append(NoteView(n.code, n.message, None))
-    if choice is not None and choice.problem:
-        model_notes.append(NoteView("not_converged", choice.problem, None))
-        choice.problem = ""
+    if ws.method_problem:
+        model_notes.append(NoteView("not_converged", ws.method_problem, None))
+        ws.method_problem = ""
     separation = any(n.code == "separation" for n in rung.fit.notices)
     account = getattr(fit, "account", None)
     rows_read = account.rows_read if account else fit.n_used
@@ -513,7 +414,7 @@ def results_view(study, ladder, parents: dict, choice: FitChoice | None = None) 
     event_label = value_label(study.event)
     title = f"Model {index + 1} of {len(ladder.rungs)}: the odds that {study.outcome} = {event_label}"
     parent = parents.get(index)
-    previous = nested_view(ladder, parent, index, choice, study) if parent is not None else None
+    previous = nested_view(ws, parent, index) if parent is not None else None
     contents = "In the model: " + _predictors_text(rung.predictors, study) + "."
     if any(study.splines.get(p) or interaction_parts(study, p) for p in rung.predictors):
         contents = "In the model: " + ", ".join(term_text(study, p, long=True) for p in rung.predictors) + "."
@@ -522,17 +423,17 @@ def results_view(study, ladder, parents: dict, choice: FitChoice | None = None) 
         predictors=tuple(rung.predictors), title=title, counts_text=counts,
         lines=coefficient_lines(fit, warned), overall=overall_view(fit), previous=previous,
         predictor_notes=tuple(predictor_notes), model_notes=tuple(model_notes),
-        ladder=ladder_view(ladder, parents, study, penalised), rows_used=fit.n_used, rows_read=rows_read,
+        ladder=ladder_view(ws), rows_used=fit.n_used, rows_read=rows_read,
         events=fit.events, events_per_parameter=epp if math.isfinite(epp) else None,
-        log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(study, fit),
+        log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(ws, fit),
         penalised=penalised, method_text=PENALISED_TEXT if penalised else "", separation=separation,
         profile_auto=profile_auto(fit),
     )
 
 
-def comparison_view(ladder, i: int, j: int) -> ComparisonView:
+def comparison_view(ws, i: int, j: int) -> ComparisonView:
     """Rungs i and j compared (likelihood-ratio test when nested; AIC and BIC always)."""
-    c = ladder.compare(i, j)
+    c = ws.compare(i, j)
     a, b = i + 1, j + 1
     diffs = (f"AIC difference (model {b} minus model {a}): {fmt_num(c.aic_difference, 2)}; "
              f"BIC difference: {fmt_num(c.bic_difference, 2)}; lower is better.")
@@ -569,13 +470,11 @@ def _pct(x) -> str:
     return "not available" if x is None or not math.isfinite(x) else f"{100 * x:.1f}%"
 
 
-def assessment_view(study, ladder, result, figures: dict, fit=None) -> AssessmentView:
+def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     """The assessment of the model shown, worded (``result`` is a core ``Assessment`` of ``fit``)."""
     from twofold.core.assessment import HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
     from twofold.core.influence import VIF_THRESHOLD
 
-    index = ladder.current
-    fit = ladder.rungs[index].fit if fit is None else fit
     penalised = is_penalised(fit)
     a = result.auc
     values = {"auc": a.auc, "auc_ci_low": a.ci_low, "auc_ci_high": a.ci_high, "brier": result.brier,

@@ -12,7 +12,6 @@ against it here, and again by the core.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import NamedTuple
 
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
@@ -27,6 +26,27 @@ def ask_user(parent, title: str, text: str) -> bool:
     answer = QMessageBox.question(parent, title, text,
                                   QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.No)
     return answer == QMessageBox.StandardButton.Yes
+
+
+def ask_unsaved(parent, doing: str) -> str:
+    """Ask what to do with unsaved changes before ``doing``: "save", "discard" or "cancel" (tests replace this)."""
+    box = QMessageBox(QMessageBox.Icon.Question, "Twofold: save the analysis?",
+                      f"The analysis has changes that are not saved. Save them before {doing}?", parent=parent)
+    save = box.addButton("Save\u2026", QMessageBox.ButtonRole.AcceptRole)
+    discard = box.addButton("Don't save", QMessageBox.ButtonRole.DestructiveRole)
+    box.addButton("Cancel", QMessageBox.ButtonRole.RejectRole)
+    box.setDefaultButton(save)
+    box.exec()
+    clicked = box.clickedButton()
+    return "save" if clicked is save else "discard" if clicked is discard else "cancel"
+
+
+def choose_save_path(parent, start: str) -> str:
+    """Ask where to save the analysis; returns the path or '' (tests replace this function)."""
+    path, _ = QFileDialog.getSaveFileName(parent, "Save the analysis", start, "Twofold analyses (*.json)")
+    if path and not path.lower().endswith((".json", ".twofold")):
+        path += ".json"
+    return path
 
 
 def choose_data_file(parent, start: str) -> str:
@@ -81,100 +101,6 @@ def choose_report_options(parent, current: dict) -> dict | None:
     return dialog.values() if dialog.exec() == QDialog.DialogCode.Accepted else None
 
 
-class _Relay(QObject):
-    """Emitted on the worker thread; delivered (queued) on the GUI thread."""
-
-    done = Signal(int, object)
-
-
-class _WithViews(NamedTuple):
-    """A job's payload together with display records for the session to show (a restored analysis)."""
-
-    outputs: dict
-    payload: object
-
-
-# ---- worker-thread helpers (they touch the session's core objects) ---------------
-
-
-def _changed_roles(study) -> dict:
-    """Roles the user changed, column by column (so a saved analysis keeps them)."""
-    return {name: info.role.value for name, info in study.columns.items() if info.role != info.inferred_role}
-
-
-def _light_result(s, threshold=None):
-    """The model shown as an AnalysisResult holding only what a session file needs (no refit)."""
-    from twofold.core.analysis import AnalysisResult, AnalysisSpec
-    from twofold.core.errors import ModelError
-
-    study, ladder = s._study, s._ladder
-    if study is None or study.outcome is None or ladder is None or ladder.current is None or not ladder.rungs:
-        raise ModelError("There is no model to save yet; open a data file, choose the outcome and tick "
-                         "predictors first.")
-    from twofold.core.analysis import columns_of
-
-    rung = ladder.rungs[ladder.current]
-    fit = s._shown_fit() or rung.fit
-    penalised = bool(getattr(s._choice, "penalised", False))
-    # The ladder fits every model on the rows complete for all its columns: say which, so a re-run uses them too.
-    spec = AnalysisSpec(data=str(study.table.path), outcome=study.outcome, predictors=list(rung.predictors),
-                        event=study.event, roles=_changed_roles(study), sheet=study.table.sheet,
-                        firth=penalised, threshold=threshold, splines=dict(study.splines),
-                        rows_complete_in=columns_of(study, ladder.used_predictors))
-    return AnalysisResult(spec, study, fit, None, None, None, {})
-
-
-def current_session(s, threshold=None, report=None) -> dict:
-    """The session dict of the model shown, with the whole ladder and the report's options (worker thread)."""
-    from twofold.core.session import session_from_result
-
-    return session_from_result(_light_result(s, threshold), ladder=s._ladder, report=report)
-
-
-def shown_result(s, threshold=None):
-    """The full analysis (tests, assessment) of the model shown, exactly as shown (worker thread).
-
-    The fit is the one on screen, on the ladder's common rows; it is not
-    refitted, since :func:`twofold.core.analysis.run_analysis` would refit on
-    the rows complete for this model alone, which differ when another model
-    of the ladder uses a predictor with missing values.  The pieces are the
-    core's own, put together as ``run_analysis`` puts them.
-    """
-    import copy
-
-    from twofold.core.analysis import AnalysisResult, count_rows_left_out, extra_row_columns
-    from twofold.core.assessment import assess
-    from twofold.core.modelling import interaction_tests, nonlinearity_tests
-    from twofold.core.summary import clean_number, fit_record
-
-    light = _light_result(s, threshold)
-    study, spec = light.study, light.spec
-    shown = light.fit
-    cached = s._assessed  # the assessment on screen, when it is of this fit at this threshold
-    table = None if cached is None or cached[0] is not shown else cached[1].classification
-    if table is not None and threshold is not None and table.threshold == threshold:
-        assessment = cached[1]
-    else:
-        assessment = assess(study, shown, threshold=threshold)
-    # A copy, so the reading notices join the fit's warnings without changing the fit on screen.
-    fit = copy.copy(shown)
-    fit.notices = list(study.table.notices) + list(shown.notices)
-    # The rows the other models' columns cost are counted too, as a re-run of the saved session counts them.
-    extra = extra_row_columns(study, fit.design.predictors, spec.rows_complete_in)
-    if extra:
-        count_rows_left_out(study, fit, extra)
-    record = fit_record(fit, study.outcome, study.event, assessment=assessment)
-    if any(p in study.splines for p in fit.design.predictors):
-        record["nonlinearity"] = [
-            {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
-             "p_value": clean_number(t.p_value)} for t in nonlinearity_tests(study, fit)]
-    if any(":" in p for p in fit.design.predictors):
-        record["interaction_tests"] = [
-            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
-            for t in interaction_tests(study, fit)]
-    return AnalysisResult(spec, study, fit, None, None, assessment, record)
-
-
 def _is_same_file(path, data) -> bool:
     try:
         a, b = Path(path).resolve(), Path(data).resolve()
@@ -204,11 +130,6 @@ class SessionActions(QObject):
         super().__init__(window)
         self.window = window
         self.session = window.session
-        self._relay = _Relay()
-        self._relay.done.connect(self._on_payload)
-        self._waiting: dict[int, str] = {}
-        self._payloads: dict[int, object] = {}
-        self.session.requestFinished.connect(self._on_finished)
         self.restore_offered: Path | None = None
         self.autosave_enabled = False
         self.last_autosave: str | None = None
@@ -274,60 +195,65 @@ class SessionActions(QObject):
         return False
 
     # ---- running jobs -----------------------------------------------------------
-    def _run(self, tag: str, fn, kind=None, facets=(), coalesce=None, clears_queue=False) -> int:
-        """Run ``fn`` on the worker; its return value reaches :meth:`_handle` when the request finishes."""
-        s = self.session
-        job_id = s._next_id + 1  # the id _submit gives next (only this thread submits)
-        relay = self._relay
-
-        def job():
-            outputs, payload = {}, fn()
-            if isinstance(payload, _WithViews):
-                outputs, payload = payload
-            relay.done.emit(job_id, payload)
-            return outputs
-
-        if coalesce is not None:  # a waiting job of the same kind is replaced: forget it
-            for k in [k for k, t in self._waiting.items() if t == tag]:
-                self._waiting.pop(k)
-        self._waiting[job_id] = tag
-        got = s._submit(kind or "file:" + tag, job, facets=facets, coalesce=coalesce, clears_queue=clears_queue)
-        if got != job_id:  # never expected; keep the bookkeeping right regardless
-            self._waiting[got] = self._waiting.pop(job_id)
-        return got
-
-    def _on_payload(self, job_id: int, payload) -> None:
-        if job_id in self._waiting:
-            self._payloads[job_id] = payload
-
-    def _on_finished(self, job_id: int) -> None:
-        tag = self._waiting.pop(job_id, None)
-        if tag is None or job_id not in self._payloads:
-            return  # not ours, or it failed (the failure was shown already)
-        self._handle(tag, self._payloads.pop(job_id))
+    def _run(self, tag: str, fn, kind=None, facets=(), coalesce=None) -> int:
+        """Run ``fn(workspace)`` on the worker; its return value reaches :meth:`_handle` once it is done."""
+        return self.session.call(kind or "file:" + tag, fn, done=lambda payload: self._handle(tag, payload),
+                                 facets=facets, coalesce=coalesce)
 
     # ---- saving ----------------------------------------------------------------
     def save_dialog(self) -> None:
-        path, _ = QFileDialog.getSaveFileName(self.window, "Save the analysis", self._suggest("-analysis.json"),
-                                              "Twofold analyses (*.json)")
+        path = choose_save_path(self.window, self._suggest("-analysis.json"))
         if path:
-            self.save_to(path if path.lower().endswith((".json", ".twofold")) else path + ".json")
+            self.save_to(path)
+
+    def save_now(self) -> bool:
+        """Ask where, save, and wait until it is written (before closing); False if not saved."""
+        from PySide6.QtCore import QEventLoop
+
+        path = choose_save_path(self.window, self._suggest("-analysis.json"))
+        if not path:
+            return False
+        outcome = {}
+        loop = QEventLoop()
+
+        def finished(tag, payload):
+            if tag == "saved":
+                outcome["saved"] = True
+                loop.quit()
+
+        def failed(failure):
+            outcome["saved"] = False
+            loop.quit()
+
+        self.finished.connect(finished)
+        self.session.failed.connect(failed)
+        try:
+            if self.save_to(path) is None:
+                return False
+            if "saved" not in outcome:
+                loop.exec()
+        finally:
+            self.finished.disconnect(finished)
+            self.session.failed.disconnect(failed)
+        return bool(outcome.get("saved"))
 
     def save_to(self, path) -> int | None:
         """Save the model shown, its ladder and options as a session file (on the worker)."""
         if self._refuses(path):
             return None
-        s, threshold, report = self.session, self.session.threshold, dict(self.report_options)
-
-        def job():
+        def job(ws):
             from twofold.core.session import save_session
 
-            return str(save_session(current_session(s, threshold, report), path))
+            written = str(save_session(ws.to_session(), path))
+            ws.mark_saved()
+            return written
 
-        return self._run("saved", job)
+        return self._run("saved", job, facets=("history",))
 
     # ---- opening -----------------------------------------------------------------
     def open_dialog(self) -> None:
+        if not self.window.confirm_leave("opening a saved analysis"):
+            return
         path, _ = QFileDialog.getOpenFileName(self.window, "Open a saved analysis", self._start(),
                                               "Twofold analyses (*.json *.twofold);;All files (*)")
         if path:
@@ -340,7 +266,7 @@ class SessionActions(QObject):
         file is read once here; the restore fits on the rows read.
         """
 
-        def job():
+        def job(ws):
             from twofold.core.io import read_table
             from twofold.core.session import check_data, load_session, require_data_file
 
@@ -399,38 +325,19 @@ class SessionActions(QObject):
         ``data`` is the data file (default: the session's own), ``table`` that
         file already read; ``discard`` an autosave to remove once restored.
         """
-        s = self.session
-        s._load_generation += 1
-        generation = s._load_generation
-        where = str(data if data is not None else session["data"])
-        if table is None:
-            s.loadStarted.emit(where)  # progress bar and stop button while the file is read
-
-        def job():
-            from twofold.core.analysis import prepare_study
-            from twofold.core.io import read_table
-            from twofold.core.session import discard_autosave, ladder_from_lists, spec_from_session
-            from twofold.core.study import Study
-
-            def progress(fraction):
-                s.loadProgress.emit(fraction)
-                return generation == s._load_generation
-
-            spec = spec_from_session(session, data=where)
-            study = Study(table if table is not None else read_table(spec.data, sheet=spec.sheet, progress=progress))
-            prepare_study(spec, study)
-            ladder = ladder_from_lists(study, session["ladder"], session["predictors"])
-            outputs = s._adopt(study, ladder, penalised=session["firth"])
+        def after(ws):
             if discard is not None:
-                discard_autosave(discard)
-            return _WithViews(outputs, where)
+                from twofold.core.session import discard_autosave
 
+                discard_autosave(discard)
+            return where
+
+        where = str(data if data is not None else session["data"])
         if session.get("threshold") is not None:
             self._show_threshold(float(session["threshold"]))
         self.report_options = {k: session["report"][k] for k in self.report_options}
-        # Kind "load": the panes treat it as opening a file (progress, stop button, a failure re-enables them).
-        return self._run("restored", job, kind="load", facets=("study", "columns", "outcome", "results", "comparison"),
-                         clears_queue=True)
+        return self.session.restore(session, data=where, table=table, after=after,
+                                    done=lambda payload: self._handle("restored", payload))
 
     def _show_threshold(self, value: float) -> None:
         """Use the saved risk threshold, and show it in its box without asking for another assessment."""
@@ -471,13 +378,15 @@ class SessionActions(QObject):
         chosen = {"suppress_up_to": suppress_up_to, "list_records": list_records}
         changed = {k: v for k, v in chosen.items() if v is not None and v != self.report_options[k]}
         self.report_options.update(changed)
-        s, threshold, options = self.session, self.session.threshold, dict(self.report_options)
+        s, options = self.session, dict(self.report_options)
 
-        def job():
-            from twofold.core.report import write_report
+        def job(ws):
+            from twofold.render.report_writer import write_report
 
-            return str(write_report(shown_result(s, threshold), path, ladder=s._ladder,
-                                    suppress_below=options["suppress_up_to"], include_records=options["list_records"]))
+            ws.set_report_options(options["suppress_up_to"], options["list_records"])
+            result = ws.result(assessment=s.assessment_for(ws.shown_fit()))
+            return str(write_report(result, path, ladder=ws.ladder, suppress_below=options["suppress_up_to"],
+                                    include_records=options["list_records"]))
 
         job_id = self._run("report", job)
         if changed and self.session.last_results is not None:
@@ -504,15 +413,15 @@ class SessionActions(QObject):
         ladder_path = self.ladder_csv(path) if path.suffix.lower() == ".csv" else None
         if self._refuses(*([path] + ([ladder_path] if ladder_path is not None else []))):
             return None
-        s, threshold = self.session, self.session.threshold
+        s = self.session
 
-        def job():
+        def job(ws):
             from twofold.core.export import export_coefficients, export_ladder
 
-            result = shown_result(s, threshold)
-            written = [str(export_coefficients(result, path, ladder=s._ladder))]
+            result = ws.result(assessment=s.assessment_for(ws.shown_fit()))
+            written = [str(export_coefficients(result, path, ladder=ws.ladder))]
             if ladder_path is not None:
-                written.append(str(export_ladder(s._ladder, ladder_path, data=result.spec.data)))
+                written.append(str(export_ladder(ws.ladder, ladder_path, data=result.spec.data)))
             return written
 
         return self._run("exported", job)
@@ -535,14 +444,12 @@ class SessionActions(QObject):
     def _on_results(self, view) -> None:
         if view is None or not self.autosave_enabled:
             return
-        s, threshold, report = self.session, self.session.threshold, dict(self.report_options)
-
-        def job():
+        def job(ws):
             from twofold.core.errors import TwofoldError
             from twofold.core.session import autosave
 
             try:
-                return str(autosave(current_session(s, threshold, report)))
+                return str(autosave(ws.to_session()))
             except (TwofoldError, OSError):
                 return None  # an autosave that cannot be made must not interrupt the work
 

@@ -127,6 +127,7 @@ def run_snapshot(argv: list[str]) -> int:
 
     app = QApplication.instance() or QApplication(["twofold"])
     window = MainWindow(remember=False)
+    window.ask_before_leaving = False  # an offscreen picture: nobody to ask
     try:
         window.resize(width, height)
         balance(window)
@@ -170,7 +171,7 @@ def run_snapshot(argv: list[str]) -> int:
         # The assessment follows the results as a second message: wait for it (briefly).
         import time
 
-        newest = window.session._next_id
+        newest = window.session.newest_request
         deadline = time.monotonic() + WAIT_MS / 1000
         while window.session.last_assessment_id < newest and time.monotonic() < deadline:
             app.processEvents()

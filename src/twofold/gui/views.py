@@ -287,3 +287,15 @@ class AssessmentView:
     figures: dict = field(default_factory=dict)
     #: Whether the model assessed is the penalised (Firth) fit, its risks intercept-corrected (FLIC).
     penalised: bool = False
+
+
+@dataclass(frozen=True)
+class HistoryView:
+    """What undo and redo would do, and whether the analysis has changes not yet saved."""
+
+    undo_text: str = ""
+    redo_text: str = ""
+    unsaved: bool = False
+    revision: int = 0
+    last_change: str = ""
+    removed: int = 0

@@ -60,6 +60,9 @@ class MainWindow(QMainWindow):
         self.settings = settings if settings is not None else open_settings()
         self.remember = remember
         self.error_box = None
+        self._source = ""
+        #: Ask about unsaved changes before they are left behind (off for offscreen pictures).
+        self.ask_before_leaving = True
         self.setWindowTitle("Twofold")
         self.setWindowIcon(style.app_icon())
         self.setAcceptDrops(True)
@@ -104,6 +107,8 @@ class MainWindow(QMainWindow):
         s.failed.connect(self.show_failure)
         s.busyChanged.connect(self._on_busy)
         s.resultsChanged.connect(lambda v: self.message.hide() if v is not None else None)
+        s.historyChanged.connect(self._on_history)
+        self._revision_seen = 0
         self.data_pane.openRequested.connect(self.open_dialog)
         self.data_pane.sampleRequested.connect(self._sample_menu_popup)
         s.start()
@@ -148,6 +153,17 @@ class MainWindow(QMainWindow):
         quit_action.setShortcut(QKeySequence.StandardKey.Quit)
         quit_action.triggered.connect(self.close)
         file_menu.addAction(quit_action)
+
+        edit = bar.addMenu("&Edit")
+        self.undo_action = QAction("&Undo", self)
+        self.undo_action.setShortcut(QKeySequence.StandardKey.Undo)
+        self.undo_action.triggered.connect(lambda _=False: self.session.undo())
+        self.redo_action = QAction("&Redo", self)
+        self.redo_action.setShortcuts([QKeySequence.StandardKey.Redo, QKeySequence("Ctrl+Y")])
+        self.redo_action.triggered.connect(lambda _=False: self.session.redo())
+        for act in (self.undo_action, self.redo_action):
+            act.setEnabled(False)
+            edit.addAction(act)
 
         go = bar.addMenu("&Go to")
         for key, text, target in (("Ctrl+1", "&Data rows", lambda: self.data_pane.table),
@@ -273,7 +289,37 @@ class MainWindow(QMainWindow):
         if path:
             self.open_path(path)
 
-    def open_path(self, path) -> int:
+    def _on_history(self, h) -> None:
+        """Undo and redo name what they would do; a change that removed models says how to get them back."""
+        self.undo_action.setEnabled(bool(h.undo_text))
+        self.undo_action.setText(f"&Undo the {h.undo_text}" if h.undo_text else "&Undo")
+        self.redo_action.setEnabled(bool(h.redo_text))
+        self.redo_action.setText(f"&Redo the {h.redo_text}" if h.redo_text else "&Redo")
+        if h.revision > self._revision_seen and h.removed:
+            self.statusBar().showMessage(
+                f"{h.last_change} {h.removed} model{'s' if h.removed != 1 else ''} of the ladder "
+                f"{'were' if h.removed != 1 else 'was'} removed; Edit > Undo (Ctrl+Z) brings "
+                f"{'them' if h.removed != 1 else 'it'} back.", 15000)
+        self._revision_seen = max(self._revision_seen, h.revision)
+        title = f"Twofold \u2014 {self._source}" if self._source else "Twofold"
+        self.setWindowTitle(title + (" (changed since saved)" if h.unsaved else ""))
+
+    def confirm_leave(self, doing: str) -> bool:
+        """Before the analysis is replaced or the window closes: save, discard or stay (False: stay)."""
+        from twofold.gui import sessions_ui
+
+        if not self.ask_before_leaving or not self.session.last_history.unsaved:
+            return True
+        answer = sessions_ui.ask_unsaved(self, doing)
+        if answer == "cancel":
+            return False
+        if answer == "save":
+            return self.sessions.save_now()
+        return True
+
+    def open_path(self, path) -> int | None:
+        if not self.confirm_leave("opening another file"):
+            return None
         self.message.hide()
         self.statusBar().showMessage(f"Opening {Path(path).name}\u2026")
         return self.session.open_file(str(path))
@@ -283,6 +329,7 @@ class MainWindow(QMainWindow):
             self.data_pane.sample_button.rect().bottomLeft()))
 
     def _on_study(self, view) -> None:
+        self._source = view.source
         self.setWindowTitle(f"Twofold \u2014 {view.source}")
         self.statusBar().showMessage(f"Opened {view.source}: {view.n_rows:,} rows.", 5000)
         self.message.hide()
@@ -433,6 +480,9 @@ class MainWindow(QMainWindow):
             "The data file is only read, never changed, and nothing leaves this computer."))
 
     def closeEvent(self, event) -> None:
+        if not self.confirm_leave("closing Twofold"):
+            event.ignore()  # the autosave stays, and so does the window
+            return
         if self.model_shape_dialog is not None:
             self.model_shape_dialog.shutdown()  # a bootstrap must not outlive the window
         if self.calculator is not None:

@@ -3,7 +3,7 @@
 ``twofold fit ... --session-out/--report/--table-out`` ends in
 :func:`write_fit_outputs`; ``twofold rerun`` and ``twofold predict`` are
 :func:`run_rerun` and :func:`run_predict`.  The work itself is done in
-:mod:`twofold.core.session`, :mod:`twofold.core.report`,
+:mod:`twofold.core.session`, :mod:`twofold.core.report` (rendered by :mod:`twofold.render`),
 :mod:`twofold.core.export` and :mod:`twofold.core.predict`.  Errors print one
 sentence on stderr and exit 2; nothing here ever writes to a data file.
 """
@@ -16,7 +16,7 @@ import os
 import sys
 from pathlib import Path
 
-from twofold.cli import EXIT_USAGE, _Parser, add_report_options, report_options_need_a_place
+from twofold.command_options import EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place
 
 def _same_file(a, b) -> bool:
     try:
@@ -93,7 +93,7 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
         lad = ladder if ladder is None or hasattr(ladder, "rungs") else None
         written.append(export_coefficients(result, table, ladder=lad))
     if report:
-        from twofold.core.report import write_report
+        from twofold.render.report_writer import write_report
 
         written.append(write_report(result, report, ladder=ladder, suppress_below=options["suppress_up_to"],
                                     include_records=options["list_records"]))
@@ -112,7 +112,7 @@ def report_options(saved: dict, suppress_up_to=None, report_records=None) -> dic
 
 
 def _rerun_parser() -> argparse.ArgumentParser:
-    p = _Parser(prog="twofold rerun",
+    p = CommandParser(prog="twofold rerun",
                 description="Apply a saved analysis to a new extract with the same columns.")
     p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
     p.add_argument("--data", metavar="NEW", help="the new extract (default: the session's own data file)")
@@ -236,7 +236,7 @@ def _rerun(args):
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
                                  threshold=session["threshold"])
         if args.report:
-            from twofold.core.report import write_report
+            from twofold.render.report_writer import write_report
 
             if args.report_records:
                 _note("a saved model applied unchanged is not refitted, so its report lists no influential records.")
@@ -253,7 +253,7 @@ def _rerun(args):
     study = Study(table)
     result = run_analysis(spec, study=study)
     if args.report:
-        from twofold.core.report import write_report
+        from twofold.render.report_writer import write_report
 
         rungs = [r for r in session["ladder"] if all(c in present for c in r)]
         ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"]) if len(rungs) > 1 else None
@@ -268,7 +268,7 @@ def _rerun(args):
 
 
 def _predict_parser() -> argparse.ArgumentParser:
-    p = _Parser(prog="twofold predict",
+    p = CommandParser(prog="twofold predict",
                 description="Predicted risk for one described patient from a saved model.")
     p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
     p.add_argument("--value", action="append", default=[], metavar="COLUMN=VALUE",

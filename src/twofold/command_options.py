@@ -1,0 +1,62 @@
+"""What the commands share: exit statuses, a parser that speaks in one sentence, the report options.
+
+Both :mod:`twofold.cli` (``fit`` and the dispatch) and :mod:`twofold.commands`
+(``rerun`` and ``predict``) import from here, so neither imports the other at
+module level.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+EXIT_USAGE = 2
+EXIT_INTERNAL = 3
+
+
+class CommandParser(argparse.ArgumentParser):
+    """argparse that reports usage mistakes in one sentence and exits 2."""
+
+    def error(self, message):
+        self.exit(EXIT_USAGE, f"twofold: {message} (see 'twofold {self.prog.split()[-1]} --help').\n")
+
+
+def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
+    """``--suppress-up-to N`` and ``--report-records``, shared by ``fit`` and ``rerun``."""
+    from twofold.core.privacy import DEFAULT_THRESHOLD
+
+    p.add_argument("--suppress-up-to", type=suppress_limit, metavar="N", default=None,
+                   help=f"in the report, show counts of 1 to N people as suppressed (default {DEFAULT_THRESHOLD}; "
+                        f"use the limit your data owner requires; {default_note})")
+    p.add_argument("--report-records", action=argparse.BooleanOptionalAction, default=None,
+                   help="list the most influential records in the report by their row number in the data file "
+                        "(row numbers can point back to patients; off unless asked)")
+
+
+def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) -> None:
+    """Refuse report options that would change nothing: none of ``places`` (option -> value) is given.
+
+    ``places`` names ``--report`` and, for ``fit``, ``--session-out`` (the
+    session keeps the options for the reports of later re-runs).
+    """
+    given = [name for name, value in (("--suppress-up-to", args.suppress_up_to),
+                                      ("--report-records", args.report_records)) if value is not None]
+    if given and not any(places.values()):
+        them = "it" if len(given) == 1 else "them"
+        nor = (f" (nor --session-out, which keeps {them} for later reports)" if "--session-out" in places else "")
+        p.error(f"{' and '.join(given)} change{'s' if len(given) == 1 else ''} only a report, but no --report "
+                f"was given{nor}; add --report PATH.html or leave {them} out")
+
+
+def suppress_limit(text: str) -> int:
+    """The value of ``--suppress-up-to``: a whole number from 1 to the largest limit allowed."""
+    from twofold.core.privacy import MAX_THRESHOLD
+
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the largest count of people to "
+                                         "hide, e.g. 10") from None
+    if not 1 <= value <= MAX_THRESHOLD:
+        raise argparse.ArgumentTypeError(f"{text} is out of range; give a whole number from 1 to {MAX_THRESHOLD}, "
+                                         "e.g. 10")
+    return value

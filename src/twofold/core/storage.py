@@ -1,0 +1,224 @@
+"""Session files on disk: written atomically, read back strictly.
+
+Writing goes through a temporary file in the same folder and ``os.replace``,
+so a session file is never left half-written.  Reading accepts JSON text
+only, within the caps of :mod:`twofold.core.session`, and checks every field
+with :func:`~twofold.core.session.validate_session`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import re
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from twofold.core.errors import DataFileError
+from twofold.core.session import (
+    MAX_ABS_NUMBER,
+    MAX_DEPTH,
+    MAX_FILE_BYTES,
+    MAX_INTEGER_DIGITS,
+    SessionFileError,
+    session_file_error,
+    validate_session,
+)
+
+_DIGESTS: dict = {}  # (path, size, mtime_ns) -> digest, for autosaves after every tick
+
+
+def file_sha256(path, reuse: bool = False) -> str:
+    """SHA-256 of a file's bytes, read in chunks (the file is opened read-only).
+
+    With ``reuse``, a digest computed earlier in this process for the same
+    path, size and modification time is returned without reading the file
+    again: autosaving after every tick must not re-read a large extract
+    (about 1 s per GB).  Checks of whether the data changed never reuse.
+    """
+    st = os.stat(path)
+    key = (str(Path(path).resolve()), st.st_size, st.st_mtime_ns)
+    if reuse and key in _DIGESTS:
+        return _DIGESTS[key]
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    _DIGESTS[key] = h.hexdigest()
+    return _DIGESTS[key]
+
+
+# ---------------------------------------------------------------------------
+# writing
+# ---------------------------------------------------------------------------
+
+
+def _umask() -> int:
+    """The process umask, read without changing it where the system allows (Linux), else 0o022."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    return 0o022
+
+
+def atomic_write_text(path, text: str, private: bool = False) -> None:
+    """Write through a temporary file in the same folder, then os.replace: never a half-written file.
+
+    The file gets ordinary permissions (0o666 less the umask), or owner-only
+    ones when ``private`` (autosaves).
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if not sys.platform.startswith("win"):
+            os.chmod(tmp, 0o600 if private else 0o666 & ~_umask())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def save_session(session: dict, path) -> Path:
+    """Write a session file atomically (temporary file, then ``os.replace``).
+
+    A data path inside the session file's folder is written relative to it,
+    so the folder can be moved as a whole.
+
+    Raises
+    ------
+    SessionFileError
+        When the session is not valid, or ``path`` is the data file.
+    DataFileError
+        When the folder cannot be written.
+    """
+    path = Path(os.fspath(path))
+    validate_session(session)
+    data = Path(session["data"])
+    if _same_file(path, data) or (not data.is_absolute() and _same_file(path, path.parent / data)):
+        raise SessionFileError(f"{path} is the data file itself; Twofold never writes to the data, "
+                               "so choose another file name for the session.")
+    out = dict(session)
+    try:
+        rel = data.resolve().relative_to(path.parent.resolve())
+        out["data"] = rel.as_posix()
+    except (ValueError, OSError):
+        pass
+    text = json.dumps(out, indent=1, ensure_ascii=False, allow_nan=False)
+    try:
+        atomic_write_text(path, text + "\n")
+    except OSError as exc:
+        raise DataFileError(f"Could not write the session file {path} ({exc.strerror}); "
+                            "choose a folder you can write to.") from None
+    return path
+
+
+# ---------------------------------------------------------------------------
+# reading, strictly
+# ---------------------------------------------------------------------------
+
+
+def _max_depth(text: str) -> int:
+    """Deepest nesting of [ and { outside strings, without recursion."""
+    stripped = re.sub(r'"(?:[^"\\]|\\.)*"', '""', text)
+    brackets = np.frombuffer(re.sub(r"[^\[\]{}]", "", stripped).encode("ascii"), dtype=np.uint8)
+    if not brackets.size:
+        return 0
+    step = np.where((brackets == ord("[")) | (brackets == ord("{")), 1, -1)
+    return int(np.cumsum(step).max())
+
+
+def _parse(text: str, path) -> object:
+    def no_constant(name):
+        raise session_file_error(path, f"it holds {name}, which is not a number")
+
+    def checked_int(digits: str):
+        if len(digits.lstrip("-")) > MAX_INTEGER_DIGITS:
+            raise session_file_error(
+                path, f"it holds a whole number of {len(digits.lstrip('-'))} digits, far too large")
+        return int(digits)
+
+    def checked_float(s: str):
+        x = float(s)
+        if not math.isfinite(x) or abs(x) > MAX_ABS_NUMBER:
+            raise session_file_error(path, f"it holds the number {s[:30]}, which is too large")
+        return x
+
+    def no_duplicates(pairs):
+        out = {}
+        for k, v in pairs:
+            if k in out:
+                raise session_file_error(path, f"the key '{k[:40]}' appears twice")
+            out[k] = v
+        return out
+
+    return json.loads(text, parse_constant=no_constant, parse_int=checked_int, parse_float=checked_float,
+                      object_pairs_hook=no_duplicates)
+
+
+def load_session(path) -> dict:
+    """Read and check a session file; nothing in it is ever run.
+
+    Relative data paths are resolved against the session file's folder.  The
+    data file itself is not opened here.
+
+    Raises
+    ------
+    SessionFileError
+        With one sentence saying what is wrong, for any file that is not a
+        valid session of this schema version.
+    """
+    path = Path(os.fspath(path))
+    if not path.is_file():
+        raise SessionFileError(f"The session file {path} does not exist or is not a file; check the name and folder.")
+    size = path.stat().st_size
+    if size > MAX_FILE_BYTES:
+        raise session_file_error(path, f"it is {size / 1e6:.0f} MB, far larger than any session")
+    with open(path, "rb") as fh:
+        raw = fh.read(MAX_FILE_BYTES + 1)
+    if raw[:2] in (b"\x80\x02", b"\x80\x03", b"\x80\x04", b"\x80\x05") or raw[:1] == b"\x80":
+        raise session_file_error(
+            path, "it is a Python pickle, which Twofold never reads because loading one can run code")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise session_file_error(path, "it is not text (a session is JSON text)") from None
+    if not text.strip():
+        raise session_file_error(path, "it is empty")
+    if _max_depth(text) > MAX_DEPTH:
+        raise session_file_error(path, f"it nests lists or objects more than {MAX_DEPTH} deep, which no session does")
+    try:
+        session = _parse(text, path)
+    except SessionFileError:
+        raise
+    except (ValueError, RecursionError) as exc:
+        where = f" (line {exc.lineno}, column {exc.colno})" if isinstance(exc, json.JSONDecodeError) else ""
+        raise session_file_error(path, f"it is not valid JSON{where}") from None
+    validate_session(session, path)
+    data = Path(session["data"])
+    if not data.is_absolute():
+        session["data"] = str((path.parent / data).resolve())
+    return session

@@ -1,0 +1,69 @@
+"""Writing a report file: the content built by the core, laid out as HTML or PDF, written atomically."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from twofold.core.errors import DataFileError
+from twofold.core.privacy import DEFAULT_THRESHOLD
+from twofold.core.report import build_report
+from twofold.core.storage import atomic_write_text
+from twofold.render.report_html import render_html
+from twofold.render.report_pdf import render_pdf
+
+
+def _data_path(result):
+    return result.data if getattr(result, "frozen", False) else result.spec.data
+
+
+def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESHOLD,
+                 include_records: bool = False) -> Path:
+    """Write the report of an analysis as ``.html`` or ``.pdf`` (chosen by the suffix).
+
+    Parameters
+    ----------
+    result : AnalysisResult or FrozenResult
+    path : path
+        Ends in .html/.htm or .pdf.
+    ladder : Ladder or list of lists of str, optional
+    suppress_below : int
+        Counts of 1 up to this many people are suppressed (default 10).
+    include_records : bool
+        Also list the row numbers of the most influential records.
+
+    Raises
+    ------
+    DataFileError
+        Another suffix, the data file itself as the target, or a folder that
+        cannot be written.
+    """
+    path = Path(os.fspath(path))
+    data = Path(os.fspath(_data_path(result)))
+    try:
+        same = path.exists() and data.exists() and os.path.samefile(path, data)
+    except OSError:
+        same = False
+    if same:
+        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
+                            "so choose another file name.")
+    suffix = path.suffix.lower()
+    if suffix not in (".html", ".htm", ".pdf"):
+        raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{path.suffix or path.name}'; "
+                            "end the file name with .html or .pdf.")
+    rep = build_report(result, ladder=ladder, suppress_below=suppress_below, include_records=include_records)
+    try:
+        if suffix == ".pdf":
+            tmp = path.with_name(f".{path.name}.tmp")
+            try:
+                render_pdf(rep, tmp)
+                os.replace(tmp, path)
+            finally:
+                if tmp.exists():
+                    tmp.unlink()
+        else:
+            atomic_write_text(path, render_html(rep))
+    except OSError as exc:
+        raise DataFileError(f"Could not write the report {path} ({exc.strerror}); "
+                            "choose a folder you can write to.") from None
+    return path

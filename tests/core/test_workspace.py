@@ -1,0 +1,142 @@
+"""The workspace: one owner of an analysis, every operation all-or-nothing, with undo and redo."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from twofold.core.errors import TwofoldError
+from twofold.core.session import load_session, save_session
+from twofold.core.workspace import Workspace
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_studies"
+READMISSION = SAMPLES / "readmission_synthetic.csv"
+OUTCOME = "readmitted_30d"
+
+
+@pytest.fixture
+def ws():
+    w = Workspace()
+    w.open(READMISSION)
+    w.set_outcome(OUTCOME)
+    return w
+
+
+def ladder_numbers(w):
+    """What the window shows of the ladder: predictors, log-likelihood and parent of every model."""
+    return [(tuple(r.predictors), round(r.fit.llf, 9), w.parents.get(i)) for i, r in enumerate(w.ladder.rungs)]
+
+
+def test_every_tick_is_its_own_step_with_a_nested_test_that_matches_statsmodels(ws):
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "sex"])
+    ws.set_predictors(["age", "sex", "prior_admissions"])
+    assert [r.predictors for r in ws.ladder.rungs] == [("age",), ("age", "sex"), ("age", "sex", "prior_admissions")]
+    t = ws.nested_between(1, 2)
+    # Outside reference: statsmodels' formula interface (its own design from pandas) on the ladder's common rows.
+    import statsmodels.formula.api as smf
+
+    frame = pd.read_csv(READMISSION)[["age", "sex", "prior_admissions", OUTCOME]].dropna()
+    small = smf.logit(f"{OUTCOME} ~ age + sex", frame).fit(disp=0)
+    large = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions", frame).fit(disp=0)
+    assert t.g == pytest.approx(2 * (large.llf - small.llf), rel=1e-7)
+    assert t.df == 1
+
+
+def test_a_failing_operation_leaves_everything_as_it_was(ws):
+    ws.set_predictors(["age", "sex"])
+    before, revision, undo = ladder_numbers(ws), ws.revision, ws.undo_text
+    with pytest.raises(TwofoldError) as err:
+        ws.set_predictors(["age", "no_such_column"])
+    assert "no_such_column" in str(err.value)
+    with pytest.raises(TwofoldError):
+        ws.set_reference("discharge_destination", "the moon")
+    assert ladder_numbers(ws) == before and ws.revision == revision and ws.undo_text == undo
+
+
+def test_a_role_change_that_removes_models_is_undone_exactly(ws):
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "discharge_destination"])
+    ws.set_predictors(["age", "discharge_destination", "sex"])
+    ws.select(1)
+    before = ladder_numbers(ws)
+    change = ws.set_role("discharge_destination", "excluded", predictors=["age", "discharge_destination"])
+    assert change.removed == 3
+    assert [r.predictors for r in ws.ladder.rungs] == [("age",)]
+    ws.undo()
+    assert ladder_numbers(ws) == before and ws.ladder.current == 1
+    assert ws.study.columns["discharge_destination"].role.value == "categorical"
+    # The fits came back as they were: a tick after the undo tests against the right model.
+    ws.set_predictors(["age", "discharge_destination", "lives_alone"])
+    assert ws.parents[3] == 1
+    ws.undo()
+    ws.redo()
+    assert [r.predictors for r in ws.ladder.rungs][-1] == ("age", "discharge_destination", "lives_alone")
+
+
+def test_undo_and_redo_of_outcome_reference_and_method(ws):
+    ws.set_predictors(["age", "discharge_destination"])
+    or_before = ws.shown_fit().params.copy()
+    ws.set_reference("discharge_destination", "care_home")
+    assert not np.allclose(ws.shown_fit().params, or_before)
+    ws.undo()
+    assert np.allclose(ws.shown_fit().params, or_before)
+    ws.set_penalised(True)
+    assert ws.shown_fit() is not ws.current_rung.fit
+    ws.undo()
+    assert ws.shown_fit() is ws.current_rung.fit
+    with pytest.raises(TwofoldError, match="nothing to redo"):
+        ws.redo(); ws.redo(); ws.redo()  # noqa: E702
+
+
+def test_results_do_not_move_when_a_predictor_is_shifted_or_rows_are_reordered(tmp_path):
+    # Invariance: shifting age and reordering rows leave the tests and the slope unchanged.
+    frame = pd.read_csv(READMISSION)
+    moved = frame.sample(frac=1.0, random_state=7).assign(age=lambda d: d.age - 40)
+    path = tmp_path / "moved.csv"
+    moved.to_csv(path, index=False)
+    out = []
+    for source in (READMISSION, path):
+        w = Workspace()
+        w.open(source)
+        w.set_outcome(OUTCOME)
+        w.set_predictors(["age"])
+        w.set_predictors(["age", "sex"])
+        r = w.result(with_assessment=False).record
+        out.append((r["overall"]["g"], w.nested_between(0, 1).g, r["terms"][0]["estimate"]))
+    assert out[0] == pytest.approx(out[1], rel=1e-8)
+
+
+def test_a_saved_workspace_comes_back_with_its_ladder_parents_and_validation(ws, tmp_path):
+    from twofold.core.modelling import bootstrap_validation
+
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "sex"])
+    ws.select(0)
+    ws.set_predictors(["age", "prior_admissions"])  # built from model 1, not model 2
+    fit = ws.shown_fit()
+    v = bootstrap_validation(fit, 20, seed=5)
+    ws.record_validation(fit, v, 20, 5)
+    path = save_session(ws.to_session(), tmp_path / "a.json")
+    back = Workspace.from_session(load_session(path))
+    assert ladder_numbers(back) == ladder_numbers(ws)
+    assert back.parents == {1: 0, 2: 0}
+    kept = back.validation_of(back.shown_fit())
+    assert kept is not None and kept.seed == 5
+    assert kept.result.auc_corrected == pytest.approx(v.auc_corrected, rel=1e-12)
+    assert not back.unsaved
+
+
+def test_a_validation_of_another_model_is_refused(ws):
+    from twofold.core.modelling import bootstrap_validation
+
+    ws.set_predictors(["age"])
+    old = ws.shown_fit()
+    v = bootstrap_validation(old, 5, seed=1)
+    ws.set_predictors(["age", "sex"])
+    with pytest.raises(TwofoldError, match="model changed"):
+        ws.record_validation(old, v, 5, 1)
+    assert ws.validation is None
