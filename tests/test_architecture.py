@@ -39,7 +39,7 @@ PRIVATE_USE_PENDING: dict = {}
 
 
 def module_name(path: Path) -> str:
-    """``twofold.core.report`` for src/twofold/core/report.py; a package's own name for its __init__.py."""
+    """``twofold.core.outputs.report`` for src/twofold/core/report.py; a package's own name for its __init__.py."""
     parts = list(path.relative_to(SRC).with_suffix("").parts)
     if parts[-1] == "__init__":
         parts.pop()
@@ -178,7 +178,7 @@ CORE_FILES = _sources(CORE)
 
 
 def test_the_core_modules_are_found():
-    assert len(CORE_FILES) > 10 and CORE / "report.py" in CORE_FILES
+    assert len(CORE_FILES) > 10 and CORE / "outputs" / "report.py" in CORE_FILES
 
 
 @pytest.mark.parametrize("path", CORE_FILES, ids=lambda p: p.relative_to(SRC).as_posix())
@@ -251,10 +251,10 @@ def test_forbidden_imports_are_caught(source):
 
 
 @pytest.mark.parametrize("source", [
-    "import numpy as np\nfrom twofold.core.text import fmt_num\n",
+    "import numpy as np\nfrom twofold.core.outputs.text import fmt_num\n",
     "from . import privacy\nfrom .errors import DataFileError\n",
     "import twofold.paths\n",
-    "from twofold.core import report\n",
+    "from twofold.core.outputs import report\n",
     "x = 'matplotlib'\n",
 ])
 def test_allowed_imports_pass(source):
@@ -262,24 +262,24 @@ def test_allowed_imports_pass(source):
 
 
 @pytest.mark.parametrize("source", [
-    "from twofold.core.profile import _check_xy\n",
+    "from twofold.core.models.profile import _check_xy\n",
     "def f():\n    from twofold.gui.figures import _png\n",
     "from .profile import _json_value\n",
     "from twofold.gui import figures\ndef f():\n    return figures._new_figure()\n",
     "def f():\n    from twofold.gui import figures\n    return figures._png(None)\n",
-    "import twofold.core.session as ses\nses._umask()\n",
-    "import twofold.core.session\ntwofold.core.session._umask()\n",
-    "from twofold import core\ncore.session._umask()\n",
+    "import twofold.core.outputs.session as ses\nses._umask()\n",
+    "import twofold.core.outputs.session\ntwofold.core.outputs.session._umask()\n",
+    "from twofold.core import outputs\noutputs.session._umask()\n",
 ])
 def test_private_uses_are_caught(source):
     assert private_uses(source, "twofold.core.example")
 
 
 @pytest.mark.parametrize("source", [
-    "from twofold.core.session import atomic_write_text\n",
+    "from twofold.core.outputs.session import atomic_write_text\n",
     "from twofold import __version__\n",
-    "import twofold.core.session as ses\nses.__name__\n",
-    "from twofold.core.report import Report\nReport('a', 'b')._private_helper\n",   # not a module: not checked
+    "import twofold.core.outputs.session as ses\nses.__name__\n",
+    "from twofold.core.outputs.report import Report\nReport('a', 'b')._private_helper\n",   # not a module: not checked
     "from twofold.render import figures\nfigures.png_bytes\n",
     "import numpy as np\nnp._NoValue\n",
     "class A:\n    def m(self):\n        return self._x\n",

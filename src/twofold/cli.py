@@ -118,7 +118,7 @@ def run_fit(argv: list[str]) -> int:
                       file=sys.stderr)
                 return EXIT_USAGE
     else:
-        from twofold.core.text import describe
+        from twofold.core.outputs.text import describe
 
         sys.stdout.write(describe(record, source))
     return 0

@@ -22,7 +22,7 @@ class CommandParser(argparse.ArgumentParser):
 
 def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
     """``--suppress-up-to N`` and ``--report-records``, shared by ``fit`` and ``rerun``."""
-    from twofold.core.privacy import DEFAULT_THRESHOLD
+    from twofold.core.outputs.privacy import DEFAULT_THRESHOLD
 
     p.add_argument("--suppress-up-to", type=suppress_limit, metavar="N", default=None,
                    help=f"in the report, show counts of 1 to N people as suppressed (default {DEFAULT_THRESHOLD}; "
@@ -49,7 +49,7 @@ def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) 
 
 def suppress_limit(text: str) -> int:
     """The value of ``--suppress-up-to``: a whole number from 1 to the largest limit allowed."""
-    from twofold.core.privacy import MAX_THRESHOLD
+    from twofold.core.outputs.privacy import MAX_THRESHOLD
 
     try:
         value = int(text)

@@ -3,8 +3,8 @@
 ``twofold fit ... --session-out/--report/--table-out`` ends in
 :func:`write_fit_outputs`; ``twofold rerun`` and ``twofold predict`` are
 :func:`run_rerun` and :func:`run_predict`.  The work itself is done in
-:mod:`twofold.core.session`, :mod:`twofold.core.report` (rendered by :mod:`twofold.render`),
-:mod:`twofold.core.export` and :mod:`twofold.core.predict`.  Errors print one
+:mod:`twofold.core.outputs.session`, :mod:`twofold.core.outputs.report` (rendered by :mod:`twofold.render`),
+:mod:`twofold.core.outputs.export` and :mod:`twofold.core.outputs.predict`.  Errors print one
 sentence on stderr and exit 2; nothing here ever writes to a data file.
 """
 
@@ -79,16 +79,16 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
     if table and Path(table).suffix.lower() not in (".csv", ".xlsx"):
         raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{Path(table).suffix or table}'; "
                             "end the file name with .csv or .xlsx.")
-    from twofold.core.session import REPORT_DEFAULTS
+    from twofold.core.outputs.session import REPORT_DEFAULTS
 
     options = report_options(REPORT_DEFAULTS, suppress_up_to, report_records)
     written = []
     if session:
-        from twofold.core.session import save_session, session_from_result
+        from twofold.core.outputs.session import save_session, session_from_result
 
         written.append(save_session(session_from_result(result, ladder=ladder, report=options), session))
     if table:
-        from twofold.core.export import export_coefficients
+        from twofold.core.outputs.export import export_coefficients
 
         lad = ladder if ladder is None or hasattr(ladder, "rungs") else None
         written.append(export_coefficients(result, table, ladder=lad))
@@ -138,7 +138,7 @@ def _emit_json(record: dict, target: str) -> None:
 
 
 def _frozen_text(record: dict, source: str) -> str:
-    from twofold.core.text import fmt_num, fmt_p
+    from twofold.core.outputs.text import fmt_num, fmt_p
 
     a = record["assessment"]
     lo, hi = a["auc_ci"]
@@ -195,15 +195,15 @@ def run_rerun(argv: list[str]) -> int:
     elif record.get("frozen"):
         sys.stdout.write(_frozen_text(record, source))
     else:
-        from twofold.core.text import describe
+        from twofold.core.outputs.text import describe
 
         sys.stdout.write(describe(record, source))
     return 0
 
 
 def _rerun(args):
-    from twofold.core import session as ses
-    from twofold.core.io import read_table
+    from twofold.core.outputs import session as ses
+    from twofold.core.data.io import read_table
 
     session = ses.load_session(args.session)
     options = report_options(session["report"], args.suppress_up_to, args.report_records)
@@ -231,7 +231,7 @@ def _rerun(args):
             else:
                 _note(n.message[:-1] + "; the models that use it are left out of the report.")
     if args.frozen:
-        from twofold.core.predict import evaluate_frozen
+        from twofold.core.outputs.predict import evaluate_frozen
 
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
                                  threshold=session["threshold"])
@@ -243,7 +243,7 @@ def _rerun(args):
             write_report(result, args.report, suppress_below=options["suppress_up_to"])
         return result.record, result.source
     from twofold.core.analysis import run_analysis
-    from twofold.core.study import Study
+    from twofold.core.models.study import Study
 
     spec = ses.spec_from_session(session, data)
     present = {str(c) for c in table.frame.columns}
@@ -298,9 +298,9 @@ def run_predict(argv: list[str]) -> int:
     from twofold.core.errors import TwofoldError
 
     try:
-        from twofold.core.predict import predict
-        from twofold.core.session import frozen_from_session, load_session
-        from twofold.core.summary import PATIENT_CAUTION, plain_value
+        from twofold.core.outputs.predict import predict
+        from twofold.core.outputs.session import frozen_from_session, load_session
+        from twofold.core.outputs.summary import PATIENT_CAUTION, plain_value
 
         session = load_session(args.session)
         _refuse_data_targets([args.json], session["data"], session_file=args.session)
@@ -315,7 +315,7 @@ def run_predict(argv: list[str]) -> int:
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
         return EXIT_USAGE
-    from twofold.core.text import fmt_num
+    from twofold.core.outputs.text import fmt_num
 
     shown = ", ".join(f"{k} = {v}" for k, v in values.items())
     sys.stdout.write(

@@ -220,7 +220,7 @@ def test_predict_json_matches_a_hand_computation(fitted, capsys):
     assert got["ci_low"] == pytest.approx(expit(eta - 1.959963984540054 * se), rel=1e-12)
     assert got["ci_high"] == pytest.approx(expit(eta + 1.959963984540054 * se), rel=1e-12)
     # The one-patient caution travels with the risk, in JSON and in text (the window shows the same words).
-    from twofold.core.summary import PATIENT_CAUTION
+    from twofold.core.outputs.summary import PATIENT_CAUTION
 
     assert got["caution"] == PATIENT_CAUTION and "not a clinical decision" in PATIENT_CAUTION
     code, out, _ = run(capsys, outputs.run_predict, *argv)

@@ -10,10 +10,10 @@ import statsmodels.api as sm
 from scipy import stats
 from sklearn.metrics import roc_auc_score
 
-from twofold.core.assessment import assess
-from twofold.core.ladder import Ladder
-from twofold.core.penalised import profile_intervals
-from twofold.core.study import Study, drop_one_tests
+from twofold.core.assessing.assessment import assess
+from twofold.core.models.ladder import Ladder
+from twofold.core.models.penalised import profile_intervals
+from twofold.core.models.study import Study, drop_one_tests
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_studies"
 PREDICTORS = ["age", "sex", "prior_admissions", "discharge_destination", "lives_alone", "followup_call"]

@@ -20,7 +20,7 @@ from scipy.stats import chi2, norm
 from sklearn.metrics import brier_score_loss
 from statsmodels.nonparametric.smoothers_lowess import lowess
 
-from twofold.core.calibration import (
+from twofold.core.assessing.calibration import (
     brier,
     calibration_groups,
     calibration_slope_intercept,

@@ -23,7 +23,7 @@ from sklearn.metrics import (
     roc_curve,
 )
 
-from twofold.core.discrimination import (
+from twofold.core.assessing.discrimination import (
     auc_delong,
     classification_table,
     delong_paired,

@@ -12,8 +12,8 @@ import pytest
 import statsmodels.api as sm
 from scipy.special import expit
 
-from twofold.core.fit import drop_refits
-from twofold.core.study import Study, drop_one_tests
+from twofold.core.models.fit import drop_refits
+from twofold.core.models.study import Study, drop_one_tests
 
 
 def _study(tmp_path, frame):

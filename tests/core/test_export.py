@@ -13,8 +13,8 @@ import statsmodels.api as sm
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import TwofoldError
-from twofold.core.export import COEFFICIENT_HEADERS, export_coefficients, export_ladder, neutralise
-from twofold.core.session import ladder_from_lists
+from twofold.core.outputs.export import COEFFICIENT_HEADERS, export_coefficients, export_ladder, neutralise
+from twofold.core.outputs.session import ladder_from_lists
 
 ROOT = Path(__file__).resolve().parents[2]
 READMIT = ROOT / "sample_studies" / "readmission_synthetic.csv"

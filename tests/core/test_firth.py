@@ -18,7 +18,7 @@ from scipy.special import expit
 from scipy.stats import chi2
 
 from twofold.core.errors import ModelError
-from twofold.core.firth import firth_fit, firth_lr_test, firth_profile_ci, flic
+from twofold.core.models.firth import firth_fit, firth_lr_test, firth_profile_ci, flic
 
 # ---------------------------------------------------------------------------
 # independent, deliberately naive reference computations

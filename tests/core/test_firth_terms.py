@@ -20,8 +20,8 @@ from scipy.special import expit
 from scipy.stats import chi2
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
-from twofold.core.modelling import interaction_tests, nonlinearity_tests
-from twofold.core.study import Study, drop_one_tests
+from twofold.core.models.modelling import interaction_tests, nonlinearity_tests
+from twofold.core.models.study import Study, drop_one_tests
 
 
 def penalized_llf(X, y, beta):
@@ -143,7 +143,7 @@ def test_whole_analysis_with_firth_spline_and_interaction_runs(small_file):
     # The penalised fit's slope on its own rows is not 1 (the penalty shrinks the estimates), so the
     # note beside it must not claim "1 by construction"; FLIC keeps calibration-in-the-large at 0
     # (Puhr et al. 2017, Stat Med 36:2302).
-    from twofold.core.assessment import PENALISED_CALIBRATION_NOTE
+    from twofold.core.assessing.assessment import PENALISED_CALIBRATION_NOTE
 
     assert rec["assessment"]["calibration_note"] == PENALISED_CALIBRATION_NOTE
     assert rec["assessment"]["calibration_intercept"] == pytest.approx(0.0, abs=1e-6)

@@ -11,10 +11,10 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
-from twofold.core.design import aliased_columns
-from twofold.core.fit import chi2_sf, wald_p
-from twofold.core.io import LoadedTable
-from twofold.core.study import Study
+from twofold.core.models.design import aliased_columns
+from twofold.core.models.fit import chi2_sf, wald_p
+from twofold.core.data.io import LoadedTable
+from twofold.core.models.study import Study
 
 from pathlib import Path
 

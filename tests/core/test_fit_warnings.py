@@ -10,8 +10,8 @@ import pytest
 import statsmodels.api as sm
 
 from twofold.core.errors import ModelError, SeparationWarning
-from twofold.core.io import LoadedTable
-from twofold.core.study import Study
+from twofold.core.data.io import LoadedTable
+from twofold.core.models.study import Study
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_studies"
 

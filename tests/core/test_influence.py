@@ -17,7 +17,7 @@ from statsmodels.multivariate.cancorr import CanCorr
 from statsmodels.stats.outliers_influence import variance_inflation_factor
 
 from twofold.core.errors import ColumnError, ModelError
-from twofold.core.influence import gvif, influence_measures, vif
+from twofold.core.assessing.influence import gvif, influence_measures, vif
 
 
 def spector():

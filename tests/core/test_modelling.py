@@ -10,11 +10,11 @@ import pytest
 import statsmodels.api as sm
 
 from twofold.core.errors import ModelError
-from twofold.core.io import LoadedTable
-from twofold.core.modelling import (bootstrap_validation, conditional_odds_ratios, effect_curve,
+from twofold.core.data.io import LoadedTable
+from twofold.core.models.modelling import (bootstrap_validation, conditional_odds_ratios, effect_curve,
                                     interaction_tests, nonlinearity_tests)
-from twofold.core.study import Study
-from twofold.core.terms import KNOT_QUANTILES, rcs_basis
+from twofold.core.models.study import Study
+from twofold.core.models.terms import KNOT_QUANTILES, rcs_basis
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_studies"
 
@@ -168,7 +168,7 @@ def test_bootstrap_on_noise_corrects_auc_towards_one_half():
 
 
 def test_bootstrap_can_be_cancelled():
-    from twofold.core.modelling import ValidationCancelled
+    from twofold.core.models.modelling import ValidationCancelled
 
     st = Study.from_file(SAMPLES / "readmission_synthetic.csv")
     st.set_outcome("readmitted_30d")

@@ -12,7 +12,7 @@ from scipy.special import expit
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import ModelError, TwofoldError
-from twofold.core.predict import FrozenModel, design_matrix, frozen_model, predict
+from twofold.core.outputs.predict import FrozenModel, design_matrix, frozen_model, predict
 
 ROOT = Path(__file__).resolve().parents[2]
 READMIT = ROOT / "sample_studies" / "readmission_synthetic.csv"

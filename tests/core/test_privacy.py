@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from twofold.core.errors import TwofoldError
-from twofold.core.privacy import SUPPRESSED, is_small, protect_table, show_count
+from twofold.core.outputs.privacy import SUPPRESSED, is_small, protect_table, show_count
 
 
 def brute_values(values, hidden, shape, row_totals=True, col_totals=True):

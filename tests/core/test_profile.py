@@ -19,7 +19,7 @@ from scipy.special import expit
 from scipy.stats import bernoulli, chi2
 
 from twofold.core.errors import ModelError
-from twofold.core.profile import profile_all, profile_likelihood_ci
+from twofold.core.models.profile import profile_all, profile_likelihood_ci
 
 CHI2_95_1DF = 3.841  # chi-square upper 5% point, 1 df (NIST/SEMATECH e-Handbook table)
 CHI2_90_1DF = 2.706  # chi-square upper 10% point, 1 df (NIST/SEMATECH e-Handbook table)

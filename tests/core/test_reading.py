@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 
 from twofold.core.errors import ColumnError, DataFileError
-from twofold.core.io import read_table
-from twofold.core.roles import Role
-from twofold.core.study import Study
+from twofold.core.data.io import read_table
+from twofold.core.data.roles import Role
+from twofold.core.models.study import Study
 
 ROWS = [
     ("P1", "2024-01-03", 54, "F", "home", "yes", 1),
@@ -105,7 +105,7 @@ def test_identifier_like_columns_are_not_offered():
         "ward": [f"W{i % 40}" for i in range(100)],
         "y": [i % 2 for i in range(100)],
     })
-    from twofold.core.io import LoadedTable
+    from twofold.core.data.io import LoadedTable
     from pathlib import Path
 
     st = Study(LoadedTable(frame, Path("m.csv")))
@@ -121,7 +121,7 @@ def test_outcome_must_have_two_values(tmp_path):
     with pytest.raises(ColumnError, match="3 different values .*'home' \\(3 rows\\)"):
         st.set_outcome("destination", "home")
     st.frame["same"] = 1
-    st._columns = __import__("twofold.core.roles", fromlist=["x"]).describe_columns(st.frame)
+    st._columns = __import__("twofold.core.data.roles", fromlist=["x"]).describe_columns(st.frame)
     with pytest.raises(ColumnError, match="only one value"):
         st.set_outcome("same", 1)
 
@@ -186,7 +186,7 @@ def test_spaces_around_identifiers_are_stripped(tmp_path):
 def test_large_frames_are_described_as_column_by_column():
     # Past a size, numeric columns are described on a second thread; the
     # descriptions must be those of describing each column alone.
-    from twofold.core.roles import _THREAD_CELLS, describe_column, describe_columns
+    from twofold.core.data.roles import _THREAD_CELLS, describe_column, describe_columns
 
     rng = np.random.default_rng(7)
     n = _THREAD_CELLS // 4 + 1

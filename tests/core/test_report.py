@@ -19,8 +19,8 @@ from sklearn.metrics import roc_auc_score
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import TwofoldError
-from twofold.core.privacy import SUPPRESSED
-from twofold.core.report import Table, build_report
+from twofold.core.outputs.privacy import SUPPRESSED
+from twofold.core.outputs.report import Table, build_report
 from twofold.render.report_writer import write_report
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -16,7 +16,7 @@ import pytest
 from statsmodels.stats.proportion import samplesize_confint_proportion
 
 from twofold.core.errors import TwofoldError
-from twofold.core.samplesize import events_per_parameter, riley_minimum_sample_size
+from twofold.core.assessing.samplesize import events_per_parameter, riley_minimum_sample_size
 
 
 def test_riley_2020_check_vector():

@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from twofold.core import session as ses
+from twofold.core.outputs import session as ses
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import TwofoldError
 
@@ -259,7 +259,7 @@ def test_digest_is_reused_only_for_an_unchanged_file(tmp_path, monkeypatch):
     import hashlib
     import os
 
-    from twofold.core import session as sess
+    from twofold.core.outputs import session as sess
 
     data = tmp_path / "d.csv"
     data.write_bytes(b"a,b\n1,2\n")

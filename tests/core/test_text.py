@@ -11,7 +11,7 @@ import math
 
 import pytest
 
-from twofold.core.text import fmt_num, fmt_or, fmt_p
+from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p
 
 
 @pytest.mark.parametrize("x, shown", [

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from twofold.core.errors import TwofoldError
-from twofold.core.session import load_session, save_session
+from twofold.core.outputs.session import load_session, save_session
 from twofold.core.workspace import Workspace
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_studies"
@@ -111,7 +111,7 @@ def test_results_do_not_move_when_a_predictor_is_shifted_or_rows_are_reordered(t
 
 
 def test_a_saved_workspace_comes_back_with_its_ladder_parents_and_validation(ws, tmp_path):
-    from twofold.core.modelling import bootstrap_validation
+    from twofold.core.models.modelling import bootstrap_validation
 
     ws.set_predictors(["age"])
     ws.set_predictors(["age", "sex"])
@@ -131,7 +131,7 @@ def test_a_saved_workspace_comes_back_with_its_ladder_parents_and_validation(ws,
 
 
 def test_a_validation_of_another_model_is_refused(ws):
-    from twofold.core.modelling import bootstrap_validation
+    from twofold.core.models.modelling import bootstrap_validation
 
     ws.set_predictors(["age"])
     old = ws.shown_fit()

@@ -17,9 +17,9 @@ import pandas as pd
 import pytest
 
 from gui_helpers import READMISSION, WAIT_MS, choose_outcome, load, tick
-from twofold.core.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
-from twofold.core.study import Study
-from twofold.core.text import fmt_num
+from twofold.core.assessing.assessment import APPARENT_CALIBRATION_NOTE, HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
+from twofold.core.models.study import Study
+from twofold.core.outputs.text import fmt_num
 from twofold.gui import session as session_module
 
 PREDICTORS = ["age", "sex", "discharge_destination"]
@@ -50,7 +50,7 @@ def core_fit(predictors):
 def test_displayed_assessment_equals_outside_references(qtbot, readmission):
     from sklearn.metrics import brier_score_loss, roc_auc_score
 
-    from twofold.core.calibration import hosmer_lemeshow
+    from twofold.core.assessing.calibration import hosmer_lemeshow
 
     window = readmission
     tick(qtbot, window, PREDICTORS)

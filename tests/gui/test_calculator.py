@@ -203,7 +203,7 @@ def test_nothing_typed_is_kept_anywhere(qtbot, fitted, home, tmp_path, monkeypat
     assert typed_far in c.problem.text()
 
     # An unexpected failure is logged, but without its message (it could quote a value).
-    import twofold.core.predict as core_predict
+    import twofold.core.outputs.predict as core_predict
 
     def broken(model, values):
         raise ValueError(f"cannot use {values}")

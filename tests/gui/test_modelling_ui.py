@@ -27,8 +27,8 @@ def dialog(qtbot, window):
 
 def _core_fit(predictors, splines=()):
     """The same model fitted directly with the core, outside the window."""
-    from twofold.core.io import read_table
-    from twofold.core.study import Study
+    from twofold.core.data.io import read_table
+    from twofold.core.models.study import Study
 
     study = Study(read_table(READMISSION))
     study.set_outcome(OUTCOME, guess=True)
@@ -39,7 +39,7 @@ def _core_fit(predictors, splines=()):
 
 
 def test_spline_shows_core_nonlinearity_test(qtbot, window, dialog):
-    from twofold.core.modelling import nonlinearity_tests
+    from twofold.core.models.modelling import nonlinearity_tests
 
     rid = dialog.apply_spline("age", 4)
     qtbot.waitUntil(lambda: dialog.spline_result is not None and idle(window), timeout=WAIT_MS)
@@ -89,8 +89,8 @@ def _run_boot(qtbot, dialog, reps, seed):
 
 
 def test_bootstrap_matches_core_with_same_seed(qtbot, window, dialog):
-    from twofold.core.modelling import bootstrap_validation
-    from twofold.core.text import fmt_num
+    from twofold.core.models.modelling import bootstrap_validation
+    from twofold.core.outputs.text import fmt_num
 
     _run_boot(qtbot, dialog, 20, 7)
     v = dialog.validation

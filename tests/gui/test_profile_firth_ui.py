@@ -21,9 +21,9 @@ import pytest
 from PySide6.QtCore import Qt
 
 from gui_helpers import READMISSION, WAIT_MS, WOUND, choose_outcome, idle, load, tick
-from twofold.core.penalised import profile_intervals
-from twofold.core.study import Study
-from twofold.core.text import fmt_or
+from twofold.core.models.penalised import profile_intervals
+from twofold.core.models.study import Study
+from twofold.core.outputs.text import fmt_or
 from twofold.gui import present
 from twofold.gui.tables import CoefficientModel, RawRole
 
@@ -238,7 +238,7 @@ def test_separation_offers_firth_whose_estimate_adds_half_to_every_cell(qtbot, w
     box = window.results_pane.assessment_box
     qtbot.waitUntil(lambda: box.view is not None and box.view.penalised, timeout=WAIT_MS)
     assert "FLIC" in box.heading.text()
-    from twofold.core.assessment import PENALISED_CALIBRATION_NOTE
+    from twofold.core.assessing.assessment import PENALISED_CALIBRATION_NOTE
 
     assert PENALISED_CALIBRATION_NOTE in box.calibration.text()
     assert box.view.values["calibration_intercept"] == pytest.approx(0.0, abs=1e-6)

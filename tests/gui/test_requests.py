@@ -13,7 +13,7 @@ from PySide6.QtCore import Qt
 
 from gui_helpers import READMISSION, WAIT_MS, choose_outcome, load, tick
 from twofold.core.errors import TwofoldError
-from twofold.core.study import Study
+from twofold.core.models.study import Study
 from twofold.gui import session as session_module
 from twofold.gui.worker import JobResult
 
@@ -106,7 +106,7 @@ def test_a_tick_with_no_usable_rows_is_undone_with_the_core_message(qtbot, windo
     path.write_text("\n".join(lines) + "\n")
     study = Study.from_file(path)
     study.set_outcome("outcome")
-    from twofold.core.ladder import Ladder
+    from twofold.core.models.ladder import Ladder
 
     with pytest.raises(TwofoldError) as expected:
         Ladder(study).add(["dose"])
@@ -124,7 +124,7 @@ def test_a_tick_with_no_usable_rows_is_undone_with_the_core_message(qtbot, windo
 
 def test_an_unexpected_error_is_logged_and_shown_not_a_crash(qtbot, readmission, home, monkeypatch):
     window = readmission
-    from twofold.core.ladder import Ladder
+    from twofold.core.models.ladder import Ladder
 
     def broken(self, predictors):
         raise RuntimeError("simulated failure inside the fit")

@@ -17,8 +17,8 @@ from PySide6.QtCore import Qt
 from scipy.stats import chi2
 
 from gui_helpers import READMISSION, WOUND, choose_outcome, load, tick
-from twofold.core.study import Study
-from twofold.core.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
+from twofold.core.models.study import Study
+from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
 from twofold.gui.tables import RawRole
 
 
@@ -206,7 +206,7 @@ def test_reference_level_and_role_changes_refit(qtbot, readmission):
 
 
 def test_caution_is_always_visible_and_says_the_core_caution(qtbot, window):
-    from twofold.core.summary import CAUTION
+    from twofold.core.outputs.summary import CAUTION
     from twofold.gui.views import CAUTION as GUI_CAUTION
 
     assert GUI_CAUTION == CAUTION

@@ -373,7 +373,7 @@ def test_refuses_to_write_onto_the_data_file(qtbot, window, tmp_path):
 
 
 def test_autosave_written_after_a_tick_and_removed_on_a_clean_close(qtbot, window, home):
-    from twofold.core.session import load_session
+    from twofold.core.outputs.session import load_session
 
     assert window.sessions.enable_autosave()
     done = Finished(window)
@@ -507,7 +507,7 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
     import re
 
     import twofold.gui.sessions_ui as sessions_ui
-    from twofold.core.session import load_session
+    from twofold.core.outputs.session import load_session
 
     # The dialog: the limit and the tick start from what it is given, and it says why row numbers matter.
     dialog = sessions_ui.ReportOptionsDialog(window, 10, False)

@@ -12,7 +12,7 @@ from PySide6.QtWidgets import QWidget
 
 from gui_helpers import READMISSION, REPO, SAMPLES, load
 from twofold.core.errors import TwofoldError
-from twofold.core.study import Study
+from twofold.core.models.study import Study
 
 
 def test_snapshot_writes_a_png_of_the_asked_size(qtbot, home, tmp_path, capsys):

@@ -54,10 +54,10 @@ def run_bootstrap_by_hand(qtbot, window, repetitions: str, seed: str):
 
 
 def test_the_bootstrap_button_runs_the_number_typed(qtbot, readmission):
-    from twofold.core.io import read_table
-    from twofold.core.modelling import bootstrap_validation
-    from twofold.core.study import Study
-    from twofold.core.text import fmt_num
+    from twofold.core.data.io import read_table
+    from twofold.core.models.modelling import bootstrap_validation
+    from twofold.core.models.study import Study
+    from twofold.core.outputs.text import fmt_num
 
     window = readmission
     for name in ("age", "prior_admissions"):

@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
-from twofold.core.modelling import effect_curve
-from twofold.core.report import Figure, build_report
+from twofold.core.models.modelling import effect_curve
+from twofold.core.outputs.report import Figure, build_report
 from twofold.render import figures
 from twofold.render.report_html import FIGURE_DPI, FIGURE_SIZE, report_figure_png
 

@@ -10,7 +10,7 @@ import pytest
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import DataFileError
-from twofold.core.report import Figure, build_report
+from twofold.core.outputs.report import Figure, build_report
 from twofold.render import report_writer
 from twofold.render.report_html import render_html, report_figure_png
 from twofold.render.report_pdf import render_pdf

@@ -29,8 +29,8 @@ import statsmodels.api as sm
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from twofold.core.io import LoadedTable
-from twofold.core.study import Study
+from twofold.core.data.io import LoadedTable
+from twofold.core.models.study import Study
 
 SETTINGS = settings(max_examples=20, deadline=None, derandomize=True,
                     suppress_health_check=[HealthCheck.too_slow])
@@ -180,8 +180,8 @@ def test_tied_levels_give_the_same_reference_in_any_row_order():
 
 def test_describing_a_freshly_read_column_equals_describing_a_copy(tmp_path):
     """The distinct values kept from reading give the same description as a fresh pass over the cells."""
-    from twofold.core.io import read_table
-    from twofold.core.roles import describe_columns
+    from twofold.core.data.io import read_table
+    from twofold.core.data.roles import describe_columns
 
     rng = np.random.default_rng(11)
     n = 30_000

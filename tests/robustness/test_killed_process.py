@@ -22,7 +22,7 @@ from pathlib import Path
 import pytest
 
 from robust_support import STEP_LOOP
-from twofold.core.session import load_session
+from twofold.core.outputs.session import load_session
 
 REPO = Path(__file__).resolve().parents[2]
 READMISSION = REPO / "sample_studies" / "readmission_synthetic.csv"

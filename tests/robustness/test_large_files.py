@@ -18,8 +18,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from twofold.core.io import ReadCancelled, read_table
-from twofold.core.roles import Role, describe_columns
+from twofold.core.data.io import ReadCancelled, read_table
+from twofold.core.data.roles import Role, describe_columns
 
 
 def _block(rows: int = 20_000, seed: int = 7) -> pd.DataFrame:

@@ -24,9 +24,9 @@ import statsmodels.api as sm
 
 from robust_support import run_cli
 from twofold.core.errors import DataFileError, TwofoldError
-from twofold.core.io import read_table
-from twofold.core.roles import Role, describe_columns
-from twofold.core.study import Study
+from twofold.core.data.io import read_table
+from twofold.core.data.roles import Role, describe_columns
+from twofold.core.models.study import Study
 
 RNG_SEED = 20240611
 

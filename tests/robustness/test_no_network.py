@@ -21,7 +21,7 @@ import pandas as pd
 import pytest
 
 from robust_support import changed_files, run_guarded, snapshot
-from twofold.core.io import read_table
+from twofold.core.data.io import read_table
 
 
 def sha256(path: Path) -> str:

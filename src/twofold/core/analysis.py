@@ -88,7 +88,7 @@ class AnalysisResult:
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
     """Load the data (unless a study is given) and apply roles, outcome and references."""
-    from twofold.core.study import Study
+    from twofold.core.models.study import Study
 
     if study is None:
         study = Study.from_file(spec.data, sheet=spec.sheet)
@@ -112,8 +112,8 @@ def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
 
 
 def role_names() -> list[str]:
-    """The role names a column can be given (the values of :class:`~twofold.core.roles.Role`)."""
-    from twofold.core.roles import Role
+    """The role names a column can be given (the values of :class:`~twofold.core.data.roles.Role`)."""
+    from twofold.core.data.roles import Role
 
     return [r.value for r in Role]
 
@@ -177,7 +177,7 @@ def columns_of(study, names) -> list[str]:
     ColumnError
         For a name that is not a column of the file.
     """
-    from twofold.core.terms import split_interaction
+    from twofold.core.models.terms import split_interaction
 
     present = study.columns
     out = []
@@ -198,7 +198,7 @@ def extra_row_columns(study, predictors, columns) -> list[str]:
 def count_rows_left_out(study, fit, columns) -> None:
     """Make the row counts of ``fit`` cover the other ``columns`` that decided its rows (changes ``fit``).
 
-    :meth:`~twofold.core.study.Study.fit` counts the missing values of the
+    :meth:`~twofold.core.models.study.Study.fit` counts the missing values of the
     model's own predictors only; when other columns also decided the rows
     (the common rows of a ladder), the rows they cost would otherwise go
     unexplained.  Each such column that misses values among the rows with an
@@ -238,9 +238,9 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
     AnalysisResult
         ``record`` follows the JSON contract of ``twofold fit``.
     """
-    from twofold.core.assessment import assess
-    from twofold.core.fit import nested_test
-    from twofold.core.summary import fit_record
+    from twofold.core.assessing.assessment import assess
+    from twofold.core.models.fit import nested_test
+    from twofold.core.outputs.summary import fit_record
 
     study, event = prepare_study(spec, study, guess_event)
     predictors = [study.column(p) for p in spec.predictors]
@@ -276,7 +276,7 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
     assessment = assess(study, fit, threshold=spec.threshold)
     profile = None
     if spec.profile_ci:
-        from twofold.core.penalised import profile_intervals
+        from twofold.core.models.penalised import profile_intervals
 
         profile = profile_intervals(fit)
         lost = [name for name, (lo, hi) in profile.items() if lo != lo or hi != hi]  # NaN: not found
@@ -287,8 +287,8 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
                 "profile", f"The profile-likelihood interval could not be found for {', '.join(lost)} "
                 "(too few records for a clear maximum); read the Wald interval with care.", tuple(lost)))
     record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
-    from twofold.core.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
-    from twofold.core.summary import clean_number
+    from twofold.core.models.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
+    from twofold.core.outputs.summary import clean_number
 
     if spec.splines:
         record["nonlinearity"] = [

@@ -61,7 +61,7 @@ class Change:
 class ValidationRecord:
     """A bootstrap validation of one model: its settings, seed and figures.
 
-    ``result`` is a :class:`~twofold.core.modelling.Validation`;
+    ``result`` is a :class:`~twofold.core.models.modelling.Validation`;
     ``predictors`` and ``penalised`` say which model it describes.
     """
 
@@ -86,7 +86,7 @@ def is_penalised(fit) -> bool:
 
 def assess_fit(study, fit, threshold=None, checkpoint=None):
     """The assessment of a read-only fit (safe off the workspace's thread: it reads only the fit)."""
-    from twofold.core.assessment import assess
+    from twofold.core.assessing.assessment import assess
 
     return assess(study, fit, threshold=threshold, checkpoint=checkpoint)
 
@@ -114,7 +114,7 @@ class Workspace:
         self.penalised = False
         self.threshold = DEFAULT_THRESHOLD
         self.validation: ValidationRecord | None = None
-        from twofold.core.session import REPORT_DEFAULTS
+        from twofold.core.outputs.session import REPORT_DEFAULTS
 
         self.report_options = dict(REPORT_DEFAULTS)
         #: Profile intervals for every model, not only small ones.
@@ -223,14 +223,14 @@ class Workspace:
     # ---- operations ------------------------------------------------------------------
     def open(self, path, sheet: str | None = None, progress=None) -> Change:
         """Read a data file and start a new analysis on it (the file is only ever read)."""
-        from twofold.core.io import read_table
-        from twofold.core.study import Study
+        from twofold.core.data.io import read_table
+        from twofold.core.models.study import Study
 
         return self.adopt(Study(read_table(path, sheet=sheet, progress=progress)))
 
     def adopt(self, study, ladder=None, parents=None) -> Change:
         """Start a new analysis on a prepared study (and, when restoring, its fitted ladder)."""
-        from twofold.core.ladder import Ladder
+        from twofold.core.models.ladder import Ladder
 
         self.study = study
         self.ladder = ladder if ladder is not None else Ladder(study)
@@ -320,7 +320,7 @@ class Workspace:
 
     def set_role(self, column: str, role: str, predictors=()) -> Change:
         """Change how a column is used; the ladder is refitted, or restarted when the column leaves the models."""
-        from twofold.core.roles import Role
+        from twofold.core.data.roles import Role
 
         def run():
             study, ladder = self.study, self.ladder
@@ -420,7 +420,7 @@ class Workspace:
         return change
 
     def set_report_options(self, suppress_up_to: int, list_records: bool) -> Change:
-        from twofold.core.privacy import MAX_THRESHOLD
+        from twofold.core.outputs.privacy import MAX_THRESHOLD
 
         n = int(suppress_up_to)
         if not 1 <= n <= MAX_THRESHOLD:
@@ -467,7 +467,7 @@ class Workspace:
 
     def nested_between(self, i: int, j: int):
         """The (penalised, when chosen) likelihood-ratio test between rungs i and j, or None if not nested."""
-        from twofold.core.fit import LikelihoodRatioTest, nested_test
+        from twofold.core.models.fit import LikelihoodRatioTest, nested_test
 
         if not self.penalised:
             return self.ladder.nested(i, j)
@@ -494,7 +494,7 @@ class Workspace:
 
     def shape_tests(self, fit) -> tuple[list, list]:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""
-        from twofold.core.modelling import interaction_tests, nonlinearity_tests
+        from twofold.core.models.modelling import interaction_tests, nonlinearity_tests
 
         try:
             curves = nonlinearity_tests(self.study, fit)
@@ -512,8 +512,8 @@ class Workspace:
 
     def profile_intervals(self, fit) -> dict:
         """Profile-likelihood intervals of the odds ratios of a read-only fit (cached; any thread)."""
-        from twofold.core.fit import one_blas_thread
-        from twofold.core.penalised import profile_intervals
+        from twofold.core.models.fit import one_blas_thread
+        from twofold.core.models.penalised import profile_intervals
 
         with self._profile_lock:
             hit = self._profiles.get(id(fit))
@@ -574,7 +574,7 @@ class Workspace:
         import copy
 
         from twofold.core.analysis import AnalysisResult, count_rows_left_out, extra_row_columns
-        from twofold.core.summary import clean_number, fit_record
+        from twofold.core.outputs.summary import clean_number, fit_record
 
         spec = self.spec()
         study, shown = self.study, self.shown_fit()
@@ -583,7 +583,7 @@ class Workspace:
         elif assessment is not None and self.threshold is not None:
             from dataclasses import replace
 
-            from twofold.core import discrimination as disc
+            from twofold.core.assessing import discrimination as disc
 
             table = disc.classification_table(shown.design.y, shown.fitted, self.threshold)
             assessment = replace(assessment, classification=table)
@@ -619,9 +619,9 @@ class Workspace:
     # ---- sessions ---------------------------------------------------------------------------
     def to_session(self) -> dict:
         """The session of this analysis (the whole ladder, parents, options and kept validation)."""
-        from twofold.core.session import session_from_result
+        from twofold.core.outputs.session import session_from_result
 
-        from twofold.core.summary import clean_number
+        from twofold.core.outputs.summary import clean_number
 
         result = self.result(with_assessment=False, with_record=False)
         session = session_from_result(result, ladder=self.ladder, report=self.report_options)
@@ -636,10 +636,10 @@ class Workspace:
     def from_session(cls, session: dict, data=None, table=None, progress=None) -> "Workspace":
         """The analysis a session describes, fitted again on its data file (or ``data``, or ``table`` read)."""
         from twofold.core.analysis import prepare_study
-        from twofold.core.io import read_table
-        from twofold.core.ladder import Ladder
-        from twofold.core.session import spec_from_session
-        from twofold.core.study import Study
+        from twofold.core.data.io import read_table
+        from twofold.core.models.ladder import Ladder
+        from twofold.core.outputs.session import spec_from_session
+        from twofold.core.models.study import Study
 
         spec = spec_from_session(session, data=data)
         study = Study(table if table is not None else read_table(spec.data, sheet=spec.sheet, progress=progress))
@@ -665,7 +665,7 @@ class Workspace:
         ws.profile_always = bool(session["profile_ci"]) and not profile_auto(ws.shown_fit())
         saved = session.get("validation_result")
         if saved and session.get("validate"):
-            from twofold.core.modelling import Validation
+            from twofold.core.models.modelling import Validation
 
             ws.validation = ValidationRecord(int(session["validate"]), int(session["seed"] or 0),
                                              Validation.from_dict(saved),

@@ -2,7 +2,7 @@
 
 One field per predictor of the model: a box for a number, a list of groups
 for a categorical predictor.  Curved (spline) effects and interactions need
-no field of their own; the core's :func:`twofold.core.predict.predict` builds
+no field of their own; the core's :func:`twofold.core.outputs.predict.predict` builds
 them from the predictors' values, with the model's own encoding.  The risk
 comes with its 95% interval (delta method on the logit scale, worked out by
 the core) and, right beside it, the caution that it is a statistical
@@ -23,7 +23,7 @@ from PySide6.QtWidgets import (
     QScrollArea, QSizePolicy, QVBoxLayout, QWidget,
 )
 
-from twofold.core.summary import PATIENT_CAUTION as RISK_CAUTION  # beside every risk; the CLI says the same
+from twofold.core.outputs.summary import PATIENT_CAUTION as RISK_CAUTION  # beside every risk; the CLI says the same
 from twofold.gui import style
 
 
@@ -34,7 +34,7 @@ NOT_KEPT = "The values typed here are not saved anywhere and are cleared when th
 def _model_job(ws):
     """The model shown as numbers, with a few words about it (worker thread)."""
     from twofold.core.errors import TwofoldError
-    from twofold.core.predict import frozen_model
+    from twofold.core.outputs.predict import frozen_model
 
     fit = ws.shown_fit() if ws.study is not None else None
     if fit is None:
@@ -51,7 +51,7 @@ def _model_job(ws):
 def _predict_job(model, values):
     """The predicted risk, or the core's one-sentence reason it cannot be given (worker thread)."""
     from twofold.core.errors import TwofoldError
-    from twofold.core.predict import predict
+    from twofold.core.outputs.predict import predict
 
     try:
         return predict(model, values)

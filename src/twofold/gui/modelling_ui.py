@@ -32,7 +32,7 @@ def spline_job(column: str, knots: int | None):
     """A job for :meth:`Session.run_modelling`: set the shape of ``column`` (the workspace refits)."""
 
     def job(ws):
-        from twofold.core.modelling import effect_curve
+        from twofold.core.models.modelling import effect_curve
         from twofold.render.figures import effect_figure
 
         ws.set_spline(column, knots)
@@ -51,7 +51,7 @@ def interaction_job(focus: str, other: str, at=None):
     """A job: add ``focus:other`` (and both main effects) as a new rung, with its test and odds ratios."""
 
     def job(ws):
-        from twofold.core.modelling import conditional_odds_ratios
+        from twofold.core.models.modelling import conditional_odds_ratios
 
         _, term = ws.add_interaction(focus, other)
         fit = ws.shown_fit()
@@ -94,7 +94,7 @@ class BootstrapThread(QThread):
 
     def run(self) -> None:  # noqa: D401 - QThread entry point
         from twofold.core.errors import TwofoldError
-        from twofold.core.modelling import ValidationCancelled, bootstrap_validation
+        from twofold.core.models.modelling import ValidationCancelled, bootstrap_validation
 
         self.thread_ident = threading.get_ident()
         try:
@@ -348,7 +348,7 @@ class ModelShapeDialog(QDialog):
             self._boot_idle(failure.message)
 
     def _show_spline(self, payload) -> None:
-        from twofold.core.text import fmt_num, fmt_p
+        from twofold.core.outputs.text import fmt_num, fmt_p
 
         self.spline_result = payload
         col = payload["column"]
@@ -371,7 +371,7 @@ class ModelShapeDialog(QDialog):
         self.status.setText("The model was refitted; the results pane shows it.")
 
     def _show_interaction(self, payload) -> None:
-        from twofold.core.text import fmt_num, fmt_or, fmt_p
+        from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p
 
         self.interaction_result = payload
         term = payload["term"]
@@ -415,7 +415,7 @@ class ModelShapeDialog(QDialog):
         self.boot_bar.setValue(done)
 
     def _on_boot_done(self, v) -> None:
-        from twofold.core.text import fmt_num
+        from twofold.core.outputs.text import fmt_num
 
         self.validation = v
         fit, reps, seed = self._boot_fit, v.repetitions, self.seed_spin.value()

@@ -1,8 +1,8 @@
 """Turn the core's objects into display records (runs on the worker thread).
 
-Every number here is read from the core (:class:`~twofold.core.fit.LogisticFit`,
-:class:`~twofold.core.ladder.Ladder`) and formatted with the core's own
-:mod:`twofold.core.text` helpers, so the window words things exactly as the
+Every number here is read from the core (:class:`~twofold.core.models.fit.LogisticFit`,
+:class:`~twofold.core.models.ladder.Ladder`) and formatted with the core's own
+:mod:`twofold.core.outputs.text` helpers, so the window words things exactly as the
 command line does.  Nothing here imports Qt.
 """
 
@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import math
 
-from twofold.core.roles import MAX_CATEGORY_LEVELS, Role
-from twofold.core.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
+from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
+from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
     OutcomeView, ProfileView, ResultsView, StudyView, TestView,
@@ -472,8 +472,8 @@ def _pct(x) -> str:
 
 def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     """The assessment of the model shown, worded (``result`` is a core ``Assessment`` of ``fit``)."""
-    from twofold.core.assessment import HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
-    from twofold.core.influence import VIF_THRESHOLD
+    from twofold.core.assessing.assessment import HOSMER_LEMESHOW_NOTE, THRESHOLD_NOTE
+    from twofold.core.assessing.influence import VIF_THRESHOLD
 
     penalised = is_penalised(fit)
     a = result.auc

@@ -397,7 +397,7 @@ class Session(QObject):
     # ---- worker thread --------------------------------------------------------
     def _job_warmup(self):
         # Import the heavy libraries now, off the GUI thread, so the first fit is quick.
-        from twofold.core.fit import warm_up
+        from twofold.core.models.fit import warm_up
 
         import twofold.gui.present  # noqa: F401
 
@@ -474,7 +474,7 @@ class Session(QObject):
             known = self._assessment_of
             if known is not None and known[0] is fit:
                 # Only the threshold changed: the rest stands, figures included.
-                from twofold.core import discrimination as disc
+                from twofold.core.assessing import discrimination as disc
 
                 _, result, pictures = known
                 table = disc.classification_table(fit.design.y, fit.fitted, threshold)

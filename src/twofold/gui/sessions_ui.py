@@ -60,7 +60,7 @@ class ReportOptionsDialog(QDialog):
     """Asks how the report treats small counts and record numbers; it only asks, the core does the rest."""
 
     def __init__(self, parent, suppress_up_to: int, list_records: bool):
-        from twofold.core.privacy import MAX_THRESHOLD
+        from twofold.core.outputs.privacy import MAX_THRESHOLD
 
         super().__init__(parent)
         self.setWindowTitle("Twofold: report options")
@@ -133,7 +133,7 @@ class SessionActions(QObject):
         self.restore_offered: Path | None = None
         self.autosave_enabled = False
         self.last_autosave: str | None = None
-        from twofold.core.session import REPORT_DEFAULTS
+        from twofold.core.outputs.session import REPORT_DEFAULTS
 
         #: The report's options (small-count limit, records by row number): the defaults, a restored
         #: session's, or the user's last choice; saved with the session.
@@ -242,7 +242,7 @@ class SessionActions(QObject):
         if self._refuses(path):
             return None
         def job(ws):
-            from twofold.core.session import save_session
+            from twofold.core.outputs.session import save_session
 
             written = str(save_session(ws.to_session(), path))
             ws.mark_saved()
@@ -267,8 +267,8 @@ class SessionActions(QObject):
         """
 
         def job(ws):
-            from twofold.core.io import read_table
-            from twofold.core.session import check_data, load_session, require_data_file
+            from twofold.core.data.io import read_table
+            from twofold.core.outputs.session import check_data, load_session, require_data_file
 
             session = load_session(path)
             where = Path(data if data is not None else session["data"])
@@ -283,7 +283,7 @@ class SessionActions(QObject):
         return self._run("opened", job)
 
     def _after_open(self, payload) -> None:
-        from twofold.core.session import missing_columns_error
+        from twofold.core.outputs.session import missing_columns_error
 
         session, path, data = payload["session"], payload["path"], payload["data"]
         recovered = payload["recovered"]
@@ -313,7 +313,7 @@ class SessionActions(QObject):
 
     def _declined(self, path, recovered: bool) -> None:
         if recovered:
-            from twofold.core.session import discard_autosave
+            from twofold.core.outputs.session import discard_autosave
 
             discard_autosave(path)
         self.window.statusBar().showMessage("The saved analysis was not opened.", 5000)
@@ -327,7 +327,7 @@ class SessionActions(QObject):
         """
         def after(ws):
             if discard is not None:
-                from twofold.core.session import discard_autosave
+                from twofold.core.outputs.session import discard_autosave
 
                 discard_autosave(discard)
             return where
@@ -369,7 +369,7 @@ class SessionActions(QObject):
         """
         if self._refuses(path):
             return None
-        from twofold.core.privacy import MAX_THRESHOLD
+        from twofold.core.outputs.privacy import MAX_THRESHOLD
 
         if suppress_up_to is not None and not 1 <= int(suppress_up_to) <= MAX_THRESHOLD:
             self._fail(f"Counts of 1 up to {suppress_up_to} people cannot be the limit of the report; "
@@ -416,7 +416,7 @@ class SessionActions(QObject):
         s = self.session
 
         def job(ws):
-            from twofold.core.export import export_coefficients, export_ladder
+            from twofold.core.outputs.export import export_coefficients, export_ladder
 
             result = ws.result(assessment=s.assessment_for(ws.shown_fit()))
             written = [str(export_coefficients(result, path, ladder=ws.ladder))]
@@ -429,7 +429,7 @@ class SessionActions(QObject):
     # ---- autosave --------------------------------------------------------------
     def enable_autosave(self) -> bool:
         """Mark this process as running and autosave after each new result; False if the folder is not writable."""
-        from twofold.core.session import start_autosave
+        from twofold.core.outputs.session import start_autosave
 
         try:
             start_autosave()
@@ -446,7 +446,7 @@ class SessionActions(QObject):
             return
         def job(ws):
             from twofold.core.errors import TwofoldError
-            from twofold.core.session import autosave
+            from twofold.core.outputs.session import autosave
 
             try:
                 return str(autosave(ws.to_session()))
@@ -457,7 +457,7 @@ class SessionActions(QObject):
 
     def offer_restore(self) -> Path | None:
         """If a Twofold that did not close cleanly left an autosave, offer to restore it; returns its path."""
-        from twofold.core.session import discard_autosave, recoverable
+        from twofold.core.outputs.session import discard_autosave, recoverable
 
         try:
             path = recoverable()
@@ -489,7 +489,7 @@ class SessionActions(QObject):
         """A normal close: remove this process's autosave and its mark of a running Twofold."""
         if not self.autosave_enabled:
             return
-        from twofold.core.session import clean_exit
+        from twofold.core.outputs.session import clean_exit
 
         try:
             clean_exit()

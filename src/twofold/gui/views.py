@@ -1,9 +1,9 @@
 """Display records: what the window shows, prepared off the GUI thread.
 
-The core model (:class:`~twofold.core.study.Study`, :class:`~twofold.core.ladder.Ladder`)
+The core model (:class:`~twofold.core.models.study.Study`, :class:`~twofold.core.models.ladder.Ladder`)
 lives on the worker thread.  After each change the worker turns the core's
 figures into these frozen records (see :mod:`twofold.gui.present`), already
-worded and formatted with :mod:`twofold.core.text`, and hands them to the GUI
+worded and formatted with :mod:`twofold.core.outputs.text`, and hands them to the GUI
 thread, which only displays them.  This module imports the standard library
 only, so the window can be built before numpy, pandas or statsmodels load.
 """
@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 #: Shown above every set of results.  It must say the same as
-#: ``twofold.core.summary.CAUTION`` (a test checks that they are identical); it
+#: ``twofold.core.outputs.summary.CAUTION`` (a test checks that they are identical); it
 #: is repeated here so the banner is there at the first paint, before the core
 #: is imported.
 CAUTION = (
@@ -21,7 +21,7 @@ CAUTION = (
     "Decisions about any patient's care rest with licensed clinicians and local policy."
 )
 
-#: Plain words for each column role (the values of ``twofold.core.roles.Role``).
+#: Plain words for each column role (the values of ``twofold.core.data.roles.Role``).
 ROLE_LABELS = {
     "numeric": "number",
     "binary": "two values",

@@ -8,7 +8,7 @@ functions that draw, never through pyplot, and only after
 
 * :mod:`twofold.render.figures`: every plot Twofold draws, in one style.
 * :mod:`twofold.render.report_html` and :mod:`twofold.render.report_pdf`:
-  the layouts of a report built by :func:`twofold.core.report.build_report`.
+  the layouts of a report built by :func:`twofold.core.outputs.report.build_report`.
 * :mod:`twofold.render.report_writer`: :func:`write_report`, which builds,
   lays out and writes a report file.
 """

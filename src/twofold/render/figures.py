@@ -243,7 +243,7 @@ def plain_log_ticks(ax, low: float, high: float) -> None:
 def draw_effect(ax, curve: dict, knots, *, title: bool = True) -> None:
     """Odds ratio against the reference value, with its 95% band: exp((b(x) - b(ref))' beta).
 
-    ``curve`` is :func:`twofold.core.modelling.effect_curve`'s dictionary
+    ``curve`` is :func:`twofold.core.models.modelling.effect_curve`'s dictionary
     (``column``, ``x``, ``odds_ratio``, ``low``, ``high``, ``reference``);
     ``knots`` is the spline's number of knots, or None for a straight line.
     """

@@ -2,7 +2,7 @@
 
 Plots are embedded as base64 PNG, the style is inline CSS, and there are no
 scripts, fonts, links or anything fetched from elsewhere.  The content comes
-from :func:`twofold.core.report.build_report`; the plots are drawn by
+from :func:`twofold.core.outputs.report.build_report`; the plots are drawn by
 :mod:`twofold.render.figures`.
 """
 
@@ -11,7 +11,7 @@ from __future__ import annotations
 import base64
 import html
 
-from twofold.core.report import Bullets, Figure, Heading, Para, Report, Table
+from twofold.core.outputs.report import Bullets, Figure, Heading, Para, Report, Table
 from twofold.render import figures
 
 #: Size of a report's plot in the HTML page (inches) and its resolution: larger than in the window.

@@ -3,7 +3,7 @@
 matplotlib's PdfPages writes the pages: text stays text (TrueType fonts,
 selectable and searchable) and plots are vector drawings, placed on the page
 and drawn by :mod:`twofold.render.figures`.  The content comes from
-:func:`twofold.core.report.build_report`.  matplotlib is imported only inside
+:func:`twofold.core.outputs.report.build_report`.  matplotlib is imported only inside
 the functions that lay out, never through pyplot.
 """
 
@@ -15,7 +15,7 @@ use_own_matplotlib_folder()  # before any matplotlib import: its cache goes to o
 
 from pathlib import Path
 
-from twofold.core.report import Bullets, Figure, Heading, Para, Report, Table
+from twofold.core.outputs.report import Bullets, Figure, Heading, Para, Report, Table
 from twofold.render import figures
 
 _PAGE_W, _PAGE_H = 8.27 * 72, 11.69 * 72   # A4 in points

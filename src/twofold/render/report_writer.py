@@ -6,9 +6,9 @@ import os
 from pathlib import Path
 
 from twofold.core.errors import DataFileError
-from twofold.core.privacy import DEFAULT_THRESHOLD
-from twofold.core.report import build_report
-from twofold.core.storage import atomic_write_text
+from twofold.core.outputs.privacy import DEFAULT_THRESHOLD
+from twofold.core.outputs.report import build_report
+from twofold.core.outputs.storage import atomic_write_text
 from twofold.render.report_html import render_html
 from twofold.render.report_pdf import render_pdf
 

@@ -34,9 +34,9 @@ per-value work (stripping, number checks) runs on the distinct values only.
 
 The work is split over four modules: this one (the entry point
 :func:`read_table`, the shared constants, path checks and progress reports),
-:mod:`twofold.core.read_text` (text files),
-:mod:`twofold.core.read_workbook` (XLSX workbooks) and
-:mod:`twofold.core.tidy` (cleaning the columns once read).
+:mod:`twofold.core.data.read_text` (text files),
+:mod:`twofold.core.data.read_workbook` (XLSX workbooks) and
+:mod:`twofold.core.data.tidy` (cleaning the columns once read).
 """
 
 from __future__ import annotations
@@ -123,8 +123,8 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
     ReadCancelled
         The progress callback asked to stop.
     """
-    from twofold.core.read_text import read_text
-    from twofold.core.read_workbook import read_workbook
+    from twofold.core.data.read_text import read_text
+    from twofold.core.data.read_workbook import read_workbook
 
     path = Path(os.fspath(path))
     _check_path(path)

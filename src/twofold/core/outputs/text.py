@@ -1,6 +1,6 @@
 """A readable plain-text account of a fit, in Twofold's own layout and words.
 
-It reads the record made by :func:`twofold.core.summary.fit_record`, so the
+It reads the record made by :func:`twofold.core.outputs.summary.fit_record`, so the
 text shows exactly the figures the JSON carries.
 """
 

@@ -22,7 +22,7 @@ import numpy as np
 from scipy.special import expit
 
 from twofold.core.errors import ColumnError, ModelError
-from twofold.core.profile import check_xy, frozen_array, json_value
+from twofold.core.models.profile import check_xy, frozen_array, json_value
 
 __all__ = [
     "InfluenceMeasures",

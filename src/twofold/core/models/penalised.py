@@ -1,6 +1,6 @@
 """Firth's penalised fit as an alternative model, and profile intervals for any fit.
 
-:class:`FirthFit` has the same face as :class:`~twofold.core.fit.LogisticFit`
+:class:`FirthFit` has the same face as :class:`~twofold.core.models.fit.LogisticFit`
 (coefficients, standard errors, Wald z, odds ratios, the overall test), so
 every display and the JSON record read it the same way; its tests are
 penalised likelihood-ratio tests (Heinze & Schemper 2002, Stat Med 21:2409)
@@ -14,9 +14,9 @@ from functools import cached_property
 
 import numpy as np
 
-from twofold.core.design import Design, aliased_columns
+from twofold.core.models.design import Design, aliased_columns
 from twofold.core.errors import Notice
-from twofold.core.fit import LikelihoodRatioTest, LogisticFit
+from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit
 
 
 class FirthFit(LogisticFit):
@@ -38,7 +38,7 @@ class FirthFit(LogisticFit):
     @cached_property
     def overall(self) -> LikelihoodRatioTest:
         """Penalised likelihood-ratio test that every slope is zero: 2 (pl_full - pl_restricted)."""
-        from twofold.core.firth import firth_lr_test
+        from twofold.core.models.firth import firth_lr_test
 
         k = self.n_params
         if k == 1:
@@ -67,7 +67,7 @@ class FirthFit(LogisticFit):
         The restricted fit holds them at zero under the full model's penalty
         (Heinze & Schemper 2002).  No parameters: G = 0 on 0 df, p undefined.
         """
-        from twofold.core.firth import firth_lr_test
+        from twofold.core.models.firth import firth_lr_test
 
         idx = sorted({int(i) for i in idx})
         if not idx:
@@ -91,8 +91,8 @@ class FirthFit(LogisticFit):
 
 def fit_firth(design: Design, dropped: list[int] | None = None) -> FirthFit:
     """Fit ``design`` by Firth's penalised likelihood (aliased columns left out and named)."""
-    from twofold.core.fit import fit_logistic
-    from twofold.core.firth import firth_fit, flic
+    from twofold.core.models.fit import fit_logistic
+    from twofold.core.models.firth import firth_fit, flic
 
     if dropped is None:
         dropped = aliased_columns(design.X)
@@ -138,7 +138,7 @@ def profile_intervals(fit: LogisticFit) -> dict[str, tuple[float, float]]:
     failures = (TwofoldError, ValueError, ArithmeticError, np.linalg.LinAlgError)
     nan = (float("nan"), float("nan"))
     if isinstance(fit, FirthFit):
-        from twofold.core.firth import firth_profile_ci
+        from twofold.core.models.firth import firth_profile_ci
 
         for j in range(1, fit.n_params):
             try:
@@ -149,7 +149,7 @@ def profile_intervals(fit: LogisticFit) -> dict[str, tuple[float, float]]:
             with np.errstate(over="ignore"):
                 out[fit.names[j]] = (float(np.exp(iv.lower)), float(np.exp(iv.upper)))
     else:
-        from twofold.core.profile import profile_all
+        from twofold.core.models.profile import profile_all
 
         params = np.where(np.isfinite(fit.params), fit.params, np.sign(fit.params) * 50.0)
         columns = list(range(1, fit.n_params))

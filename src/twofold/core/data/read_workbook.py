@@ -1,4 +1,4 @@
-"""Reading XLSX workbooks for :func:`twofold.core.io.read_table`.
+"""Reading XLSX workbooks for :func:`twofold.core.data.io.read_table`.
 
 The sheet is read with openpyxl (values only, as last saved).  Its XML is
 scanned for formulas and merged cells: formulas without a saved result get a
@@ -12,9 +12,9 @@ import warnings
 from pathlib import Path
 
 from twofold.core.errors import DataFileError, Notice
-from twofold.core.io import report_progress
-from twofold.core.read_text import filled_count, header_after_gap, looks_like_names
-from twofold.core.tidy import cell_text, plural, shorten, tidy_frame, unique_names
+from twofold.core.data.io import report_progress
+from twofold.core.data.read_text import filled_count, header_after_gap, looks_like_names
+from twofold.core.data.tidy import cell_text, plural, shorten, tidy_frame, unique_names
 
 _FORMULA_TAG = re.compile(rb"<(?:\w+:)?f[\s>/]")
 _MERGE_TAG = re.compile(rb"<(?:\w+:)?mergeCell\s+ref=\"\$?([A-Z]+)\$?(\d+)(?::\$?([A-Z]+)\$?(\d+))?\"")

@@ -14,8 +14,8 @@ cut-off on that side.  That is reported with a flag (and the endpoint is
 
 The module works on plain numpy arrays: a design matrix ``X`` whose first
 column is the intercept (ones) and a 0/1 float outcome ``y``.  It also holds
-small helpers shared by :mod:`twofold.core.firth` and
-:mod:`twofold.core.influence` (input checks, JSON conversion, the outward
+small helpers shared by :mod:`twofold.core.models.firth` and
+:mod:`twofold.core.assessing.influence` (input checks, JSON conversion, the outward
 bracketing and root search).
 """
 

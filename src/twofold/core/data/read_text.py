@@ -1,9 +1,9 @@
-"""Reading delimited text files (CSV, TSV, TXT) for :func:`twofold.core.io.read_table`.
+"""Reading delimited text files (CSV, TSV, TXT) for :func:`twofold.core.data.io.read_table`.
 
 The encoding is found from the byte-order mark and the bytes themselves, the
 delimiter and the header row from the first records, and the cells are read
 by pandas (in chunks when progress is reported), then tidied by
-:func:`twofold.core.tidy.tidy_frame`.
+:func:`twofold.core.data.tidy.tidy_frame`.
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from twofold.core.errors import DataFileError, Notice
-from twofold.core.io import (
+from twofold.core.data.io import (
     MISSING_MARKERS,
     SAMPLE_ROWS,
     LoadedTable,
@@ -24,7 +24,7 @@ from twofold.core.io import (
     open_for_reading,
     report_progress,
 )
-from twofold.core.tidy import is_text_column, shorten, tidy_frame, unique_names
+from twofold.core.data.tidy import is_text_column, shorten, tidy_frame, unique_names
 
 _DELIMITERS = (",", ";", "\t")
 _SNIFF_BYTES = 64 * 1024

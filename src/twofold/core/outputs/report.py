@@ -3,7 +3,7 @@
 The report holds aggregate figures only: no row-level values, no identifiers,
 no dates from the data.  Every count of people in its descriptive tables,
 risk-group table and cross-tabulations passes through
-:mod:`twofold.core.privacy` (small counts hidden, with complementary
+:mod:`twofold.core.outputs.privacy` (small counts hidden, with complementary
 suppression).  Record numbers of influential rows appear only when asked for.
 
 :func:`build_report` builds the content once, as a list of blocks (headings,
@@ -23,8 +23,8 @@ from pathlib import Path
 
 import numpy as np
 
-from twofold.core.privacy import DEFAULT_THRESHOLD, SUPPRESSED, is_small, protect_table, show_count, suppression_note
-from twofold.core.text import fmt_num, fmt_or, fmt_p
+from twofold.core.outputs.privacy import DEFAULT_THRESHOLD, SUPPRESSED, is_small, protect_table, show_count, suppression_note
+from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p
 
 #: Cook's distance above 4/n marks an influential record (common practice, a rule of thumb).
 COOKS_RULE = 4.0
@@ -569,7 +569,7 @@ def _header(record: dict, data_path, frozen: bool) -> Report:
     if data_path is not None:
         p = Path(data_path)
         try:
-            from twofold.core.storage import file_sha256
+            from twofold.core.outputs.storage import file_sha256
 
             digest = file_sha256(p)
         except OSError:
@@ -582,7 +582,7 @@ def _header(record: dict, data_path, frozen: bool) -> Report:
 def _as_ladder(result, ladder):
     if ladder is None or hasattr(ladder, "rungs"):
         return ladder if ladder is None or len(ladder.rungs) else None
-    from twofold.core.session import ladder_from_lists
+    from twofold.core.outputs.session import ladder_from_lists
 
     return ladder_from_lists(result.study, ladder, list(result.fit.design.predictors))
 

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from twofold.core.errors import ColumnError
-from twofold.core.roles import ColumnInfo, Role, default_reference
+from twofold.core.data.roles import ColumnInfo, Role, default_reference
 
 
 @dataclass(frozen=True)

@@ -16,7 +16,7 @@ import numpy as np
 
 from twofold.core.errors import ModelError, Notice
 from twofold.core.events import Event
-from twofold.core.fit import LikelihoodRatioTest, LogisticFit, nested_test
+from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, nested_test
 
 
 @dataclass
@@ -219,7 +219,7 @@ class Ladder:
         else:
             note = ("Neither model contains the other, so no likelihood-ratio test applies; "
                     "compare them by AIC and BIC (lower is better; a difference under 2 is small).")
-        from twofold.core.discrimination import delong_paired
+        from twofold.core.assessing.discrimination import delong_paired
 
         auc_test = None
         if np.array_equal(a.fit.design.rows, b.fit.design.rows):

@@ -3,8 +3,8 @@
 :func:`assess` gathers discrimination, calibration, pseudo-R-squared,
 influence, variance inflation, drop-one likelihood-ratio tests and the
 sample-size check for one fit, from the single-purpose modules
-(:mod:`~twofold.core.discrimination`, :mod:`~twofold.core.calibration`,
-:mod:`~twofold.core.influence`, :mod:`~twofold.core.samplesize`).  The window,
+(:mod:`~twofold.core.assessing.discrimination`, :mod:`~twofold.core.assessing.calibration`,
+:mod:`~twofold.core.assessing.influence`, :mod:`~twofold.core.assessing.samplesize`).  The window,
 the command line and reports all read the same :class:`Assessment`.
 """
 
@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from twofold.core.errors import Notice, TwofoldError
-from twofold.core.fit import LogisticFit
+from twofold.core.models.fit import LogisticFit
 
 #: Written beside slope and calibration-in-the-large on the development data.
 APPARENT_CALIBRATION_NOTE = (
@@ -87,7 +87,7 @@ class Assessment:
         A record fitted exactly (leverage 1, as in a saturated model) has no
         finite distance: it comes first, with ``None``.
         """
-        from twofold.core.summary import clean_number as num
+        from twofold.core.outputs.summary import clean_number as num
 
         if self.influence is None:
             return []
@@ -97,7 +97,7 @@ class Assessment:
 
     def as_record(self) -> dict:
         """The ``assessment`` object of the ``twofold fit --json`` contract."""
-        from twofold.core.summary import clean_number as num
+        from twofold.core.outputs.summary import clean_number as num
 
         hl = self.hosmer_lemeshow
         rec = {
@@ -168,11 +168,11 @@ def assess(study, fit: LogisticFit, threshold: float | None = None, groups: int 
         assessment nobody waits for any more (the window's newer tick).
     """
     step = checkpoint if checkpoint is not None else (lambda: None)
-    from twofold.core import calibration as cal
-    from twofold.core import discrimination as disc
-    from twofold.core.influence import gvif, influence_measures
-    from twofold.core.samplesize import riley_minimum_sample_size
-    from twofold.core.study import drop_one_tests
+    from twofold.core.assessing import calibration as cal
+    from twofold.core.assessing import discrimination as disc
+    from twofold.core.assessing.influence import gvif, influence_measures
+    from twofold.core.assessing.samplesize import riley_minimum_sample_size
+    from twofold.core.models.study import drop_one_tests
 
     y = fit.design.y
     p = fit.fitted if predicted is None else np.asarray(predicted, dtype=float)

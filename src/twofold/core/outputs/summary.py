@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from twofold.core.fit import LikelihoodRatioTest, LogisticFit
+from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit
 
 #: Shown with every set of results.
 CAUTION = (
@@ -57,7 +57,7 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
     warnings, plus extra context (predictors, term_tests, events_per_parameter,
     mcfadden_r2, missing counts, caution).  ``profile`` (name -> odds-ratio
     interval) adds ``or_pl_low``/``or_pl_high`` to each term; ``assessment``
-    (an :class:`~twofold.core.assessment.Assessment`) adds ``assessment``.
+    (an :class:`~twofold.core.assessing.assessment.Assessment`) adds ``assessment``.
     """
     rows = fit.coefficient_rows
     intercept = rows[0]

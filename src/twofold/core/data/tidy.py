@@ -1,4 +1,4 @@
-"""Tidying a table just read, for :func:`twofold.core.io.read_table`.
+"""Tidying a table just read, for :func:`twofold.core.data.io.read_table`.
 
 Column names are made unique, text cells stripped, missing markers and
 Excel errors made missing, numbers written as text read as numbers, spellings
@@ -12,8 +12,8 @@ import operator
 import re
 
 from twofold.core.errors import DataFileError, Notice
-from twofold.core.io import EXCEL_ERRORS, MISSING_MARKERS, SAMPLE_ROWS
-from twofold.core.roles import remember_factors
+from twofold.core.data.io import EXCEL_ERRORS, MISSING_MARKERS, SAMPLE_ROWS
+from twofold.core.data.roles import remember_factors
 
 _MISSING_SET = frozenset(MISSING_MARKERS)
 _ERROR_SET = frozenset(EXCEL_ERRORS) - _MISSING_SET

@@ -14,13 +14,13 @@ from types import SimpleNamespace
 
 import numpy as np
 
-from twofold.core.design import Design, TermBlock, aliased_columns, assemble, encode
+from twofold.core.models.design import Design, TermBlock, aliased_columns, assemble, encode
 from twofold.core.errors import ColumnError, ModelError, Notice
 from twofold.core.events import Event
-from twofold.core.fit import LikelihoodRatioTest, LogisticFit, fit_logistic, nested_test
-from twofold.core.io import LoadedTable, read_table
-from twofold.core.roles import ColumnInfo, Role, default_event, describe_columns
-from twofold.core.validation import match_event, outcome_levels, outcome_vector, require_column
+from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, fit_logistic, nested_test
+from twofold.core.data.io import LoadedTable, read_table
+from twofold.core.data.roles import ColumnInfo, Role, default_event, describe_columns
+from twofold.core.data.checks import match_event, outcome_levels, outcome_vector, require_column
 
 
 @dataclass(frozen=True)
@@ -47,7 +47,7 @@ class Study:
     Parameters
     ----------
     table : LoadedTable
-        The file as read by :func:`~twofold.core.io.read_table`.
+        The file as read by :func:`~twofold.core.data.io.read_table`.
     """
 
     def __init__(self, table: LoadedTable):
@@ -81,7 +81,7 @@ class Study:
 
     def column(self, name: str) -> str:
         """The exact column name for ``name`` (or ``"A:B"`` for an interaction), else a ColumnError."""
-        from twofold.core.terms import split_interaction
+        from twofold.core.models.terms import split_interaction
 
         if name in self._columns:  # a real column whose name holds a colon is still itself
             return name
@@ -92,7 +92,7 @@ class Study:
 
     def set_spline(self, name: str, knots: int | None) -> None:
         """Use a restricted cubic spline with 3, 4 or 5 knots for a numeric predictor (None: straight line)."""
-        from twofold.core.terms import KNOT_QUANTILES
+        from twofold.core.models.terms import KNOT_QUANTILES
 
         name = self.column(name)
         if knots is None:
@@ -195,7 +195,7 @@ class Study:
 
         ``linear=True`` gives a spline predictor's straight-line block.
         """
-        from twofold.core.terms import interaction_block, spline_block, split_interaction
+        from twofold.core.models.terms import interaction_block, spline_block, split_interaction
 
         name = self.column(name)
         form = "linear" if linear or name not in self._splines else self._splines[name]
@@ -245,7 +245,7 @@ class Study:
         else:
             if not self.complete_mask(predictors)[rows].all():
                 raise ModelError("Some of the rows asked for have missing values in these predictors.")
-        from twofold.core.terms import split_interaction
+        from twofold.core.models.terms import split_interaction
 
         for p in predictors:
             pair = split_interaction(p) if p not in self._columns else None
@@ -284,7 +284,7 @@ class Study:
             dropped = aliased_columns(design.X)
             self._aliased[key] = dropped
         if firth:
-            from twofold.core.penalised import fit_firth
+            from twofold.core.models.penalised import fit_firth
 
             fit = fit_firth(design, dropped=dropped)
         else:
@@ -365,14 +365,14 @@ def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
     """For every predictor of ``fit``, refit without it on the same rows and test the loss.
 
     G = 2 (lnL_full - lnL_without) on the predictor's number of coefficients.
-    Maximum-likelihood refits go through :func:`~twofold.core.fit.drop_refits`
+    Maximum-likelihood refits go through :func:`~twofold.core.models.fit.drop_refits`
     (warm-started chord Newton, full Newton where needed, two threads);
     penalised fits use their penalised likelihood-ratio test.  A refit that
     is impossible (a model too small for its rows) marks that test
     unavailable instead of stopping the assessment.
     """
     from twofold.core.errors import TwofoldError
-    from twofold.core.fit import chi2_sf, drop_refits, log_likelihood
+    from twofold.core.models.fit import chi2_sf, drop_refits, log_likelihood
 
     columns = [c for c in fit.design.predictors if len(fit.term_index[c])]
     losses = []  # (g, df, note or None, available)

@@ -91,7 +91,7 @@ def coefficient_table(record: dict) -> tuple[list[str], list[list]]:
 
 
 def ladder_table(ladder) -> tuple[list[str], list[list]]:
-    """Headers and rows of the model ladder (a :class:`~twofold.core.ladder.Ladder`)."""
+    """Headers and rows of the model ladder (a :class:`~twofold.core.models.ladder.Ladder`)."""
     rows = []
     for k, rung in enumerate(ladder.rungs):
         t = rung.against_previous

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from twofold.core.errors import ColumnError, ModelError
-from twofold.core.fit import Z95  # z for a two-sided 95% interval, as in the fit's Wald intervals
+from twofold.core.models.fit import Z95  # z for a two-sided 95% interval, as in the fit's Wald intervals
 
 
 @dataclass(frozen=True)
@@ -71,7 +71,7 @@ class EncodedTerm:
         return self.kind in ("numeric", "spline")
 
     def as_dict(self) -> dict:
-        from twofold.core.summary import plain_value
+        from twofold.core.outputs.summary import plain_value
 
         return {
             "column": self.column, "kind": self.kind,
@@ -137,7 +137,7 @@ class FrozenModel:
         raise KeyError(column)
 
     def as_dict(self) -> dict:
-        from twofold.core.summary import clean_number, plain_value
+        from twofold.core.outputs.summary import clean_number, plain_value
 
         return {
             "outcome": self.outcome,
@@ -258,7 +258,7 @@ def _assemble(model: FrozenModel, base: dict, n: int) -> np.ndarray:
     interaction columns the products of the two predictors' columns (a spline
     through its straight-line column), as the fit built them.
     """
-    from twofold.core.terms import rcs_basis
+    from twofold.core.models.terms import rcs_basis
 
     full = {"intercept": np.ones(n)}
     parts = {}
@@ -358,7 +358,7 @@ class Prediction:
     level: float = 0.95
 
     def as_dict(self) -> dict:
-        from twofold.core.summary import clean_number
+        from twofold.core.outputs.summary import clean_number
 
         return {"probability": clean_number(self.probability), "ci_low": clean_number(self.ci_low),
                 "ci_high": clean_number(self.ci_high), "linear_predictor": clean_number(self.linear_predictor),
@@ -480,7 +480,7 @@ class FrozenResult:
     """How a saved model performs on the rows of a data file, without refitting.
 
     ``record`` is the JSON of ``twofold rerun --frozen``; ``assessment`` the
-    :class:`~twofold.core.assessment.Assessment` computed on the new rows.
+    :class:`~twofold.core.assessing.assessment.Assessment` computed on the new rows.
     """
 
     model: FrozenModel
@@ -507,8 +507,8 @@ class FrozenResult:
 
 def _pseudo_fit(model: FrozenModel, X: np.ndarray, y: np.ndarray, rows: np.ndarray):
     """A LogisticFit holding the saved coefficients on the new rows, so the assessment code reads it as any fit."""
-    from twofold.core.design import Design, TermBlock
-    from twofold.core.fit import LogisticFit
+    from twofold.core.models.design import Design, TermBlock
+    from twofold.core.models.fit import LogisticFit
 
     blocks, slices, at = [], [], 1
     for t in model.terms:
@@ -547,11 +547,11 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         Missing columns, an outcome whose event value does not occur, text in
         a numeric predictor, or groups the saved model never saw.
     """
-    from twofold.core.assessment import assess
+    from twofold.core.assessing.assessment import assess
     from twofold.core.errors import Notice
-    from twofold.core.study import Study
-    from twofold.core.summary import CAUTION, clean_number, plain_value
-    from twofold.core.validation import outcome_vector
+    from twofold.core.models.study import Study
+    from twofold.core.outputs.summary import CAUTION, clean_number, plain_value
+    from twofold.core.data.checks import outcome_vector
 
     study = Study.from_file(path, sheet=sheet)
     frame = study.frame

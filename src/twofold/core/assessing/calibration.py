@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from twofold.core.discrimination import (
+from twofold.core.assessing.discrimination import (
     require_both_classes,
     check_level,
     outcome_array,

@@ -2,8 +2,8 @@
 
 Writing goes through a temporary file in the same folder and ``os.replace``,
 so a session file is never left half-written.  Reading accepts JSON text
-only, within the caps of :mod:`twofold.core.session`, and checks every field
-with :func:`~twofold.core.session.validate_session`.
+only, within the caps of :mod:`twofold.core.outputs.session`, and checks every field
+with :func:`~twofold.core.outputs.session.validate_session`.
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from twofold.core.errors import DataFileError
-from twofold.core.session import (
+from twofold.core.outputs.session import (
     MAX_ABS_NUMBER,
     MAX_DEPTH,
     MAX_FILE_BYTES,

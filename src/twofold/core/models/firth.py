@@ -34,7 +34,7 @@ import numpy as np
 from scipy.special import expit
 
 from twofold.core.errors import ModelError, Notice
-from twofold.core.profile import (
+from twofold.core.models.profile import (
     ProfileInterval,
     check_column,
     check_full_rank,

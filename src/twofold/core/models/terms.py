@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from twofold.core.design import TermBlock
+from twofold.core.models.design import TermBlock
 from twofold.core.errors import ColumnError, ModelError
 
 #: Knot positions as quantiles of the predictor (Harrell 2015, sec. 2.4.6).

@@ -222,7 +222,7 @@ def describe_column(name: str, series) -> ColumnInfo:
 
     Distinct values are found once, by hashing (:func:`pandas.factorize`),
     and counted from the codes, so a column costs one pass whatever its type;
-    a text column just read by :func:`~twofold.core.io.read_table` reuses the
+    a text column just read by :func:`~twofold.core.data.io.read_table` reuses the
     distinct values found while reading (see :func:`remember_factors`).
 
     Parameters

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from twofold.core.errors import ModelError, TwofoldError
-from twofold.core.fit import Z95, LogisticFit, nested_test
+from twofold.core.models.fit import Z95, LogisticFit, nested_test
 
 
 @dataclass(frozen=True)
@@ -136,7 +136,7 @@ def effect_curve(fit: LogisticFit, column: str, reference: float | None = None, 
     straight line); band exp(log OR -/+ 1.96 se) with se from the covariance.
     Default reference: the median on the rows used.
     """
-    from twofold.core.terms import rcs_basis
+    from twofold.core.models.terms import rcs_basis
 
     blocks = dict(zip(fit.design.predictors, fit.design.blocks))
     slices = dict(zip(fit.design.predictors, fit.design.slices))
@@ -265,7 +265,7 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
 
     from statsmodels.discrete.discrete_model import Logit
 
-    from twofold.core.fit import one_blas_thread
+    from twofold.core.models.fit import one_blas_thread
 
     if repetitions < 1:
         raise ModelError("The number of bootstrap repetitions must be at least 1; 200 is usual.")

@@ -15,8 +15,8 @@ import re
 import sys
 from pathlib import Path
 
-from twofold.core.session import validate_session
-from twofold.core.storage import atomic_write_text
+from twofold.core.outputs.session import validate_session
+from twofold.core.outputs.storage import atomic_write_text
 
 
 def _autosave_dir() -> Path:

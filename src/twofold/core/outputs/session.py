@@ -49,15 +49,15 @@ superset of the spec it was made from.  Fields added after version 1 was
 first written (``rows_complete_in``, ``report``) take their defaults when a
 file lacks them, which is what the files saved before them meant.
 
-:func:`~twofold.core.storage.load_session` refuses anything else in one
+:func:`~twofold.core.outputs.storage.load_session` refuses anything else in one
 sentence: other types, unknown keys, numbers too large or not finite, strings
 and lists beyond generous caps, nesting deeper than the format uses, text
 that is not JSON.
 
 This module holds the schema: making a session from an analysis, turning it
 back into a spec and a model, and checking it.  Reading and writing the files
-is in :mod:`twofold.core.storage`, and the autosave with its recovery after
-a crash in :mod:`twofold.core.autosave`; their functions can still be
+is in :mod:`twofold.core.outputs.storage`, and the autosave with its recovery after
+a crash in :mod:`twofold.core.outputs.autosave`; their functions can still be
 imported from here.
 """
 
@@ -70,7 +70,7 @@ import re
 from pathlib import Path
 
 from twofold.core.errors import ColumnError, DataFileError, Notice
-from twofold.core.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
+from twofold.core.outputs.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
 
 FORMAT = "twofold-session"
 SCHEMA_VERSION = 1
@@ -171,9 +171,9 @@ def session_from_result(result, ladder=None, report=None) -> dict:
         The session, ready for :func:`save_session`.
     """
     from twofold import __version__
-    from twofold.core.predict import frozen_model
-    from twofold.core.storage import file_sha256
-    from twofold.core.summary import plain_value
+    from twofold.core.outputs.predict import frozen_model
+    from twofold.core.outputs.storage import file_sha256
+    from twofold.core.outputs.summary import plain_value
 
     spec, study, fit = result.spec, result.study, result.fit
     data = Path(os.fspath(spec.data)).resolve()
@@ -268,19 +268,19 @@ def spec_from_session(session: dict, data=None):
 
 
 def frozen_from_session(session: dict):
-    """The saved model of a session as a :class:`~twofold.core.predict.FrozenModel`."""
-    from twofold.core.predict import FrozenModel
+    """The saved model of a session as a :class:`~twofold.core.outputs.predict.FrozenModel`."""
+    from twofold.core.outputs.predict import FrozenModel
 
     return FrozenModel.from_dict(session["model"])
 
 
 def ladder_from_lists(study, rungs, chosen=None):
-    """A :class:`~twofold.core.ladder.Ladder` of the given models fitted on ``study``, on common rows.
+    """A :class:`~twofold.core.models.ladder.Ladder` of the given models fitted on ``study``, on common rows.
 
     ``chosen`` (a predictor list) becomes the current model when it is one of
     the rungs; otherwise the last rung is.
     """
-    from twofold.core.ladder import Ladder
+    from twofold.core.models.ladder import Ladder
 
     ladder = Ladder(study)
     for rung in rungs:
@@ -325,7 +325,7 @@ def check_data(session: dict, path=None, frame=None) -> list[Notice]:
     frame : pandas.DataFrame, optional
         The file already read (saves reading it again for its columns).
     """
-    from twofold.core.storage import file_sha256
+    from twofold.core.outputs.storage import file_sha256
 
     path = Path(os.fspath(path if path is not None else session["data"]))
     require_data_file(path)
@@ -337,7 +337,7 @@ def check_data(session: dict, path=None, frame=None) -> list[Notice]:
             "then), so results can differ from the saved ones.",
         ))
     if frame is None:
-        from twofold.core.io import read_table
+        from twofold.core.data.io import read_table
 
         frame = read_table(path, sheet=session["sheet"]).frame
     present = {str(c) for c in frame.columns}
@@ -709,12 +709,12 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
 
 
 # ---------------------------------------------------------------------------
-# names that moved to twofold.core.storage and twofold.core.autosave
+# names that moved to twofold.core.outputs.storage and twofold.core.outputs.autosave
 # ---------------------------------------------------------------------------
 
-#: Reading and writing files, in twofold.core.storage.
+#: Reading and writing files, in twofold.core.outputs.storage.
 _STORAGE_NAMES = ("atomic_write_text", "file_sha256", "load_session", "save_session")
-#: The autosave and recovery, in twofold.core.autosave.
+#: The autosave and recovery, in twofold.core.outputs.autosave.
 _AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "recoverable", "start_autosave")
 
 
@@ -722,9 +722,9 @@ def __getattr__(name: str):
     """Find the reading, writing and autosave functions in their own modules, so older imports keep working."""
     # Imported here, not at the top: those modules import this one.
     if name in _STORAGE_NAMES:
-        from twofold.core import storage as module
+        from twofold.core.outputs import storage as module
     elif name in _AUTOSAVE_NAMES:
-        from twofold.core import autosave as module
+        from twofold.core.outputs import autosave as module
     else:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
     return getattr(module, name)

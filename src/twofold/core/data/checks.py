@@ -11,7 +11,7 @@ import difflib
 import numpy as np
 
 from twofold.core.errors import ColumnError
-from twofold.core.roles import default_event
+from twofold.core.data.roles import default_event
 
 
 def _where(source: str | None) -> str:

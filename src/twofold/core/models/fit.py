@@ -22,7 +22,7 @@ from functools import cached_property
 
 import numpy as np
 
-from twofold.core.design import Design, aliased_columns
+from twofold.core.models.design import Design, aliased_columns
 from twofold.core.errors import ModelError, Notice
 
 #: z for a two-sided 95% interval; NIST/SEMATECH e-Handbook normal table gives 1.960.
@@ -408,7 +408,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
         Newton iterations at most.
     dropped : list of int, optional
         Aliased columns when already known for this design (skips the rank
-        check); default: found by :func:`~twofold.core.design.aliased_columns`.
+        check); default: found by :func:`~twofold.core.models.design.aliased_columns`.
 
     Returns
     -------
@@ -812,7 +812,7 @@ def warm_up() -> None:
     """Import the fitting library and touch the distributions once, so the first fit of a session is quick."""
     import statsmodels.discrete.discrete_model  # noqa: F401
 
-    import twofold.core.assessment  # noqa: F401
+    import twofold.core.assessing.assessment  # noqa: F401
     import twofold.core.workspace  # noqa: F401
 
     wald_p(0.0)

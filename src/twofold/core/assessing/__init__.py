@@ -1,0 +1,1 @@
+"""How good a fitted model is: discrimination, calibration, influence, sample size."""

@@ -1,0 +1,1 @@
+"""Reading data files and deciding what each column is."""

@@ -1,0 +1,1 @@
+"""Designing and fitting models: encodings, fits, tests, the ladder of models tried."""

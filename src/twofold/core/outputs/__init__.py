@@ -1,0 +1,1 @@
+"""What an analysis leaves behind: session files, report content, exports, predictions, JSON and text."""
