@@ -25,9 +25,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "src"))
 
 from refit import synthetic  # noqa: E402
 
-from twofold.core.assessment import assess  # noqa: E402
-from twofold.core.io import LoadedTable  # noqa: E402
-from twofold.core.study import Study, drop_one_tests  # noqa: E402
+from twofold.core.assessing.assessment import assess  # noqa: E402
+from twofold.core.data.io import LoadedTable  # noqa: E402
+from twofold.core.models.study import Study, drop_one_tests  # noqa: E402
 
 
 def main(argv=None) -> int:

@@ -21,9 +21,9 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "src"))
 
-from twofold.core.io import LoadedTable  # noqa: E402
-from twofold.core.modelling import bootstrap_validation  # noqa: E402
-from twofold.core.study import Study  # noqa: E402
+from twofold.core.data.io import LoadedTable  # noqa: E402
+from twofold.core.models.modelling import bootstrap_validation  # noqa: E402
+from twofold.core.models.study import Study  # noqa: E402
 
 
 def main(argv=None) -> int:

@@ -73,8 +73,8 @@ def write_csv(path: Path, rows: int, cols: int, seed: int = 20240601) -> None:
 
 
 def time_twofold(path: Path) -> float:
-    from twofold.core.io import read_table
-    from twofold.core.roles import describe_columns
+    from twofold.core.data.io import read_table
+    from twofold.core.data.roles import describe_columns
 
     t = time.perf_counter()
     table = read_table(path)
@@ -96,8 +96,8 @@ def child(which: str, path: str) -> None:
 
     import pandas as pd
 
-    from twofold.core.io import read_table
-    from twofold.core.roles import describe_columns
+    from twofold.core.data.io import read_table
+    from twofold.core.data.roles import describe_columns
 
     def rss_mb() -> float:
         """The peak resident set size so far, in MB."""

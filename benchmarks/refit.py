@@ -34,9 +34,9 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "src"))
 
-from twofold.core.io import LoadedTable  # noqa: E402
-from twofold.core.fit import nested_test  # noqa: E402
-from twofold.core.study import Study  # noqa: E402
+from twofold.core.data.io import LoadedTable  # noqa: E402
+from twofold.core.models.fit import nested_test  # noqa: E402
+from twofold.core.models.study import Study  # noqa: E402
 
 
 def synthetic(rows: int, seed: int) -> pd.DataFrame:
