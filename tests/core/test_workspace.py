@@ -140,3 +140,31 @@ def test_a_validation_of_another_model_is_refused(ws):
     with pytest.raises(TwofoldError, match="model changed"):
         ws.record_validation(old, v, 5, 1)
     assert ws.validation is None
+
+
+def test_a_penalised_report_says_why_its_two_aics_differ(ws):
+    from twofold.core.outputs.report import build_report
+    from twofold.render.report_html import render_html
+
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "sex"])
+    ws.set_penalised(True)
+    result = ws.result()
+    html = render_html(build_report(result, ladder=ws.ladder))
+    assert "ordinary (maximum-likelihood) fits" in html
+    # The chosen model's AIC is the penalised fit's; the table's is the ordinary fit's: they do differ.
+    assert result.record["aic"] != pytest.approx(ws.current_rung.fit.aic, rel=1e-9)
+
+
+def test_a_session_written_before_parents_and_kept_validation_still_opens(ws, tmp_path):
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "sex"])
+    session = ws.to_session()
+    for key in ("parents", "validation_result"):
+        session.pop(key)
+    old = tmp_path / "old.json"
+    import json
+
+    old.write_text(json.dumps(session))
+    back = Workspace.from_session(load_session(old))
+    assert ladder_numbers(back) == ladder_numbers(ws)

@@ -324,23 +324,28 @@ def _coefficient_section(rep: Report, record: dict, fit) -> None:
                      f"p-value {fmt_p(nested['p_value'])}."))
 
 
-def _ladder_section(rep: Report, ladder) -> None:
+def _ladder_section(rep: Report, ladder, penalised: bool = False) -> None:
     rep.add(Heading("Models tried"))
     rows = []
     for k, rung in enumerate(ladder.rungs):
         t = rung.against_previous
         change = "; ".join(x for x in (("added " + ", ".join(rung.added)) if rung.added else "",
                                         ("removed " + ", ".join(rung.removed)) if rung.removed else "") if x)
+        if change and rung.previous is not None and rung.previous != k - 1:
+            change += f" (from model {rung.previous + 1})"
         rows.append([
             f"{k + 1}{' (chosen)' if k == ladder.current else ''}", ", ".join(rung.predictors) or "none",
             str(rung.fit.n_params), fmt_num(rung.fit.aic, 1), fmt_num(rung.fit.bic, 1), change or "",
             "" if t is None else f"G = {fmt_num(t.g, 2)}, {t.df} df, p-value {fmt_p(t.p_value)}",
         ])
     n_rows = len(ladder.rows) if ladder.rows is not None else 0
-    rep.add(Table(["model", "predictors", "coefficients", "AIC", "BIC", "change from the one before",
-                   "likelihood-ratio test against the one before"], rows, "llrrrll",
-                  f"Every model was fitted on the same {n_rows:,} rows, so nested ones can be compared by the "
-                  "likelihood-ratio test; lower AIC and BIC are better, and a difference under 2 is small."))
+    note = (f"Every model was fitted on the same {n_rows:,} rows, so nested ones can be compared by the "
+            "likelihood-ratio test; lower AIC and BIC are better, and a difference under 2 is small.")
+    if penalised:
+        note += (" These are the ordinary (maximum-likelihood) fits; the chosen model is reported above by its "
+                 "penalised fit, so its AIC there differs from the one in this table.")
+    rep.add(Table(["model", "predictors", "coefficients", "AIC", "BIC", "change from the model it was built from",
+                   "likelihood-ratio test against that model"], rows, "llrrrll", note))
 
 
 def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshold: int, frozen: bool,
@@ -619,7 +624,7 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
     _data_section(rep, record, threshold)
     _describe_predictors(rep, result.fit, threshold)
     if lad is not None:
-        _ladder_section(rep, lad)
+        _ladder_section(rep, lad, penalised=bool(result.spec.firth))
     _coefficient_section(rep, record, result.fit)
     if a:
         _assessment_section(rep, a, result.assessment, record, threshold, False, include_records)
