@@ -163,11 +163,18 @@ class Session(QObject):
         """Fit these predictors as a new rung of the ladder (every tick is its own step); returns the id."""
         predictors = tuple(predictors)
 
+        asked = {}
+
         def job():
             self.workspace.set_predictors(predictors)
+            if self._floor["results"] > asked["id"]:
+                # A newer tick is already waiting: this step joins the ladder, but its display would never
+                # be shown, so it is not built (a burst of ticks then waits only for the fits).
+                return self._views(())
             return self._views(("results",))
 
-        return self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
+        asked["id"] = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
+        return asked["id"]
 
     def set_role(self, column: str, role: str, predictors=()) -> int:
         """Change a column's role and refit the ladder (or restart it if the column leaves); returns the id."""
@@ -402,7 +409,15 @@ class Session(QObject):
         import twofold.gui.present  # noqa: F401
 
         warm_up()
+        self._assessor.submit(self._warm_up_drawing)
         return {}
+
+    @staticmethod
+    def _warm_up_drawing() -> None:
+        """Assessment thread, at start: load the drawing library once, so the first assessment is not slowed."""
+        from twofold.render import figures
+
+        figures.png_bytes(figures.new_figure())
 
     def _views(self, facets, **fixed) -> dict:
         """Display records of the workspace for ``facets`` (worker thread), plus the history line."""
