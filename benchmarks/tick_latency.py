@@ -64,9 +64,7 @@ and a few more, with ``anomalies``: anything odd seen (a tick's results
 showing other predictors than those ticked, the ladder not growing by one step
 per tick, a burst that could not be made within 300 ms), also printed on lines
 starting "odd:".  The lines before it give each tick's times.  With --launch,
-only the launch is measured.  On Python 3.11 the process leaves with os._exit
-once everything is printed (see the end of the file: a PySide6 6.12.0
-reference-count bug otherwise aborts it while finalizing).
+only the launch is measured.
 """
 
 from __future__ import annotations
@@ -550,13 +548,4 @@ def main(argv=None) -> int:
 
 
 if __name__ == "__main__":
-    status = main()
-    if sys.version_info < (3, 12):
-        # PySide6 6.12.0 on CPython 3.11 drops a reference to True at every Signal.emit() made from Python
-        # (True is not immortal before 3.12); after a few thousand emits the interpreter aborts while
-        # finalizing ("bool_dealloc: deallocating True or False"), after everything was printed.  Leave
-        # without finalizing so that the exit status is the benchmark's own.
-        sys.stdout.flush()
-        sys.stderr.flush()
-        os._exit(status)
-    sys.exit(status)
+    sys.exit(main())
