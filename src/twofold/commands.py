@@ -256,7 +256,9 @@ def _rerun(args):
         from twofold.render.report_writer import write_report
 
         rungs = [r for r in session["ladder"] if all(c in present for c in r)]
-        ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"]) if len(rungs) > 1 else None
+        # The saved parents hold while no model was left out; otherwise each model follows the one before.
+        parents = session["parents"] if len(rungs) == len(session["ladder"]) else None
+        ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"], parents) if len(rungs) > 1 else None
         write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
                      include_records=options["list_records"])
     return result.record, result.study.source

@@ -131,6 +131,8 @@ def test_window_session_rerun_and_report_give_the_same_digits(qtbot, readmission
     window_tables, rerun_tables = printed_tables(report), printed_tables(rerun_report)
     coefficient = [t for t in window_tables if "profile interval" in t]
     assert coefficient and coefficient[0] in rerun_tables
+    ladder = [t for t in window_tables if "built from" in t]
+    assert ladder and ladder[0] in rerun_tables  # the models tried, with AIC, BIC and their tests
     corrected = f"{shown['validation']['auc_corrected']:.3f}"
     assert corrected in report.read_text(encoding="utf-8") and corrected in rerun_report.read_text(encoding="utf-8")
 

@@ -637,22 +637,14 @@ class Workspace:
         """The analysis a session describes, fitted again on its data file (or ``data``, or ``table`` read)."""
         from twofold.core.analysis import prepare_study
         from twofold.core.data.io import read_table
-        from twofold.core.models.ladder import Ladder
-        from twofold.core.outputs.session import spec_from_session
+        from twofold.core.outputs.session import ladder_from_lists, spec_from_session
         from twofold.core.models.study import Study
 
         spec = spec_from_session(session, data=data)
         study = Study(table if table is not None else read_table(spec.data, sheet=spec.sheet, progress=progress))
         prepare_study(spec, study)
-        ladder = Ladder(study)
-        parents = session.get("parents") or []
-        kept = {}
-        for i, rung in enumerate(session["ladder"]):
-            if i < len(parents) and parents[i] is not None and 0 <= parents[i] < i:
-                ladder.current = parents[i]
-            ladder.add(list(rung))
-            if ladder.rungs[-1].previous is not None:
-                kept[i] = ladder.rungs[-1].previous
+        ladder = ladder_from_lists(study, session["ladder"], parents=session.get("parents"))
+        kept = {i: r.previous for i, r in enumerate(ladder.rungs) if r.previous is not None}
         chosen = int(session["chosen"])
         if 0 <= chosen < len(ladder.rungs):
             ladder.select(chosen)

@@ -274,16 +274,21 @@ def frozen_from_session(session: dict):
     return FrozenModel.from_dict(session["model"])
 
 
-def ladder_from_lists(study, rungs, chosen=None):
+def ladder_from_lists(study, rungs, chosen=None, parents=None):
     """A :class:`~twofold.core.models.ladder.Ladder` of the given models fitted on ``study``, on common rows.
 
     ``chosen`` (a predictor list) becomes the current model when it is one of
-    the rungs; otherwise the last rung is.
+    the rungs; otherwise the last rung is.  ``parents`` (one entry per rung,
+    as a session saves them) says which model each was built from; without
+    it, each was built from the one before.
     """
     from twofold.core.models.ladder import Ladder
 
     ladder = Ladder(study)
-    for rung in rungs:
+    parents = parents if parents is not None and len(parents) == len(rungs) else [None] * len(rungs)
+    for i, rung in enumerate(rungs):
+        if parents[i] is not None and 0 <= parents[i] < i:
+            ladder.current = parents[i]
         ladder.add(list(rung))
     if chosen is not None:
         for i, rung in enumerate(ladder.rungs):
