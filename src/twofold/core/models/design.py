@@ -213,34 +213,75 @@ def assemble(blocks, y_all: np.ndarray, rows: np.ndarray) -> Design:
     return Design(X, y_all[rows].astype(float), rows, blocks, tuple(slices))
 
 
+#: Rows per chunk when the centred cross-products are accumulated (bounds the extra memory).
+GRAM_CHUNK = 65_536
+
+
+def centred_gram(X: np.ndarray) -> np.ndarray:
+    """Covariance matrix (divisor n) of the columns of ``X`` after the first, computed on centred data.
+
+    Each column is first shifted by its value in the first row and the
+    cross-products are summed in chunks of rows, so a column whose spread is
+    small beside its size (dates stored as yyyymmdd, 1,000,000 plus or minus
+    10) keeps its variance instead of losing it to cancellation, as
+    E[x^2] - E[x]^2 on the raw values would.  Formula: with s = x_1 (the
+    shift), cov = sum (x - s)(x - s)' / n - m m', m = mean(x - s).
+    """
+    n, p = X.shape
+    k = p - 1
+    if n == 0 or k <= 0:
+        return np.zeros((max(k, 0), max(k, 0)))
+    shift = X[0, 1:].copy()
+    total = np.zeros((k, k))
+    sums = np.zeros(k)
+    for start in range(0, n, GRAM_CHUNK):
+        chunk = X[start:start + GRAM_CHUNK, 1:] - shift
+        total += chunk.T @ chunk
+        sums += chunk.sum(axis=0)
+    mean = sums / n
+    return total / n - np.outer(mean, mean)
+
+
 def aliased_columns(X: np.ndarray, tol: float = 1e-9) -> list[int]:
     """Columns of ``X`` that are constant or a linear combination of earlier ones.
 
-    Works on the small cross-product matrix, so it costs one pass over the
-    data: each column is kept when the share of its variance not explained by
-    the columns kept before it exceeds ``tol``.  The intercept (column 0) is
-    always kept.  Formula: residual variance of x_j on the kept columns, from
-    the Cholesky factor of X'X.
+    Decided on centred columns (:func:`centred_gram`), so neither the size of
+    a column's values nor its distance from zero matters, only its spread:
+    a column is constant when all its values are equal, and it is dropped as
+    determined by the others when the share of its variance not explained by
+    the columns kept before it is at most ``tol``.  The intercept (column 0)
+    is always kept.  Formula: residual variance of x_j on the kept columns,
+    from the centred covariance matrix.
     """
     n, p = X.shape
-    gram = X.T @ X / n
-    keep: list[int] = [0]
+    if p <= 1:
+        return []
+    # One cross-product of the raw columns serves whenever no column's mean dwarfs its spread; otherwise
+    # E[x^2] - E[x]^2 would lose the variance to cancellation, and the centred pass is made instead.
+    gram = X.T @ X / max(n, 1)
+    mean = gram[0, 1:]
+    cov = gram[1:, 1:] - np.outer(mean, mean)
+    if np.any(np.diag(cov) <= 1e-6 * np.diag(gram)[1:]):
+        cov = centred_gram(X)
+    keep: list[int] = []   # indices into the centred columns (column j of X is j - 1 here)
     dropped: list[int] = []
-    for j in range(1, p):
-        # Variance of x_j about its mean, the scale against which "explained" is judged.
-        var_j = gram[j, j] - gram[0, j] ** 2
-        if var_j <= tol * max(gram[j, j], 1e-300):
-            dropped.append(j)
+    for c in range(p - 1):
+        var_c = cov[c, c]
+        if not var_c > 0:  # a constant column: exactly 0 on the centred pass, which such a column triggers
+            dropped.append(c + 1)
             continue
-        sub = gram[np.ix_(keep, keep)]
-        cross = gram[keep, j]
-        try:
-            coef = np.linalg.solve(sub, cross)
-        except np.linalg.LinAlgError:
-            coef = np.linalg.lstsq(sub, cross, rcond=None)[0]
-        resid = gram[j, j] - cross @ coef
-        if resid <= tol * var_j:
-            dropped.append(j)
+        if keep:
+            sub = cov[np.ix_(keep, keep)]
+            cross = cov[keep, c]
+            try:
+                coef = np.linalg.solve(sub, cross)
+            except np.linalg.LinAlgError:
+                coef = np.linalg.lstsq(sub, cross, rcond=None)[0]
+            resid = var_c - cross @ coef
         else:
-            keep.append(j)
+            resid = var_c
+        if resid <= tol * var_c:
+            dropped.append(c + 1)
+        else:
+            keep.append(c)
     return dropped

@@ -393,6 +393,62 @@ def _separation_suspects(design: Design, X: np.ndarray, y: np.ndarray, params, k
     return empty_cells, diverging
 
 
+#: A column is fitted centred and scaled when its spread or its distance from zero is beyond these.
+SCALE_LOW, SCALE_HIGH = 1e-3, 1e3
+
+
+def working_scale(X: np.ndarray):
+    """``(centre, scale)`` of the columns after the intercept when any is far from unit scale, else None.
+
+    Ordinary columns (spread between 1e-3 and 1e3, mean within 1e3 spreads of
+    zero) are fitted as they are: Newton settles on them, and the copy a
+    rescaling needs is saved.  Constant columns keep scale 1.
+    """
+    if X.shape[1] <= 1 or X.shape[0] == 0:
+        return None
+    # Judged on at most about 10,000 evenly spread rows: any centre and scale give the same estimates once
+    # carried back, so they need only be of the right size, and a pass over every row is saved.
+    sample = X[:: max(1, X.shape[0] // 10_000), 1:]
+    centre = sample.mean(axis=0)
+    spread = sample.std(axis=0)
+    spread = np.where(spread > 0, spread, 1.0)
+    if np.all((spread >= SCALE_LOW) & (spread <= SCALE_HIGH) & (np.abs(centre) <= SCALE_HIGH * spread)):
+        return None
+    return centre, spread
+
+
+def scaled_columns(X: np.ndarray, centre: np.ndarray, spread: np.ndarray) -> np.ndarray:
+    """The intercept and (x - centre) / spread for every other column."""
+    Z = np.empty_like(X, dtype=float)
+    Z[:, 0] = X[:, 0]
+    np.subtract(X[:, 1:], centre, out=Z[:, 1:])
+    Z[:, 1:] /= spread
+    return Z
+
+
+def to_working(b: np.ndarray, centre: np.ndarray, spread: np.ndarray) -> np.ndarray:
+    """Coefficients on the original columns as coefficients on the scaled ones: a_j = b_j s_j, a_0 = b_0 + sum b_j c_j."""
+    b = np.asarray(b, dtype=float)
+    a = np.empty_like(b)
+    a[1:] = b[1:] * spread
+    a[0] = b[0] + float(b[1:] @ centre)
+    return a
+
+
+def from_working(a: np.ndarray, cov_a: np.ndarray, centre: np.ndarray, spread: np.ndarray):
+    """Coefficients and covariance back on the original columns: b = T a, cov_b = T cov_a T'.
+
+    T maps the scaled fit to the original columns: b_j = a_j / s_j and
+    b_0 = a_0 - sum a_j c_j / s_j.
+    """
+    k = len(a)
+    T = np.zeros((k, k))
+    T[0, 0] = 1.0
+    T[0, 1:] = -centre / spread
+    T[np.arange(1, k), np.arange(1, k)] = 1.0 / spread
+    return T @ a, T @ cov_a @ T.T
+
+
 def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None) -> LogisticFit:
     """Fit a logistic model by maximum likelihood (statsmodels ``Logit``, Newton).
 
@@ -454,12 +510,17 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
 
     from statsmodels.discrete.discrete_model import Logit
 
+    # Columns far from unit scale (a lab value in the wrong unit, money in cents, dates as yyyymmdd) are
+    # fitted centred and scaled, then the estimates are carried back: Newton's steps then settle.
+    scaling = working_scale(X)
+    Xw = X if scaling is None else scaled_columns(X, *scaling)
+    start_w = b0 if scaling is None else to_working(b0, *scaling)
     with one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
         warnings.simplefilter("always")
         # hasconst=False skips statsmodels' constant search (a pass over the data); nothing we read depends on it.
-        model = Logit(y, X, check_rank=False, hasconst=False)
+        model = Logit(y, Xw, check_rank=False, hasconst=False)
         try:
-            res = model.fit(method="newton", start_params=b0, maxiter=maxiter, disp=0,
+            res = model.fit(method="newton", start_params=start_w, maxiter=maxiter, disp=0,
                             warn_convergence=False)
             params = np.asarray(res.params, dtype=float)
             cov = np.asarray(res.normalized_cov_params, dtype=float)
@@ -468,13 +529,15 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
             llf = float(res.llf)
         except np.linalg.LinAlgError:
             # A singular information matrix at some step: typical of separation.
-            params, converged, iterations = b0, False, 0
+            params, converged, iterations = start_w, False, 0
             from scipy.special import expit
 
-            p = expit(X @ params)
+            p = expit(Xw @ params)
             llf = float(np.sum(y * np.log(np.clip(p, 1e-300, 1)) + (1 - y) * np.log(np.clip(1 - p, 1e-300, 1))))
-            h = (X * (p * (1 - p))[:, None]).T @ X
+            h = (Xw * (p * (1 - p))[:, None]).T @ Xw
             cov = np.linalg.pinv(h)
+    if scaling is not None:
+        params, cov = from_working(params, cov, *scaling)
     complete_sep = any("separation" in str(w.message).lower() for w in caught)
     bad_cov = not np.all(np.isfinite(cov)) or np.any(np.diag(cov) < 0)
     if bad_cov:
