@@ -162,6 +162,9 @@ def run_gui(argv: list[str]) -> int:
 
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``twofold`` console script."""
+    import multiprocessing
+
+    multiprocessing.freeze_support()  # the window's assessment process, in a bundled application folder
     argv = list(sys.argv[1:] if argv is None else argv)
     try:
         if argv and argv[0] == "fit":

@@ -33,6 +33,20 @@ def window(qtbot, home, tmp_path):
 
 
 @pytest.fixture(autouse=True)
+def assessments_here(request):
+    """Most window tests work the assessment out on its thread in the test process: a process of its own
+    for each of the many windows the tests open would only load the machine.  Tests marked
+    ``assessment_process`` use the process, as the application does."""
+    from twofold.gui.session import Session
+
+    patcher = pytest.MonkeyPatch()
+    if request.node.get_closest_marker("assessment_process") is None:
+        patcher.setattr(Session, "assess_in_process", False)
+    yield
+    patcher.undo()
+
+
+@pytest.fixture(autouse=True)
 def unsaved_answers():
     """Questions about unsaved changes are answered "don't save" unless a test says otherwise; asked ones are kept.
 

@@ -133,6 +133,8 @@ def test_a_superseded_assessment_never_overwrites_a_newer_one(qtbot, readmission
         return original(study, fit, threshold=threshold, checkpoint=checkpoint)
 
     monkeypatch.setattr(workspace_module, "assess_fit", slow_assess)
+    # The stand-in lives in this process: work the assessment out on the assessment thread here.
+    monkeypatch.setattr(session_module.Session, "assess_in_process", False)
     shown = []
     window.session.assessmentChanged.connect(lambda v: shown.append(None if v is None else v.rung))
     window.model_pane.set_ticked(["age"])  # request A: its assessment blocks
@@ -157,3 +159,56 @@ def test_matplotlib_is_not_imported_when_the_window_is_built(tmp_path):
     assert run.returncode == 0, run.stderr
     assert run.stdout.strip().splitlines()[-1] == "False"
 
+
+
+@pytest.mark.assessment_process
+def test_the_assessment_is_worked_out_in_a_process_of_its_own(qtbot, readmission):
+    import os
+
+    window = readmission
+    window.model_pane.set_ticked(PREDICTORS)
+    box = wait_assessed(qtbot, window)
+    pool = window.session._pool
+    assert pool is not None, "the assessment ran in the window's own process"
+    pids = {p.pid for p in pool._processes.values()}
+    assert pids and os.getpid() not in pids
+    # What it sent back is what the same assessment gives in this process (outside reference: scikit-learn).
+    from sklearn.metrics import roc_auc_score
+
+    fit = core_fit(PREDICTORS)
+    assert box.view.values["auc"] == pytest.approx(roc_auc_score(fit.design.y, fit.fitted), rel=1e-9)
+    assert set(box.view.figures) == {"roc", "calibration", "influence"}
+
+
+def test_the_assessment_process_ends_with_the_window_process_even_after_a_crash(tmp_path):
+    import time
+
+    code = (
+        "import os, sys, time\n"
+        "os.environ['QT_QPA_PLATFORM'] = 'offscreen'\n"
+        "from PySide6.QtWidgets import QApplication\n"
+        "app = QApplication([])\n"
+        "from twofold.gui.window import MainWindow\n"
+        "w = MainWindow(remember=False)\n"
+        "deadline = time.time() + 60\n"
+        "while (w.session._pool is None or not w.session._pool._processes) and time.time() < deadline:\n"
+        "    app.processEvents(); time.sleep(0.05)\n"
+        "print(*[p.pid for p in w.session._pool._processes.values()], flush=True)\n"
+        "os._exit(9)  # a crash: nothing is closed\n"
+    )
+    env = {**os.environ, "TWOFOLD_HOME": str(tmp_path)}
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, env=env)
+    pids = [int(x) for x in run.stdout.split()]
+    assert run.returncode == 9 and pids, run.stderr[-800:]
+
+    def alive(pid):
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            return False
+        return True
+
+    deadline = time.time() + 10
+    while any(alive(p) for p in pids) and time.time() < deadline:
+        time.sleep(0.2)
+    assert not any(alive(p) for p in pids)

@@ -78,6 +78,7 @@ def _term_rows(record):
              round(t["or_pl_low"], 4), round(t["or_pl_high"], 4)) for t in record["terms"]]
 
 
+@pytest.mark.assessment_process
 def test_window_session_rerun_and_report_give_the_same_digits(qtbot, readmission, tmp_path, monkeypatch):
     from twofold.gui import sessions_ui
 

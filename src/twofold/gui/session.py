@@ -45,6 +45,10 @@ class _Superseded(Exception):
 class Session(QObject):
     """The workspace, driven from the GUI thread and computed off it."""
 
+    #: Work out assessments in a process of their own (so they never hold the window's interpreter lock);
+    #: False: on the assessment thread of this process (tests that replace the assessment set this).
+    assess_in_process = True
+
     studyLoaded = Signal(object)      # StudyView of a newly opened file
     columnsChanged = Signal(object)   # StudyView after a role or reference change
     outcomeChanged = Signal(object)   # OutcomeView
@@ -94,6 +98,8 @@ class Session(QObject):
         self._assessor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-assess")
         self._profiler = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-profile")
         self._assessment_of = None      # (fit, core Assessment, figures) of the last assessment worked out
+        self._pool = None               # the assessment process (see _process_pool)
+        self._closing = False
         self._held: dict[str, tuple] = {}   # displays that arrived before the results they describe
         self._callbacks: dict[int, object] = {}
         self._assessed.connect(self._on_assessed)
@@ -108,9 +114,12 @@ class Session(QObject):
 
     def shutdown(self) -> None:
         self._floor["assessment"] = self._floor["profile"] = 1 << 60  # abandon whatever is being worked out
+        self._closing = True
         self._worker.stop()
         self._assessor.shutdown(wait=False, cancel_futures=True)
         self._profiler.shutdown(wait=False, cancel_futures=True)
+        if self._pool is not None:
+            self._pool.shutdown(wait=False, cancel_futures=True)
 
     @property
     def busy(self) -> bool:
@@ -409,7 +418,7 @@ class Session(QObject):
         import twofold.gui.present  # noqa: F401
 
         warm_up()
-        self._assessor.submit(self._warm_up_drawing)
+        self._assessor.submit(self._start_assessment_process)
         return {}
 
     @staticmethod
@@ -477,8 +486,7 @@ class Session(QObject):
         import dataclasses
 
         from twofold.core.errors import TwofoldError
-        from twofold.core.workspace import assess_fit
-        from twofold.gui import figures, present
+        from twofold.gui import present
 
         def checkpoint():
             if self._floor["assessment"] > job_id:
@@ -495,9 +503,7 @@ class Session(QObject):
                 table = disc.classification_table(fit.design.y, fit.fitted, threshold)
                 result = dataclasses.replace(result, classification=table)
             else:
-                result = assess_fit(study, fit, threshold=threshold, checkpoint=checkpoint)
-                checkpoint()
-                pictures = figures.assessment_figures(result)
+                result, pictures = self._work_out(job_id, study, fit, threshold, checkpoint)
             self._assessment_of = (fit, result, pictures)
             checkpoint()
             self._emit(self._assessed, job_id, present.assessment_view(index, result, pictures, fit), None)
@@ -508,6 +514,77 @@ class Session(QObject):
         except Exception as exc:  # never lose a failure silently
             self._emit(self._assessed, job_id, None,
                        Failure("assess", f"{type(exc).__name__}: {exc}", True, log_exception(exc), type(exc).__name__))
+
+    def _work_out(self, job_id, study, fit, threshold, checkpoint):
+        """Assessment thread: ``(Assessment, figures)`` of ``fit``, from the assessment process when there is one.
+
+        Waiting is given up as soon as a newer request makes the answer
+        pointless (a queued piece of work is withdrawn; one already running
+        ends by itself).  Without a process, or if it broke, the work is done
+        here, on this thread.
+        """
+        from concurrent.futures import TimeoutError as StillRunning
+        from concurrent.futures.process import BrokenProcessPool
+
+        from twofold.render.assessed import Abandoned, assess_and_draw
+
+        pool = self._process_pool()
+        if pool is not None:
+            try:
+                future = pool.submit(assess_and_draw, fit, threshold, job_id)
+                while True:
+                    try:
+                        return future.result(timeout=0.05)
+                    except Abandoned:
+                        raise _Superseded from None
+                    except StillRunning:
+                        try:
+                            checkpoint()
+                        except _Superseded:
+                            future.cancel()
+                            self._wanted_from.value = self._floor["assessment"]  # the process stops too
+                            raise
+            except (BrokenProcessPool, OSError, RuntimeError) as exc:
+                log_exception(exc)
+                self._pool, self.assess_in_process = None, False  # from now on, on this thread
+        from twofold.core.workspace import assess_fit
+        from twofold.gui import figures
+
+        result = assess_fit(study, fit, threshold=threshold, checkpoint=checkpoint)
+        checkpoint()
+        return result, figures.assessment_figures(result)
+
+    def _process_pool(self):
+        """The assessment process (started on first use; assessment thread only), or None."""
+        if not self.assess_in_process or self._closing:
+            return None
+        if self._pool is None:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            from twofold.render.assessed import start_quietly
+
+            try:
+                context = multiprocessing.get_context("spawn")
+                self._wanted_from = context.Value("q", 0, lock=False)
+                self._pool = ProcessPoolExecutor(max_workers=1, mp_context=context, initializer=start_quietly,
+                                                 initargs=(self._wanted_from,))
+            except (OSError, ValueError, RuntimeError) as exc:
+                log_exception(exc)
+                self.assess_in_process = False
+                return None
+        return self._pool
+
+    def _start_assessment_process(self) -> None:
+        """Assessment thread, once the core is loaded: start the process now, not at the first tick."""
+        pool = self._process_pool()
+        if pool is None:
+            self._warm_up_drawing()
+            return
+        try:
+            pool.submit(int, 0).result(timeout=120)
+        except Exception as exc:  # it will be retried, or the work done on this thread
+            log_exception(exc)
 
     def _profile(self, job_id, ws, fit, index) -> None:
         """Profile thread: the intervals of a read-only fit, sent to the GUI thread if still wanted."""

@@ -1,0 +1,95 @@
+"""An assessment with its pictures in one call, so that a process of its own can make them.
+
+The window works out how good the model shown is in a separate process
+(:class:`twofold.gui.session.Session`): the assessment's Python work and the
+drawing then never compete with the window's thread for the interpreter
+lock, which on a two-core machine was the cause of the window's stalls.  The
+process receives the read-only fit and returns the core
+:class:`~twofold.core.assessing.assessment.Assessment` with the PNG bytes of
+its figures.  Nothing here imports Qt.
+"""
+
+from __future__ import annotations
+
+from twofold.render import figures as shared
+
+
+def assessment_figures(result) -> dict:
+    """PNG bytes of the ROC curve, the calibration plot and the influence plot of a core Assessment.
+
+    Keys ``roc`` and ``calibration``, and ``influence`` when influence was computed.
+    """
+    roc = result.roc
+    out = {"roc": shared.roc_figure(roc.fpr, roc.tpr, float(result.auc.auc))}
+    groups, smooth = result.groups, result.smooth
+    cal = {}
+    if groups is not None and len(groups.n):
+        cal = {"mean_predicted": groups.mean_predicted, "observed": groups.observed,
+               "ci_low": groups.ci_low, "ci_high": groups.ci_high}
+    if smooth is not None:
+        cal.update(smooth_predicted=smooth.predicted, smooth_observed=smooth.observed,
+                   smooth_unsteady=bool(smooth.unreliable))
+    out["calibration"] = shared.calibration_figure(**cal)
+    if result.influence is not None:
+        out["influence"] = shared.influence_figure(result.influence.cooks_distance, result.rows)
+    return out
+
+
+#: Set in an assessment process: a shared number; work on a ticket below it is no longer wanted.
+_WANTED_FROM = None
+
+
+class Abandoned(Exception):
+    """An assessment given up because a newer one was asked for."""
+
+
+def assess_and_draw(fit, threshold=None, ticket=None):
+    """``(Assessment, figures)`` of a read-only fit: everything the window's assessment section shows.
+
+    In an assessment process, work on ``ticket`` stops between its steps
+    (raising :class:`Abandoned`) once a newer ticket is wanted.
+    """
+    from twofold.core.workspace import assess_fit
+
+    def checkpoint():
+        if ticket is not None and _WANTED_FROM is not None and _WANTED_FROM.value > ticket:
+            raise Abandoned
+
+    result = assess_fit(None, fit, threshold=threshold, checkpoint=checkpoint)
+    checkpoint()
+    return result, assessment_figures(result)
+
+
+def start_quietly(wanted_from=None) -> None:
+    """At the start of an assessment process: yield to the window, keep the shared ticket, load the libraries."""
+    import os
+
+    global _WANTED_FROM
+    _WANTED_FROM = wanted_from
+    _leave_with_parent()
+    try:
+        os.nice(5)
+    except (AttributeError, OSError):
+        pass
+    import twofold.core.workspace  # noqa: F401
+
+    shared.png_bytes(shared.new_figure())
+
+
+def _leave_with_parent() -> None:
+    """End this process as soon as the window's process is gone (however it ended: closed, killed, crashed)."""
+    import multiprocessing
+    import os
+    import threading
+    import time
+
+    parent = multiprocessing.parent_process()
+    if parent is None:
+        return
+
+    def watch():
+        while parent.is_alive():
+            time.sleep(0.5)
+        os._exit(0)
+
+    threading.Thread(target=watch, name="twofold-parent-watch", daemon=True).start()
