@@ -85,3 +85,18 @@ def test_the_rank_check_on_large_offsets_agrees_with_numpy_on_centred_columns():
     tol = 1e-6 * np.linalg.norm(centred, 2)
     assert np.linalg.matrix_rank(centred[:, kept], tol=tol) == len(kept)
     assert np.linalg.matrix_rank(centred, tol=tol) == len(kept)
+
+
+@pytest.mark.parametrize("factor", [1e-6, 1e6])
+def test_drop_one_likelihood_ratio_tests_hold_in_extreme_units(factor):
+    from twofold.core.models.study import drop_one_tests
+
+    a, b, y = simulated()
+    st = study_of(pd.DataFrame({"lab": a * factor + (1e7 if factor > 1 else 0.0), "b": b, "y": y}))
+    tests = drop_one_tests(st, st.fit(["lab", "b"]))
+    # Outside reference: statsmodels fits of the full model and of each model without one predictor,
+    # on the columns at ordinary size (a G test does not depend on a predictor's unit or origin).
+    full = sm.Logit(y, sm.add_constant(np.column_stack([a, b]))).fit(disp=0)
+    without = [sm.Logit(y, sm.add_constant(other)).fit(disp=0) for other in (b, a)]
+    assert [t.g for t in tests] == pytest.approx([2 * (full.llf - w.llf) for w in without], rel=1e-7)
+    assert all(t.available for t in tests)
