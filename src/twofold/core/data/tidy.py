@@ -282,24 +282,15 @@ def _tidy_text(name, codes, uniques, flavour, found):
 
 def _text_series(values, name):
     """A pandas text column from an object array of str and NaN, as pandas itself would read it."""
-    import numpy as np
     import pandas as pd
 
-    global _EMPTY_TEXT
-    if _EMPTY_TEXT is None:
-        dtype = pd.Series([], dtype="str").dtype
-        _EMPTY_TEXT = (pd.arrays.StringArray(np.array([], dtype=object), dtype=dtype)
-                       if getattr(dtype, "storage", None) == "python" else False)
-    if _EMPTY_TEXT is not False:
-        try:
-            # The values are known to be str or NaN, so pandas' per-cell check is skipped.
-            return pd.Series(_EMPTY_TEXT._from_backing_data(values), name=name, copy=False)
-        except AttributeError:  # another pandas: build it the general way
-            pass
-    return pd.Series(values, dtype="str", name=name)
-
-
-_EMPTY_TEXT = None
+    dtype = pd.Series([], dtype="str").dtype
+    # pandas' public array constructor for its own text type (no reach into its internals); the
+    # general route below is for a pandas whose text type this constructor does not take.
+    try:
+        return pd.Series(pd.array(values, dtype=dtype), name=name, copy=False)
+    except (TypeError, ValueError):
+        return pd.Series(values, dtype="str", name=name)
 
 
 def _merge_variants(name, codes, labels, keep, found):
