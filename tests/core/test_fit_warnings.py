@@ -146,3 +146,42 @@ def test_warm_start_reaches_the_same_fit():
     small_warm = st.fit(["age", "prior_admissions"], start=big)
     np.testing.assert_allclose(small_warm.params, small_cold.params, rtol=1e-7)
     assert small_warm.iterations <= small_cold.iterations + 1
+
+
+def test_separation_is_worded_from_what_twofold_found_not_from_a_library_warning():
+    # Albert & Anderson (1984, Biometrika 71:1): complete separation means some b puts every event above
+    # every non-event; quasi-complete means ties at the boundary. Built here by construction.
+    x = np.arange(30.0)
+    complete = study_of(pd.DataFrame({"x": x, "y": (x >= 15).astype(int)})).fit(["x"])
+    (sep,) = [n for n in complete.notices if n.code == "separation"]
+    assert "separates the outcome completely" in sep.message
+    # One tie at the boundary (x = 15 has an event and a non-event): quasi-complete.
+    tied = pd.DataFrame({"x": np.append(x, 15.0), "y": np.append((x >= 15).astype(int), 0)})
+    quasi = study_of(tied).fit(["x"])
+    (sep,) = [n for n in quasi.notices if n.code == "separation"]
+    assert "almost completely" in sep.message
+
+
+def test_a_fit_that_does_not_settle_shows_no_odds_ratios():
+    # Under complete separation the maximum-likelihood estimate does not exist (Albert & Anderson 1984),
+    # so whatever Newton stopped at is not a result: no odds ratio, interval or stated effect is given,
+    # in the record, the text account or the window's lines.
+    from twofold.core.models.modelling import stated_effects
+    from twofold.core.outputs.summary import fit_record
+    from twofold.core.outputs.text import describe
+
+    rng = np.random.default_rng(4)
+    x = np.arange(40.0)
+    frame = pd.DataFrame({"x": x, "z": rng.normal(size=40), "y": (x >= 20).astype(int)})
+    fit = study_of(frame).fit(["x", "z"])
+    assert not fit.converged
+    record = fit_record(fit, "y", 1)
+    assert all(t["odds_ratio"] is None and t["or_ci_low"] is None and t["withheld"] == "not settled"
+               for t in record["terms"])
+    assert stated_effects(fit) == []
+    text = describe(record)
+    assert "not shown" in text and "the fit did not settle" in text
+    # An ordinary fit keeps its odds ratios (statsmodels' exp(params) is the reference).
+    ok = study_of(frame.assign(y=(rng.random(40) < 0.5).astype(int))).fit(["x", "z"])
+    ref = sm.Logit(ok.design.y, sm.add_constant(frame[["x", "z"]].to_numpy())).fit(disp=0)
+    assert [r["odds_ratio"] for r in ok.coefficient_rows[1:]] == pytest.approx(np.exp(ref.params[1:]), rel=1e-6)

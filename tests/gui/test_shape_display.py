@@ -61,7 +61,7 @@ def test_a_spline_is_named_in_the_model_pane_results_and_ladder(qtbot, shaped):
     assert heading.label.startswith("age as a whole, curved (spline with 4 knots)")
     assert f"\nknots at {at}\n" in heading.label
     rows = [x.label for x in view.lines if x.kind == "term" and x.column == "age"]
-    assert rows == ["age (per 1 unit, below the first knot)", "age: curve term 1", "age: curve term 2"]
+    assert rows == ["age: curve, slope below the first knot", "age: curve term 1", "age: curve term 2"]
     assert all(x.hint for x in view.lines if x.kind == "term" and x.column == "age")
     # The ladder names the curve too, and the curvature test sits with the other tests.
     assert view.ladder.rows[-1].predictors_text.startswith("age (curved, 4 knots), sex")
@@ -98,6 +98,17 @@ def test_an_interaction_is_listed_tickable_and_labelled(qtbot, shaped):
     X["los_x_sex"] = X["los"] * male
     res = sm.Logit(frame[OUTCOME].astype(float), X).fit(disp=0)
     assert line.values["estimate"] == pytest.approx(res.params["los_x_sex"], rel=1e-5)
+    # The odds ratio of a day's stay is stated for each sex, as the user reads it: for men it is
+    # exp(b_los + b_los_x_sex) from the same statsmodels fit.
+    from twofold.core.outputs.text import fmt_or
+
+    assert pane.stated.isVisible()
+    men = fmt_or(float(np.exp(res.params["los"] + res.params["los_x_sex"])))
+    assert f"length_of_stay (per 1 unit), where sex is M: odds ratio {men}" in pane.stated.text()
+    assert "sex: M vs F, where length_of_stay is" in pane.stated.text()
+    # Sex is tested together with its interaction (its total effect), and says so.
+    headings = [x.label for x in pane.view.lines if x.kind == "heading"]
+    assert any(h.startswith("sex, with its interaction with length_of_stay\n") for h in headings)
 
     # Unticking a predictor of the interaction removes the interaction too (a model needs both).
     window.model_pane.toggle("sex")

@@ -678,6 +678,9 @@ class ResultsPane(QWidget):
         self.shape = _wrapped("", "Tests of curved effects and interactions")
         self.shape.hide()
         t.addWidget(self.shape)
+        self.stated = _wrapped("", "Odds ratios at stated values")
+        self.stated.hide()
+        t.addWidget(self.stated)
         self.model_notes_box = QWidget()
         self.model_notes_layout = QVBoxLayout(self.model_notes_box)
         self.model_notes_layout.setContentsMargins(0, 0, 0, 0)
@@ -850,6 +853,11 @@ class ResultsPane(QWidget):
             self.shape.setText("".join(f"<p><b>{esc(t.title)}</b> {esc(t.text)}<br>{esc(t.reading)}</p>"
                                        for t in view.shape_tests))
         self.shape.setVisible(bool(view.shape_tests))
+        if view.stated_effects:
+            self.stated.setText(
+                "<p><b>Odds ratios at stated values</b> (where one coefficient alone would mislead: a predictor "
+                "in an interaction, or a curve)</p>" + "".join(f"<p>{esc(line)}</p>" for line in view.stated_effects))
+        self.stated.setVisible(bool(view.stated_effects))
         self._clear(self.model_notes_layout)
         offered = any(n.code == "separation" for n in view.predictor_notes)
         for note in view.model_notes:

@@ -11,7 +11,8 @@ from __future__ import annotations
 import math
 
 from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
-from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, reading_nested, reading_overall
+from twofold.core.models.terms import TIMES, value_text
+from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, or_cells, stated_line, reading_nested, reading_overall
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
     OutcomeView, ProfileView, ResultsView, StudyView, TestView,
@@ -19,17 +20,11 @@ from twofold.gui.views import (
 
 from twofold.core.workspace import is_penalised, profile_auto  # noqa: F401  (used by the panes' texts)
 
-#: The multiplication sign joining the two predictors of an interaction ("age \u00d7 sex").
-TIMES = "\u00d7"
 
 
 def value_label(v) -> str:
     """An outcome or level value as text: 1.0 -> '1', numpy scalars as Python."""
-    if hasattr(v, "item"):
-        v = v.item()
-    if isinstance(v, float) and v.is_integer():
-        return str(int(v))
-    return str(v)
+    return value_text(v)
 
 
 def _degrees(df: int) -> str:
@@ -163,50 +158,18 @@ INTERACTION_HINT = ("An interaction coefficient: how much the odds ratio of one 
                     "each step of the other. The Model shape menu shows the odds ratios at chosen values.")
 
 
-def _part_text(block, level) -> str:
-    """A factor's side of an interaction level: "M vs F"."""
-    return f"{value_label(level)} vs {value_label(block.reference)}"
-
-
-def _interaction_label(block, level) -> str:
-    """"a \u00d7 b (per 1 unit of each)", "los \u00d7 sex: M vs F (per 1 unit)", "sex \u00d7 ward: M vs F, B vs A"."""
-    a, b = block.reference
-    name = f"{a.column} {TIMES} {b.column}"
-    if level is None:
-        return f"{name} (per 1 unit of each)"
-    if a.kind == "factor" and b.kind == "factor":
-        la = next((v for v in a.levels if str(level).startswith(f"{v}:")), str(level).split(":")[0])
-        lb = str(level)[len(str(la)) + 1:]
-        lb = next((v for v in b.levels if str(v) == lb), lb)
-        return f"{name}: {_part_text(a, la)}, {_part_text(b, lb)}"
-    # One number and one factor: per unit of the number, as its own row says.
-    return f"{name}: {_part_text(a if a.kind == 'factor' else b, level)} (per 1 unit)"
-
-
-def _term_label(row, block=None) -> str:
-    if block is not None and block.kind == "spline":
-        if row["level"] is None:
-            return f"{row['column']} (per 1 unit, below the first knot)"
-        number = str(row["level"]).removeprefix("nonlinear ").strip()
-        return f"{row['column']}: curve term {number}"
-    if block is not None and block.kind == "interaction":
-        return _interaction_label(block, row["level"])
-    if row["level"] is None:
-        return f"{row['column']} (per 1 unit)"
-    return f"{row['column']}: {value_label(row['level'])} vs {value_label(row['reference'])}"
-
-
 def _heading(col, block, t, first_row) -> tuple[str, str]:
     """The label of a multi-coefficient term's heading row and what its coefficients are."""
-    joint = f"joint Wald chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)}"
+    joint = f"all its coefficients together: chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)}"
+    if t.includes:
+        return (f"{t.label}\n{joint}",
+                f"{t.df} coefficients: its effect together with its interaction{'s' if len(t.includes) > 1 else ''}")
     if block is not None and block.kind == "spline":
         knots = ", ".join(f"{v:g}" for v in block.knots)
         return (f"{col} as a whole, curved (spline with {len(block.knots)} knots)\nknots at {knots}\n{joint}",
                 f"{t.df} coefficients describing one curve")
     if block is not None and block.kind == "interaction":
-        a, b = block.reference
-        return (f"{a.column} {TIMES} {b.column} as a whole (interaction)\n{joint}",
-                f"{t.df} interaction coefficients")
+        return (f"{t.label} as a whole (interaction)\n{joint}", f"{t.df} interaction coefficients")
     ref = value_label(first_row["reference"]) if first_row["reference"] is not None else ""
     return f"{col} as a whole\n{joint}", f"{t.df + 1} groups, compared with {ref}"
 
@@ -234,16 +197,17 @@ def coefficient_lines(fit, warned: dict) -> tuple:
             headed.add(col)
         values = {k: r[k] for k in ("odds_ratio", "or_ci_low", "or_ci_high", "p_value", "z",
                                     "estimate", "std_error")}
+        odds, ci = or_cells(r)
         texts = {
-            "odds_ratio": fmt_or(r["odds_ratio"]),
-            "ci": f"{fmt_or(r['or_ci_low'])} to {fmt_or(r['or_ci_high'])}",
+            "odds_ratio": odds,
+            "ci": ci,
             "p_value": fmt_p(r["p_value"]),
             "z": fmt_num(r["z"], 2),
             "estimate": fmt_num(r["estimate"], 4),
             "std_error": fmt_num(r["std_error"], 4),
         }
         hint = {"spline": SPLINE_HINT, "interaction": INTERACTION_HINT}.get(getattr(block, "kind", ""), "")
-        lines.append(CoefficientLine("term", col, _term_label(r, block), texts, values,
+        lines.append(CoefficientLine("term", col, r["label"], texts, values,
                                      tuple(warned.get(col, ())), level=r["level"], name=r["name"], hint=hint))
     i = rows[0]
     lines.append(CoefficientLine(
@@ -426,9 +390,17 @@ def results_view(ws) -> ResultsView | None:
         ladder=ladder_view(ws), rows_used=fit.n_used, rows_read=rows_read,
         events=fit.events, events_per_parameter=epp if math.isfinite(epp) else None,
         log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(ws, fit),
+        stated_effects=stated_lines(fit),
         penalised=penalised, method_text=PENALISED_TEXT if penalised else "", separation=separation,
         profile_auto=profile_auto(fit),
     )
+
+
+def stated_lines(fit) -> tuple:
+    """"sex: M vs F, where age is 63 (median): odds ratio 1.23 (95% interval 1.01 to 1.50)", one per stated effect."""
+    from twofold.core.models.modelling import stated_effects
+
+    return tuple(stated_line(e) for e in stated_effects(fit))
 
 
 def comparison_view(ws, i: int, j: int) -> ComparisonView:

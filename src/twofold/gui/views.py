@@ -194,6 +194,8 @@ class ResultsView:
     contents_text: str = ""
     #: Tests of the model's shape: curvature of each spline, each interaction (TestView each).
     shape_tests: tuple = ()
+    #: Odds ratios at stated values (of a predictor in an interaction, along a curve): one line each.
+    stated_effects: tuple = ()
     #: Whether the fit shown is Firth's penalised fit, and the sentence that says what that changes.
     penalised: bool = False
     method_text: str = ""

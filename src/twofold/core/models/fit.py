@@ -94,12 +94,23 @@ class TermTest:
     """A joint Wald test that all of one predictor's coefficients are zero.
 
     statistic = b' V^-1 b over the predictor's coefficients; chi-square on df.
+    For a predictor that is part of an interaction, the coefficients are its
+    total effect: its own together with those of every interaction that
+    contains it (``includes`` names those interactions).
     """
 
     column: str
     statistic: float
     df: int
     p_value: float
+    includes: tuple = ()
+
+    @property
+    def label(self) -> str:
+        """"age", or "age, with its interaction with sex"."""
+        from twofold.core.models.terms import total_label
+
+        return total_label(self.column, self.includes)
 
 
 @dataclass(frozen=True)
@@ -290,38 +301,90 @@ class LogisticFit:
         return out
 
     @cached_property
+    def total_index(self) -> dict[str, np.ndarray]:
+        """For each predictor, the positions of its kept parameters and of every interaction containing it.
+
+        A predictor in no interaction has just its own (:attr:`term_index`);
+        an interaction has its own.
+        """
+        from twofold.core.models.terms import total_effects
+
+        index = self.term_index
+        within = total_effects(self.design.predictors)
+        return {c: np.concatenate([idx] + [index[t] for t in within.get(c, ())]) for c, idx in index.items()}
+
+    def joint_wald(self, idx) -> float:
+        """b' V^-1 b over the parameters at positions ``idx`` (NaN when V is singular there)."""
+        idx = np.asarray(idx, dtype=int)
+        b = self._params[idx]
+        v = self._cov[np.ix_(idx, idx)]
+        try:
+            return float(b @ np.linalg.solve(v, b))
+        except np.linalg.LinAlgError:
+            return float("nan")
+
+    @cached_property
     def term_tests(self) -> dict[str, TermTest]:
-        """Joint Wald chi-square for each predictor with two or more kept coefficients."""
+        """Joint Wald chi-square for each predictor whose effect has two or more kept coefficients.
+
+        A predictor that is part of an interaction is tested with the
+        interaction's coefficients (its total effect), so the test does not
+        depend on where the other predictor's zero lies.
+        """
+        from twofold.core.models.terms import total_effects
+
+        within = total_effects(self.design.predictors)
         out = {}
-        for column, idx in self.term_index.items():
+        for column, idx in self.total_index.items():
             if len(idx) < 2:
                 continue
-            b = self._params[idx]
-            v = self._cov[np.ix_(idx, idx)]
-            try:
-                stat = float(b @ np.linalg.solve(v, b))
-            except np.linalg.LinAlgError:
-                stat = float("nan")
-            out[column] = TermTest(column, stat, len(idx), chi2_sf(stat, len(idx)))
+            stat = self.joint_wald(idx)
+            out[column] = TermTest(column, stat, len(idx), chi2_sf(stat, len(idx)), within.get(column, ()))
         return out
 
     @cached_property
+    def odds_ratios_withheld(self) -> str | None:
+        """Why no odds ratio of this fit may be read as a result, or None.
+
+        A fit that did not settle stopped short of the maximum: its estimates
+        are not the model's, so its odds ratios are not shown.
+        """
+        if not self.converged:
+            return "not settled"
+        return None
+
+    @cached_property
     def coefficient_rows(self) -> list[dict]:
-        """One record per kept coefficient (intercept first) with all its figures."""
+        """One record per kept coefficient (intercept first) with all its figures.
+
+        ``label`` words the coefficient ("ward: B vs A"), ``part`` says what
+        it belongs to (number, group, curve, interaction).  The odds ratio
+        and its interval are NaN, with ``withheld`` saying why, for a curve's
+        coefficients (they describe one curve together: read the odds ratios
+        between stated values instead) and for every row of a fit that did
+        not settle.
+        """
+        from twofold.core.models.terms import coefficient_label, coefficient_part
+
         lo, hi = self.odds_ratio_ci
         level_of = {}
         for block, sl in zip(self.design.blocks, self.design.slices):
             for j, c in enumerate(range(sl.start, sl.stop)):
-                level_of[c] = (block.column, block.level_of(j), block.factor_reference)
+                level_of[c] = (block, block.level_of(j))
         rows = []
         for i, c in enumerate(self.kept):
-            column, level, reference = level_of.get(int(c), (None, None, None))
+            block, level = level_of.get(int(c), (None, None))
+            withheld = self.odds_ratios_withheld or ("curve" if getattr(block, "kind", "") == "spline" else None)
+            shown = (float("nan"),) * 3 if withheld or block is None else (
+                float(self.odds_ratios[i]), float(lo[i]), float(hi[i]))
             rows.append({
-                "name": self.names[i], "column": column, "level": level, "reference": reference,
+                "name": self.names[i], "column": None if block is None else block.column, "level": level,
+                "reference": None if block is None else block.factor_reference,
+                "label": coefficient_label(block, level), "part": coefficient_part(block),
                 "estimate": float(self._params[i]), "std_error": float(self.std_errors[i]),
                 "z": float(self.z[i]), "p_value": float(self.p_values[i]),
-                "odds_ratio": float(self.odds_ratios[i]),
-                "or_ci_low": float(lo[i]), "or_ci_high": float(hi[i]),
+                "odds_ratio": shown[0], "or_ci_low": shown[1], "or_ci_high": shown[2],
+                "withheld": withheld if block is not None else None,
             })
         return rows
 
@@ -391,6 +454,34 @@ def _separation_suspects(design: Design, X: np.ndarray, y: np.ndarray, params, k
                 if col and col not in diverging:
                     diverging.append(col)
     return empty_cells, diverging
+
+
+#: Rows up to which complete separation is decided exactly by a linear programme.
+SEPARATION_LP_ROWS = 100_000
+
+
+def separates_completely(X: np.ndarray, y: np.ndarray, fitted: np.ndarray) -> bool:
+    """Whether some combination of the columns puts every event above every non-event (complete separation).
+
+    Decided as the feasibility of the linear programme s_i x_i'b >= 1 for
+    every row, s_i = +1 for an event and -1 otherwise (Albert & Anderson
+    1984, Biometrika 71:1: complete separation is exactly such a b, scaled);
+    solved by scipy's HiGHS.  Beyond :data:`SEPARATION_LP_ROWS` rows, the fit's
+    own risks decide: every record's outcome predicted within 1e-6.
+    Quasi-complete separation (ties at the boundary) gives False.
+    """
+    if len(y) > SEPARATION_LP_ROWS:
+        return bool(np.all(np.abs(fitted - y) < 1e-6))
+    from scipy.optimize import linprog
+
+    sign = np.where(y > 0.5, 1.0, -1.0)
+    A = -(X * sign[:, None])
+    try:
+        res = linprog(np.zeros(X.shape[1]), A_ub=A, b_ub=-np.ones(len(y)), bounds=[(None, None)] * X.shape[1],
+                      method="highs")
+    except ValueError:
+        return False
+    return res.status == 0
 
 
 #: A column is fitted centred and scaled when its spread or its distance from zero is beyond these.
@@ -538,7 +629,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
             cov = np.linalg.pinv(h)
     if scaling is not None:
         params, cov = from_working(params, cov, *scaling)
-    complete_sep = any("separation" in str(w.message).lower() for w in caught)
+    warned_sep = any("separation" in str(w.message).lower() for w in caught)
     bad_cov = not np.all(np.isfinite(cov)) or np.any(np.diag(cov) < 0)
     if bad_cov:
         cov = np.where(np.isfinite(cov), cov, np.nan)
@@ -548,6 +639,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
     fitted = expit(X @ params)
     empty, diverging = _separation_suspects(design, X, y, params, [names[j] for j in kept], converged, fitted)
     suspects = list(dict.fromkeys(empty + diverging))
+    complete_sep = (warned_sep or bool(suspects)) and separates_completely(X, y, fitted)
     if complete_sep or suspects:
         kind = "completely" if complete_sep else "almost completely"
         who = ", ".join(f"'{c}'" for c in suspects) if suspects else "the predictors together"

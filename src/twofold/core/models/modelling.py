@@ -129,6 +129,114 @@ def conditional_odds_ratios(fit: LogisticFit, focus: str, other: str, at=None) -
     return rows
 
 
+#: Where a curve's odds ratios are stated: these percentiles of the predictor, each against its median.
+CURVE_PERCENTILES = (10, 25, 75, 90)
+
+_QUARTILE_WORDS = ("lower quartile", "median", "upper quartile")
+
+
+def _ordinal(k: int) -> str:
+    return f"{k}{'th' if 10 <= k % 100 <= 20 else {1: 'st', 2: 'nd', 3: 'rd'}.get(k % 10, 'th')}"
+
+
+def _number(v: float) -> str:
+    return f"{v:.4g}"
+
+
+def _curve_contrast(fit: LogisticFit, column: str, values, reference: float):
+    """(log odds ratios, standard errors) of ``values`` against ``reference`` along a predictor's own columns.
+
+    log OR(x) = (b(x) - b(ref))' beta over the predictor's columns (the spline
+    basis, or the value itself for a straight line); its variance d' V d.
+    """
+    from twofold.core.models.terms import rcs_basis
+
+    blocks = dict(zip(fit.design.predictors, fit.design.blocks))
+    block = blocks[column]
+
+    def basis(v):
+        v = np.atleast_1d(np.asarray(v, dtype=float))
+        return rcs_basis(v, block.knots) if block.kind == "spline" else v.reshape(-1, 1)
+
+    idx = [fit.names.index(n) for n in block.names if n in fit.names]
+    diff = basis(values)[:, : len(idx)] - basis(reference)[:, : len(idx)]
+    log_or = diff @ fit.params[idx]
+    cov = fit.cov[np.ix_(idx, idx)]
+    se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", diff, cov, diff), 0, None))
+    return log_or, se
+
+
+def stated_effects(fit: LogisticFit) -> list[dict]:
+    """Odds ratios a reader can take at face value where one coefficient alone would mislead.
+
+    * A predictor in an interaction: its odds ratio at stated values of the
+      other predictor (the lower quartile, median and upper quartile of a
+      number on the rows used; every group of a factor), from
+      :func:`conditional_odds_ratios`.
+    * A curve (spline): odds ratios of the 10th, 25th, 75th and 90th
+      percentiles against the median, exp((b(x) - b(median))' beta), with
+      95% Wald intervals.  A curve that is also in an interaction is stated
+      where the other predictor is zero or at its reference group, and says so.
+
+    Each record: ``column``, ``label`` (what is compared, where), ``odds_ratio``,
+    ``or_ci_low``, ``or_ci_high``.  Nothing is stated for a fit that did not
+    settle (its estimates are not the model's).
+    """
+    from twofold.core.models.terms import split_interaction, value_text
+
+    if fit.odds_ratios_withheld:
+        return []
+    blocks = dict(zip(fit.design.predictors, fit.design.blocks))
+    slices = dict(zip(fit.design.predictors, fit.design.slices))
+    out = []
+    with np.errstate(over="ignore"):
+        for name in fit.design.predictors:
+            pair = split_interaction(name)
+            if pair is None:
+                continue
+            for focus, other in (pair, pair[::-1]):
+                if blocks[focus].kind == "spline":
+                    continue  # stated along its curve below
+                ob = blocks[other]
+                words = None
+                if ob.kind != "factor":
+                    words = list(_QUARTILE_WORDS)
+                for row in conditional_odds_ratios(fit, focus, other):
+                    if blocks[focus].kind == "factor":
+                        what = f"{focus}: {value_text(row['level'])} vs {value_text(blocks[focus].reference)}"
+                    else:
+                        what = f"{focus} (per 1 unit)"
+                    if ob.kind == "factor":
+                        where = f"where {other} is {value_text(row['at'])}"
+                    else:
+                        where = f"where {other} is {_number(row['at'])} ({words.pop(0)})" if words else \
+                            f"where {other} is {_number(row['at'])}"
+                    out.append({"column": focus, "label": f"{what}, {where}", "odds_ratio": row["odds_ratio"],
+                                "or_ci_low": row["or_ci_low"], "or_ci_high": row["or_ci_high"]})
+        for name, block in blocks.items():
+            if block.kind != "spline":
+                continue
+            x = fit.design.X[:, slices[name].start]
+            at = np.percentile(x, CURVE_PERCENTILES)
+            median = float(np.median(x))
+            log_or, se = _curve_contrast(fit, name, at, median)
+            others = [b if a == name else a for a, b in
+                      (split_interaction(p) for p in fit.design.predictors if split_interaction(p))
+                      if name in (a, b)]
+            where = ""
+            if others:
+                where = "; " + ", ".join(
+                    f"where {o} is {value_text(blocks[o].reference)}" if blocks[o].kind == "factor"
+                    else f"where {o} is 0" for o in others)
+            for pct, v, lo_, s_ in zip(CURVE_PERCENTILES, at, log_or, se):
+                out.append({"column": name,
+                            "label": f"{name} {_number(v)} ({_ordinal(pct)} percentile) vs {_number(median)} "
+                                     f"(median){where}",
+                            "odds_ratio": float(np.exp(lo_)), "or_ci_low": float(np.exp(lo_ - Z95 * s_)),
+                            "or_ci_high": float(np.exp(lo_ + Z95 * s_))})
+    return out
+
+
 def effect_curve(fit: LogisticFit, column: str, reference: float | None = None, points: int = 101) -> dict:
     """Odds ratio against a reference value across a predictor's range, with a 95% band.
 
@@ -136,27 +244,14 @@ def effect_curve(fit: LogisticFit, column: str, reference: float | None = None, 
     straight line); band exp(log OR -/+ 1.96 se) with se from the covariance.
     Default reference: the median on the rows used.
     """
-    from twofold.core.models.terms import rcs_basis
-
     blocks = dict(zip(fit.design.predictors, fit.design.blocks))
     slices = dict(zip(fit.design.predictors, fit.design.slices))
     if column not in blocks or blocks[column].kind not in ("numeric", "spline"):
         raise ModelError(f"An effect curve needs a numeric predictor of the model; '{column}' is not one.")
-    block, sl = blocks[column], slices[column]
-    x = fit.design.X[:, sl.start]
+    x = fit.design.X[:, slices[column].start]
     grid = np.linspace(np.quantile(x, 0.01), np.quantile(x, 0.99), points)
     ref = float(np.median(x)) if reference is None else float(reference)
-
-    def basis(v):
-        v = np.atleast_1d(np.asarray(v, dtype=float))
-        return rcs_basis(v, block.knots) if block.kind == "spline" else v.reshape(-1, 1)
-
-    idx = [fit.names.index(n) for n in block.names if n in fit.names]
-    diff = basis(grid)[:, : len(idx)] - basis(ref)[:, : len(idx)]
-    beta = fit.params[idx]
-    cov = fit.cov[np.ix_(idx, idx)]
-    log_or = diff @ beta
-    se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", diff, cov, diff), 0, None))
+    log_or, se = _curve_contrast(fit, column, grid, ref)
     return {"column": column, "reference": ref, "x": grid, "odds_ratio": np.exp(log_or),
             "low": np.exp(log_or - Z95 * se), "high": np.exp(log_or + Z95 * se)}
 

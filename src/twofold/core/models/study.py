@@ -355,16 +355,31 @@ class DropOneTest:
     prefer_lr: bool
     available: bool = True
     note: str | None = None
+    includes: tuple = ()
+
+    @property
+    def label(self) -> str:
+        """"age", or "age, with its interaction with sex" when dropped together with its interactions."""
+        from twofold.core.models.terms import total_label
+
+        return total_label(self.column, self.includes)
 
     def as_dict(self) -> dict:
-        return {k: getattr(self, k) for k in ("column", "g", "df", "p_value", "wald", "wald_p_value", "prefer_lr",
-                                              "available")}
+        out = {k: getattr(self, k) for k in ("column", "g", "df", "p_value", "wald", "wald_p_value", "prefer_lr",
+                                             "available")}
+        out["includes"] = list(self.includes)
+        out["label"] = self.label
+        return out
 
 
 def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
     """For every predictor of ``fit``, refit without it on the same rows and test the loss.
 
     G = 2 (lnL_full - lnL_without) on the predictor's number of coefficients.
+    A predictor that is part of an interaction is dropped together with every
+    interaction that contains it (its total effect), so its G does not change
+    when the other predictor's origin moves; each interaction is also tested
+    on its own.
     Maximum-likelihood refits go through :func:`~twofold.core.models.fit.drop_refits`
     (warm-started chord Newton, full Newton where needed, two threads);
     penalised fits use their penalised likelihood-ratio test.  A refit that
@@ -373,26 +388,29 @@ def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
     """
     from twofold.core.errors import TwofoldError
     from twofold.core.models.fit import chi2_sf, drop_refits, log_likelihood
+    from twofold.core.models.terms import total_effects
 
+    within = total_effects(fit.design.predictors)
     columns = [c for c in fit.design.predictors if len(fit.term_index[c])]
+    index = {c: fit.total_index[c] for c in columns}
     losses = []  # (g, df, note or None, available)
     if hasattr(fit, "lr_test_of"):
         for column in columns:
             try:
-                t = fit.lr_test_of([column])
+                t = fit.lr_test_of([column, *within.get(column, ())])
                 g = float(t.g)
             except (TwofoldError, np.linalg.LinAlgError, ValueError):
                 g = float("nan")
             if np.isfinite(g):
-                losses.append((g, int(len(fit.term_index[column])), None, True))
+                losses.append((g, int(len(index[column])), None, True))
             else:
-                losses.append((float("nan"), int(len(fit.term_index[column])),
+                losses.append((float("nan"), int(len(index[column])),
                                _unavailable_note(column), False))
     else:
-        refits = drop_refits(fit, [fit.term_index[c] for c in columns])
+        refits = drop_refits(fit, [index[c] for c in columns])
         full = log_likelihood(fit.design.y, fit.linear_predictor) if refits else float("nan")
         for column, r in zip(columns, refits):
-            df = int(len(fit.term_index[column]))
+            df = int(len(index[column]))
             if r.method == "failed" or not np.isfinite(full):
                 losses.append((float("nan"), df, _unavailable_note(column), False))
                 continue
@@ -403,14 +421,14 @@ def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:
             losses.append((max(2.0 * (full - r.llf), 0.0), df, note, True))
     out = []
     for column, (g, df, note, available) in zip(columns, losses):
-        idx = fit.term_index[column]
-        wald = float(fit.z[idx[0]] ** 2) if len(idx) == 1 else fit.term_tests[column].statistic
+        idx = index[column]
+        wald = float(fit.z[idx[0]] ** 2) if len(idx) == 1 else fit.joint_wald(idx)
         wald_p = chi2_sf(wald, len(idx)) if np.isfinite(wald) else float("nan")
         p = chi2_sf(g, df) if available else float("nan")
         disagree = available and (p < 0.05) != (wald_p < 0.05)
         much_lower = available and g > 3.841 and wald < 0.5 * g
         out.append(DropOneTest(column, float(g), int(df), p, wald, wald_p, bool(disagree or much_lower),
-                               available, note))
+                               available, note, within.get(column, ())))
     return out
 
 

@@ -108,3 +108,112 @@ def interaction_block(a: TermBlock, b: TermBlock) -> TermBlock:
     values = np.asfortranarray(np.column_stack(cols))
     kind = "interaction"
     return TermBlock(f"{a.column}:{b.column}", kind, tuple(levels), (a, b), values, a.missing | b.missing)
+
+
+# ---------------------------------------------------------------------------
+# which coefficients make up a predictor's effect, and how each is worded
+# ---------------------------------------------------------------------------
+
+#: The multiplication sign joining the two predictors of an interaction ("age \u00d7 sex").
+TIMES = "\u00d7"
+
+
+def value_text(v) -> str:
+    """A level or outcome value as text: 1.0 -> '1', numpy scalars as Python."""
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v)
+
+
+def interactions_with(predictors, column: str) -> tuple[str, ...]:
+    """The interaction terms among ``predictors`` that contain ``column`` ("age:sex" for "age")."""
+    out = []
+    for name in predictors:
+        pair = split_interaction(name)
+        if pair is not None and column in pair:
+            out.append(name)
+    return tuple(out)
+
+
+def total_effects(predictors) -> dict[str, tuple[str, ...]]:
+    """For each plain predictor that is part of an interaction: the interactions that contain it.
+
+    A predictor's total effect is its main effect together with every term
+    that contains it; testing the main effect alone would test its effect
+    where the other predictor is zero (or at its reference level), which
+    changes when that predictor's origin moves.
+    """
+    predictors = tuple(predictors)
+    out = {}
+    for name in predictors:
+        if split_interaction(name) is not None:
+            continue
+        within = interactions_with(predictors, name)
+        if within:
+            out[name] = within
+    return out
+
+
+def total_label(column: str, interactions=()) -> str:
+    """"age", or "age, with its interaction with sex" when tested together with its interactions."""
+    if not interactions:
+        return term_title(column)
+    others = []
+    for name in interactions:
+        a, b = split_interaction(name)
+        others.append(b if a == column else a)
+    if len(others) == 1:
+        return f"{column}, with its interaction with {others[0]}"
+    return f"{column}, with its interactions with {', '.join(others[:-1])} and {others[-1]}"
+
+
+def term_title(name: str) -> str:
+    """A predictor's name as a reader should see it: "age \u00d7 sex" for the interaction "age:sex"."""
+    pair = split_interaction(name)
+    return name if pair is None else f"{pair[0]} {TIMES} {pair[1]}"
+
+
+def _part_text(block: TermBlock, level) -> str:
+    return f"{value_text(level)} vs {value_text(block.reference)}"
+
+
+def _interaction_label(block: TermBlock, level) -> str:
+    a, b = block.reference
+    name = f"{a.column} {TIMES} {b.column}"
+    if level is None:
+        return f"{name} (per 1 unit of each)"
+    if a.kind == "factor" and b.kind == "factor":
+        la = next((v for v in a.levels if str(level).startswith(f"{v}:")), str(level).split(":")[0])
+        lb = str(level)[len(str(la)) + 1:]
+        lb = next((v for v in b.levels if str(v) == lb), lb)
+        return f"{name}: {_part_text(a, la)}, {_part_text(b, lb)}"
+    return f"{name}: {_part_text(a if a.kind == 'factor' else b, level)} (per 1 unit)"
+
+
+def coefficient_label(block: TermBlock | None, level, column: str | None = None) -> str:
+    """One coefficient in plain words.
+
+    "age (per 1 unit)", "ward: B vs A", "age: curve, slope below the first
+    knot", "age: curve term 1", "los \u00d7 sex: M vs F (per 1 unit)".
+    """
+    if block is None:
+        return "baseline odds (intercept)" if column is None else str(column)
+    if block.kind == "spline":
+        if level is None:
+            return f"{block.column}: curve, slope below the first knot"
+        number = str(level).removeprefix("nonlinear ").strip()
+        return f"{block.column}: curve term {number}"
+    if block.kind == "interaction":
+        return _interaction_label(block, level)
+    if level is None:
+        return f"{block.column} (per 1 unit)"
+    return f"{block.column}: {_part_text(block, level)}"
+
+
+def coefficient_part(block: TermBlock | None) -> str:
+    """What kind of coefficient a block gives: "number", "group", "curve" or "interaction"."""
+    if block is None:
+        return "intercept"
+    return {"numeric": "number", "factor": "group", "spline": "curve", "interaction": "interaction"}[block.kind]

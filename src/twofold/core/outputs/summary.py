@@ -59,6 +59,8 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
     interval) adds ``or_pl_low``/``or_pl_high`` to each term; ``assessment``
     (an :class:`~twofold.core.assessing.assessment.Assessment`) adds ``assessment``.
     """
+    from twofold.core.models.modelling import stated_effects
+
     rows = fit.coefficient_rows
     intercept = rows[0]
     account = getattr(fit, "account", None)
@@ -68,10 +70,12 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
             "column": r["column"],
             "level": plain_value(r["level"]) if r["level"] is not None else None,
             "reference": plain_value(r["reference"]) if r["reference"] is not None else None,
+            "label": r["label"], "part": r["part"],
             **{k: clean_number(r[k]) for k in ("estimate", "std_error", "z", "p_value",
                                                 "odds_ratio", "or_ci_low", "or_ci_high")},
+            "withheld": r["withheld"],
         })
-        if profile is not None and r["name"] in profile:
+        if profile is not None and r["name"] in profile and not r["withheld"]:
             lo, hi = profile[r["name"]]
             terms[-1]["or_pl_low"], terms[-1]["or_pl_high"] = clean_number(lo), clean_number(hi)
     record = {
@@ -93,8 +97,8 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
         "intercept": {k: clean_number(intercept[k]) for k in ("estimate", "std_error", "z", "p_value")},
         "terms": terms,
         "term_tests": [
-            {"column": t.column, "statistic": clean_number(t.statistic), "df": t.df,
-             "p_value": clean_number(t.p_value)}
+            {"column": t.column, "label": t.label, "includes": list(t.includes),
+             "statistic": clean_number(t.statistic), "df": t.df, "p_value": clean_number(t.p_value)}
             for t in fit.term_tests.values()
         ],
         "log_likelihood": clean_number(fit.llf),
@@ -109,6 +113,11 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
             **_test(nested), "smaller_predictors": list(smaller or []),
             "added": list(nested.added), "rows": nested.n_rows,
         },
+        "effects_at_values": [
+            {**{k: e[k] for k in ("column", "label")},
+             **{k: clean_number(e[k]) for k in ("odds_ratio", "or_ci_low", "or_ci_high")}}
+            for e in stated_effects(fit)
+        ],
         "warnings": [n.as_dict() for n in fit.notices],
         "caution": CAUTION,
     }

@@ -75,9 +75,36 @@ def reading_nested(p, added) -> str:
 
 
 def _term_label(t: dict) -> str:
+    if t.get("label"):
+        return t["label"]
     if t["level"] is None:
         return f"{t['column']} (per 1 unit)"
     return f"{t['column']}: {t['level']} vs {t['reference']}"
+
+
+#: What stands in the odds-ratio cells of a coefficient whose odds ratio is not shown (by ``withheld``).
+WITHHELD_CELLS = {
+    "curve": ("see curve", "odds ratios between stated values below"),
+    "not settled": ("not shown", "the fit did not settle"),
+}
+
+
+def or_cells(t: dict) -> tuple[str, str]:
+    """(odds ratio, 95% interval) as printed for one coefficient record."""
+    if t.get("withheld") in WITHHELD_CELLS:
+        return WITHHELD_CELLS[t["withheld"]]
+    return fmt_or(t["odds_ratio"]), f"{fmt_or(t['or_ci_low'])} to {fmt_or(t['or_ci_high'])}"
+
+
+def stated_line(e: dict) -> str:
+    """"sex: M vs F, where age is 63 (median): odds ratio 1.23 (95% interval 1.01 to 1.50)"."""
+    return (f"{e['label']}: odds ratio {fmt_or(e['odds_ratio'])} (95% interval {fmt_or(e['or_ci_low'])} to "
+            f"{fmt_or(e['or_ci_high'])})")
+
+
+def stated_lines(record: dict) -> list[str]:
+    """One line per odds ratio at stated values (predictors in interactions, curves)."""
+    return [stated_line(e) for e in record.get("effects_at_values", [])]
 
 
 def describe(record: dict, source: str = "") -> str:
@@ -123,11 +150,11 @@ def describe(record: dict, source: str = "") -> str:
         line = None
         if col in joint and col not in shown_joint:
             j = joint[col]
-            line = (f"  {col} as a whole: joint Wald chi-square {fmt_num(j['statistic'], 2)} on {j['df']} degrees "
-                    f"of freedom, p-value {fmt_p(j['p_value'])}")
+            line = (f"  {j.get('label', col)}, all its coefficients together: Wald chi-square "
+                    f"{fmt_num(j['statistic'], 2)} on {j['df']} degrees of freedom, p-value {fmt_p(j['p_value'])}")
             shown_joint.add(col)
-        ci = f"{fmt_or(t['or_ci_low'])} to {fmt_or(t['or_ci_high'])}"
-        rows.append((line, (label, fmt_or(t["odds_ratio"]), ci, fmt_p(t["p_value"]), fmt_num(t["z"], 2),
+        odds, ci = or_cells(t)
+        rows.append((line, (label, odds, ci, fmt_p(t["p_value"]), fmt_num(t["z"], 2),
                             fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4))))
     i = record["intercept"]
     rows.append((None, (labels[-1], "", "", fmt_p(i["p_value"]), fmt_num(i["z"], 2), fmt_num(i["estimate"], 4),
@@ -148,6 +175,13 @@ def describe(record: dict, source: str = "") -> str:
         add(row_text(cells))
     if record["dropped_columns"]:
         add("  Left out as constant or duplicated: " + ", ".join(record["dropped_columns"]) + ".")
+    stated = stated_lines(record)
+    if stated:
+        add("")
+        add("Odds ratios at stated values (where one coefficient alone would mislead: a predictor in an "
+            "interaction, or a curve)")
+        for line in stated:
+            add("  " + line)
     nested = record["nested"]
     if nested is not None:
         add("")
@@ -196,11 +230,11 @@ def describe_assessment(a: dict, record: dict) -> list[str]:
     if a["drop_one"]:
         add("")
         add("  Each predictor by the likelihood-ratio test (refitted without it) beside its Wald test")
-        width = max(len(t["column"]) for t in a["drop_one"]) + 2
+        width = max(len(t.get("label", t["column"])) for t in a["drop_one"]) + 2
         add(f"    {'predictor':<{width}}{'G':>9}  {'df':>3}  {'p-value':>11}  {'Wald chi-square':>15}  {'p-value':>11}")
         for t in a["drop_one"]:
             flag = "  <- prefer the likelihood-ratio test" if t["prefer_lr"] else ""
-            add(f"    {t['column']:<{width}}{fmt_num(t['g'], 2):>9}  {t['df']:>3}  {fmt_p(t['p_value']):>11}  "
+            add(f"    {t.get('label', t['column']):<{width}}{fmt_num(t['g'], 2):>9}  {t['df']:>3}  {fmt_p(t['p_value']):>11}  "
                 f"{fmt_num(t['wald'], 2):>15}  {fmt_p(t['wald_p_value']):>11}{flag}")
         if any(t["prefer_lr"] for t in a["drop_one"]):
             add("    Where marked, the two tests disagree or the estimate is so large that the Wald test loses "
