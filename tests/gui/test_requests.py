@@ -119,7 +119,7 @@ def test_a_tick_with_no_usable_rows_is_undone_with_the_core_message(qtbot, windo
     # The worker carries on: the next tick is fitted.
     view = tick(qtbot, window, ["age"])
     assert view.predictors == ("age",)
-    assert not window.message.isVisible()
+    assert not window.message.isVisible(), window.message.text()
 
 
 def test_an_unexpected_error_is_logged_and_shown_not_a_crash(qtbot, readmission, home, monkeypatch):

@@ -301,8 +301,9 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
     validation = None
     if spec.validate:
         validation = bootstrap_validation(fit, spec.validate, seed=spec.seed)
-        record["validation"] = {k: (clean_number(v) if isinstance(v, float) else v)
-                                for k, v in validation.as_dict().items()}
+        from twofold.core.outputs.summary import validation_record
+
+        record["validation"] = validation_record(validation, fit)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
     return result

@@ -610,8 +610,9 @@ class Workspace:
                 {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
                 for t in crossings]
         if v is not None:
-            record["validation"] = {k: (clean_number(x) if isinstance(x, float) else x)
-                                    for k, x in v.result.as_dict().items()}
+            from twofold.core.outputs.summary import validation_record
+
+            record["validation"] = validation_record(v.result, fit)
         result = AnalysisResult(spec, study, fit, None, None, assessment, record)
         result.validation = None if v is None else v.result
         return result

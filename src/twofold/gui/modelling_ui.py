@@ -28,6 +28,14 @@ INTERACTION_NOTE = ("Once two predictors interact, the odds ratio of one depends
 
 
 # ---- worker-side jobs (run on the core worker thread with the workspace; no Qt here) --------
+def sample_size_words(validation, fit) -> str:
+    """The sample-size check redone with the validation's corrected R-squared, as the core words it."""
+    from twofold.core.outputs.summary import validation_record
+    from twofold.core.outputs.text import corrected_sample_size_text
+
+    return corrected_sample_size_text(validation_record(validation, fit), fit.n_used)
+
+
 def spline_job(column: str, knots: int | None):
     """A job for :meth:`Session.run_modelling`: set the shape of ``column`` (the workspace refits)."""
 
@@ -230,8 +238,9 @@ class ModelShapeDialog(QDialog):
         grid = QFormLayout(box)
         self.boot_labels = {}
         for key, text in (("auc", "Area under the ROC curve"), ("slope", "Calibration slope"),
-                          ("brier", "Brier score")):
+                          ("brier", "Brier score"), ("sample", "Sample size needed")):
             lab = QLabel("not run yet")
+            lab.setWordWrap(True)
             lab.setAccessibleName(text)
             self.boot_labels[key] = lab
             grid.addRow(text, lab)
@@ -430,6 +439,7 @@ class ModelShapeDialog(QDialog):
         self.boot_labels["brier"].setText(
             f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the data it was built "
             f"from; optimism {fmt_num(v.brier_optimism)})")
+        self.boot_labels["sample"].setText(sample_size_words(v, fit))
         extra = f"; {v.failed} resamples could not be fitted" if v.failed else ""
         self._boot_idle(f"Bootstrap done: {v.completed} of {v.repetitions} resamples used{extra}.")
         self.boot_bar.setRange(0, 1)

@@ -12,7 +12,10 @@ import math
 
 from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.models.terms import TIMES, value_text
-from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, or_cells, stated_line, reading_nested, reading_overall
+from twofold.core.outputs.text import (
+    curve_reading, fmt_num, fmt_or, fmt_p, interaction_reading, or_cells, stated_line, reading_nested,
+    reading_overall,
+)
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
     OutcomeView, ProfileView, ResultsView, StudyView, TestView,
@@ -303,15 +306,13 @@ def shape_tests(ws, fit) -> tuple:
     for t in curves:
         text = (f"{_lr_name(fit)} test of the curve ({len(t.knots)} knots) against a straight line, on the same "
                 f"rows: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
-        reading = (f"The effect of {t.term} bends more than chance alone would easily explain."
-                   if t.p_value < 0.05 else f"A straight line for {t.term} may serve as well as the curve.")
+        reading = curve_reading(t.term, t.p_value)
         out.append(TestView(f"Is the effect of {t.term} curved?", text, reading, t.g, t.df, t.p_value))
     for t in crossings:
         a, b = interaction_parts(study, t.term) or (t.term, "")
         text = (f"{_lr_name(fit)} test of the model with {a} {TIMES} {b} against the model without it: "
                 f"G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
-        reading = (f"The effect of {a} differs with {b} more than chance alone would easily explain."
-                   if t.p_value < 0.05 else f"The data do not clearly show the effect of {a} differing with {b}.")
+        reading = interaction_reading(a, b, t.p_value)
         out.append(TestView(f"Does the effect of {a} differ with {b}?", text, reading, t.g, t.df, t.p_value))
     return tuple(out)
 
@@ -477,7 +478,7 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
               f"Nagelkerke {fmt_num(r.nagelkerke, 3)}, Tjur {fmt_num(r.tjur, 3)} (each on its own scale; "
               "none is the share of variation explained).")
     drop = tuple(
-        (t.column, f"G = {fmt_num(t.g, 2)} on {_degrees(int(t.df))}, p-value {fmt_p(t.p_value)}",
+        (t.label, f"G = {fmt_num(t.g, 2)} on {_degrees(int(t.df))}, p-value {fmt_p(t.p_value)}",
          f"Wald chi-square {fmt_num(t.wald, 2)}, p-value {fmt_p(t.wald_p_value)}", bool(t.prefer_lr))
         for t in result.drop_one)
     vif = ()
@@ -494,8 +495,9 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
         short = fit.n_used < s.n_minimum
         values.update(n_minimum=int(s.n_minimum))
         sample = (f"Minimum sample size for {s.parameters} coefficient{'s' if s.parameters != 1 else ''} "
-                  f"(Riley et al. 2020): {s.n_minimum:,} rows, about {fmt_num(s.expected_events, 0)} with the "
-                  f"event; rows used: {fit.n_used:,}"
+                  f"(Riley et al. 2020, with this model's apparent Cox-Snell R-squared of {fmt_num(s.r2_cs, 3)}): "
+                  f"{s.n_minimum:,} rows, about {fmt_num(s.expected_events, 0)} with the event; rows used: "
+                  f"{fit.n_used:,}"
                   + (" — fewer than needed, so expect the model to be over-fitted." if short else
                      " — enough."))
     influential = tuple((d["row"], fmt_num(d["cooks_distance"], 4), fmt_num(d["leverage"], 4))
@@ -522,7 +524,7 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
         auc_text=auc_text, auc_reading=auc_reading,
         brier_text=brier_text, calibration_text=calibration_text,
         calibration_note=result.calibration_note,
-        hl_text=hl_text, hl_note=HOSMER_LEMESHOW_NOTE, pseudo_r2_text=pseudo, drop_one=drop, vif=vif,
+        hl_text=hl_text, hl_note=HOSMER_LEMESHOW_NOTE if hl is None else hl.note, pseudo_r2_text=pseudo, drop_one=drop, vif=vif,
         vif_note=vif_note, sample_size_text=sample, sample_size_short=short, influential=influential,
         classification_text=classification, threshold=threshold, threshold_note=THRESHOLD_NOTE,
         calibration_plot_note=SMOOTH_UNRELIABLE_NOTE if unreliable else "",

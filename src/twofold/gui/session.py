@@ -171,19 +171,21 @@ class Session(QObject):
     def set_predictors(self, predictors) -> int:
         """Fit these predictors as a new rung of the ladder (every tick is its own step); returns the id."""
         predictors = tuple(predictors)
-
-        asked = {}
+        # The id _submit is about to give (ids are handed out on this thread only): the job may start on the
+        # worker before _submit returns, so it must not wait to be told its own id.
+        mine = self._next_id + 1
 
         def job():
             self.workspace.set_predictors(predictors)
-            if self._floor["results"] > asked["id"]:
+            if self._floor["results"] > mine:
                 # A newer tick is already waiting: this step joins the ladder, but its display would never
                 # be shown, so it is not built (a burst of ticks then waits only for the fits).
                 return self._views(())
             return self._views(("results",))
 
-        asked["id"] = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
-        return asked["id"]
+        job_id = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
+        assert job_id == mine
+        return job_id
 
     def set_role(self, column: str, role: str, predictors=()) -> int:
         """Change a column's role and refit the ladder (or restart it if the column leaves); returns the id."""

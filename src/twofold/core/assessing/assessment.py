@@ -38,11 +38,7 @@ UNSETTLED_CALIBRATION_NOTE = (
     " Here the fit did not settle (see the warnings), so they can stray from 1 and 0."
 )
 
-#: Written beside the Hosmer-Lemeshow test.
-HOSMER_LEMESHOW_NOTE = (
-    "The Hosmer-Lemeshow test depends on how records are grouped, has little power in small samples and "
-    "flags trivial misfit in large ones; read it beside the calibration plot, not alone."
-)
+from twofold.core.assessing.calibration import HOSMER_LEMESHOW_NOTE  # noqa: F401  (read by the displays)
 
 #: Written beside the classification table.
 THRESHOLD_NOTE = (
@@ -111,7 +107,8 @@ class Assessment:
             "calibration_note": self.calibration_note,
             "hosmer_lemeshow": None if hl is None else {
                 "statistic": num(hl.statistic), "df": int(hl.df), "p_value": num(hl.p_value),
-                "groups": int(hl.groups_used), "note": HOSMER_LEMESHOW_NOTE,
+                "groups": int(hl.groups_used), "note": hl.note,
+                "small_expected_groups": hl.small_expected_groups,
             },
             "mcfadden_r2": num(self.pseudo_r2.mcfadden),
             "cox_snell_r2": num(self.pseudo_r2.cox_snell),

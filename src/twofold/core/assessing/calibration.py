@@ -102,6 +102,13 @@ class CalibrationFit:
         return out
 
 
+#: Written beside the Hosmer-Lemeshow test.
+HOSMER_LEMESHOW_NOTE = (
+    "The Hosmer-Lemeshow test depends on how records are grouped, has little power in small samples and "
+    "flags trivial misfit in large ones; read it beside the calibration plot, not alone."
+)
+
+
 @dataclass(frozen=True, eq=False)
 class HosmerLemeshowResult:
     """Hosmer-Lemeshow statistic with its per-group table (arrays read-only)."""
@@ -115,6 +122,28 @@ class HosmerLemeshowResult:
     observed_events: np.ndarray
     expected_events: np.ndarray
     mean_predicted: np.ndarray
+
+    @property
+    def small_expected_groups(self) -> int:
+        """Groups in which fewer than 5 events or fewer than 5 non-events are expected.
+
+        The chi-square approximation needs expected counts of about 5 or
+        more in every cell (a rule of common practice; Hosmer, Lemeshow &
+        Sturdivant, Applied Logistic Regression, 3rd ed. 2013, sec. 5.2.2).
+        """
+        expected_non = self.n - self.expected_events
+        return int(np.sum((self.expected_events < 5) | (expected_non < 5)))
+
+    @property
+    def note(self) -> str:
+        """How far to trust the test here, in one or two sentences."""
+        k = self.small_expected_groups
+        if not k:
+            return HOSMER_LEMESHOW_NOTE
+        return (f"In {k} of its {self.groups_used} risk groups fewer than 5 events or non-events are expected, "
+                "so its chi-square p-value is unreliable for these data (expected counts of 5 or more is "
+                "common practice); judge calibration from the calibration plot and slope instead. "
+                + HOSMER_LEMESHOW_NOTE)
 
     def as_dict(self) -> dict:
         return {

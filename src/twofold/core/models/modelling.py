@@ -256,6 +256,10 @@ def effect_curve(fit: LogisticFit, column: str, reference: float | None = None, 
             "low": np.exp(log_or - Z95 * se), "high": np.exp(log_or + Z95 * se)}
 
 
+#: How a bootstrap validation refits its resamples: the validated model's own method.
+REFIT_METHODS = ("maximum likelihood", "Firth penalised likelihood with corrected intercept (FLIC)")
+
+
 @dataclass(frozen=True)
 class Validation:
     """Bootstrap optimism correction: corrected = apparent - mean(boot apparent - boot on original)."""
@@ -270,6 +274,15 @@ class Validation:
     slope_optimism: float
     brier_apparent: float
     brier_optimism: float
+    #: How each resample was refitted: the validated model's own method.
+    method: str = REFIT_METHODS[0]
+    #: Cox-Snell R-squared of the model's own risks, and its optimism (NaN in validations saved before).
+    r2cs_apparent: float = float("nan")
+    r2cs_optimism: float = float("nan")
+
+    @property
+    def cox_snell_r2_corrected(self) -> float:
+        return self.r2cs_apparent - self.r2cs_optimism
 
     @property
     def auc_corrected(self) -> float:
@@ -290,7 +303,8 @@ class Validation:
             "auc_corrected": self.auc_corrected, "calibration_slope_apparent": self.slope_apparent,
             "calibration_slope_corrected": self.calibration_slope_corrected,
             "brier_apparent": self.brier_apparent, "brier_optimism": self.brier_optimism,
-            "brier_corrected": self.brier_corrected,
+            "brier_corrected": self.brier_corrected, "refit_method": self.method,
+            "cox_snell_r2_apparent": self.r2cs_apparent, "cox_snell_r2_corrected": self.cox_snell_r2_corrected,
         }
 
     @classmethod
@@ -305,7 +319,8 @@ class Validation:
         return cls(int(d.get("repetitions") or 0), int(d.get("completed") or 0), int(d.get("failed") or 0),
                    d.get("seed"), num("auc_apparent"), num("auc_optimism"), num("calibration_slope_apparent"),
                    num("calibration_slope_apparent") - num("calibration_slope_corrected"), num("brier_apparent"),
-                   num("brier_optimism"))
+                   num("brier_optimism"), str(d.get("refit_method") or REFIT_METHODS[0]),
+                   num("cox_snell_r2_apparent"), num("cox_snell_r2_apparent") - num("cox_snell_r2_corrected"))
 
 
 class ValidationCancelled(TwofoldError):
@@ -313,7 +328,11 @@ class ValidationCancelled(TwofoldError):
 
 
 def _performance(y, lp):
-    """AUC (Mann-Whitney by ranks), calibration slope and Brier score of a linear predictor."""
+    """AUC (Mann-Whitney by ranks), calibration slope, Brier score and Cox-Snell R-squared of a linear predictor.
+
+    The Cox-Snell R-squared of the risks as given (no recalibration):
+    1 - exp(-(2/n) (lnL(y; lp) - lnL0)), lnL0 that of the event rate.
+    """
     from scipy.special import expit
     from scipy.stats import rankdata
 
@@ -333,7 +352,11 @@ def _performance(y, lp):
         b += np.clip(step, -5, 5)
         if np.max(np.abs(step)) < 1e-10:
             break
-    return float(auc), float(b[1]), brier
+    from twofold.core.models.fit import log_likelihood, null_log_likelihood
+
+    n = len(y)
+    r2_cs = 1.0 - math.exp(-2.0 * (log_likelihood(y, lp) - null_log_likelihood(y)) / n)
+    return float(auc), float(b[1]), brier, float(r2_cs)
 
 
 def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | None = None,
@@ -341,9 +364,13 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
     """Harrell's bootstrap estimate of optimism for AUC, calibration slope and Brier score.
 
     In each of B resamples of the rows (with replacement) the whole model is
-    refitted by maximum likelihood (same predictors, encodings and spline
-    knots); its performance on the resample minus its performance on the
-    original rows estimates the optimism, averaged over the resamples.
+    refitted by the method of the model being validated (same predictors,
+    encodings and spline knots): maximum likelihood, or for a penalised fit
+    Firth's penalised likelihood with the intercept corrected (FLIC; Puhr et
+    al. 2017, Stat Med 36:2302), whose risks are the ones the model gives.
+    Its performance on the resample minus its performance on the original
+    rows estimates the optimism, averaged over the resamples.  The apparent
+    performance is that of the model's own risks (``fit.linear_predictor``).
 
     Parameters
     ----------
@@ -367,8 +394,20 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
     X = fit.design.X[:, fit.kept]
     y = fit.design.y
     n = len(y)
-    app = _performance(y, X @ fit.params)
+    app = _performance(y, fit.linear_predictor)
     seeds = np.random.SeedSequence(seed).spawn(repetitions)
+    penalised = getattr(fit, "penalized_llf", None) is not None
+
+    def refit(yb, Xb):
+        """Coefficients of the resample's model, by the validated model's own method."""
+        if penalised:
+            from twofold.core.models.firth import flic
+
+            return np.asarray(flic(Xb, yb).params, dtype=float)
+        res = Logit(yb, Xb, check_rank=False, hasconst=False).fit(
+            method="newton", start_params=fit.params, maxiter=35, disp=0, warn_convergence=False,
+            full_output=False, skip_hessian=True)
+        return np.asarray(res.params)
 
     def one(i):
         if cancelled is not None and cancelled():
@@ -383,12 +422,9 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
         with warnings.catch_warnings(), np.errstate(all="ignore"):
             warnings.simplefilter("ignore")
             try:
-                res = Logit(yb, Xb, check_rank=False, hasconst=False).fit(
-                    method="newton", start_params=fit.params, maxiter=35, disp=0, warn_convergence=False,
-                    full_output=False, skip_hessian=True)
-            except (np.linalg.LinAlgError, ValueError):
+                b = refit(yb, Xb)
+            except (np.linalg.LinAlgError, ValueError, TwofoldError):
                 return "failed"
-            b = np.asarray(res.params)
             if not np.all(np.isfinite(b)):
                 return "failed"
             try:
@@ -418,4 +454,5 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
                          "the data are too small or separated for this check.")
     opt = np.mean(np.array(ok), axis=0)
     return Validation(repetitions, len(ok), len(results) - len(ok), seed, app[0], float(opt[0]),
-                      app[1], float(opt[1]), app[2], float(opt[2]))
+                      app[1], float(opt[1]), app[2], float(opt[2]),
+                      REFIT_METHODS[1] if penalised else REFIT_METHODS[0], app[3], float(opt[3]))

@@ -46,6 +46,21 @@ class FirthFit(LogisticFit):
         t = firth_lr_test(self.X, self.design.y, list(range(1, k)), full=self.result)
         return LikelihoodRatioTest(float(t.statistic), int(t.df), float(t.p_value), n_rows=self.n_used)
 
+    #: Why a penalised fit has no AIC or BIC (said wherever they would be printed).
+    AIC_NOTE = ("AIC and BIC are not given for a penalised fit: they assume the ordinary maximum of the "
+                "likelihood, which Firth's estimates are not; compare penalised models by their penalised "
+                "likelihood-ratio tests.")
+
+    @property
+    def aic(self) -> float:
+        """Not given (NaN): see :attr:`AIC_NOTE`."""
+        return float("nan")
+
+    @property
+    def bic(self) -> float:
+        """Not given (NaN): see :attr:`AIC_NOTE`."""
+        return float("nan")
+
     @cached_property
     def fitted(self) -> np.ndarray:
         """Predicted risks with the intercept corrected (FLIC), so they average to the event rate."""

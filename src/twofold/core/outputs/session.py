@@ -583,7 +583,12 @@ def validate_session(session, path=None) -> dict:
             c.fail("'validation_result' has more entries than allowed")
         for k, x in v.items():
             c.name(k, "a key of 'validation_result'")
-            if x is not None:
+            if k == "refit_method":
+                from twofold.core.models.modelling import REFIT_METHODS
+
+                if x not in REFIT_METHODS:
+                    c.fail("'validation_result' names a way of refitting that Twofold does not use")
+            elif x is not None:
                 c.number(x, f"validation_result of {k[:40]}")
     if set(ladder[chosen]) != set(predictors):
         c.fail("the chosen model of the ladder does not have the session's predictors")

@@ -42,10 +42,10 @@ def plain_value(v):
     return v
 
 
-def _test(t: LikelihoodRatioTest | None):
+def _test(t: LikelihoodRatioTest | None, kind: str = "likelihood-ratio"):
     if t is None:
         return None
-    return {"g": clean_number(t.g), "df": int(t.df), "p_value": clean_number(t.p_value)}
+    return {"g": clean_number(t.g), "df": int(t.df), "p_value": clean_number(t.p_value), "kind": kind}
 
 
 def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTest | None = None,
@@ -63,6 +63,9 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
 
     rows = fit.coefficient_rows
     intercept = rows[0]
+    penalised = getattr(fit, "penalized_llf", None) is not None
+    # Under Firth's fit the whole-model and nested tests are penalised likelihood-ratio tests.
+    kind = "penalised likelihood-ratio" if penalised else "likelihood-ratio"
     account = getattr(fit, "account", None)
     terms = []
     for r in rows[1:]:
@@ -108,9 +111,9 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
         "aic": clean_number(fit.aic),
         "bic": clean_number(fit.bic),
         "mcfadden_r2": clean_number(fit.mcfadden_r2),
-        "overall": _test(fit.overall),
+        "overall": _test(fit.overall, kind),
         "nested": None if nested is None else {
-            **_test(nested), "smaller_predictors": list(smaller or []),
+            **_test(nested, kind), "smaller_predictors": list(smaller or []),
             "added": list(nested.added), "rows": nested.n_rows,
         },
         "effects_at_values": [
@@ -121,8 +124,35 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
         "warnings": [n.as_dict() for n in fit.notices],
         "caution": CAUTION,
     }
-    if getattr(fit, "penalized_llf", None) is not None:
+    if penalised:
         record["penalized_log_likelihood"] = clean_number(fit.penalized_llf)
+        record["aic_note"] = fit.AIC_NOTE
     if assessment is not None:
         record["assessment"] = assessment.as_record()
     return record
+
+
+def validation_record(validation, fit: LogisticFit) -> dict:
+    """A bootstrap validation as the JSON holds it, with the sample-size check redone on its corrected R-squared.
+
+    Riley et al. (2020, BMJ 368:m441) base the minimum sample size on an
+    anticipated Cox-Snell R-squared and recommend an optimism-adjusted value
+    over the apparent one; ``sample_size_corrected`` is the same calculation
+    with the bootstrap's optimism-corrected Cox-Snell R-squared (None when
+    that is not above zero, or when the validation predates it).
+    """
+    import math
+
+    from twofold.core.assessing.samplesize import riley_minimum_sample_size
+    from twofold.core.errors import TwofoldError
+
+    out = {k: (clean_number(x) if isinstance(x, float) else x) for k, x in validation.as_dict().items()}
+    r2 = validation.cox_snell_r2_corrected
+    out["sample_size_corrected"] = None
+    if math.isfinite(r2) and r2 > 0 and fit.n_params > 1:
+        try:
+            ss = riley_minimum_sample_size(fit.n_params - 1, fit.events / fit.n_used, r2)
+        except TwofoldError:
+            return out
+        out["sample_size_corrected"] = {"n_minimum": ss.n_minimum, "r2_cs": clean_number(r2)}
+    return out

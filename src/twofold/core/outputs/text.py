@@ -64,9 +64,16 @@ def reading_overall(p) -> str:
             "the data are compatible with no association.")
 
 
+def degrees(df) -> str:
+    """"1 degree of freedom", "3 degrees of freedom"."""
+    return f"{df} degree{'s' if df != 1 else ''} of freedom"
+
+
 def reading_nested(p, added) -> str:
     """A one-line plain reading of the nested likelihood-ratio test."""
-    what = ", ".join(added) if added else "the extra predictors"
+    from twofold.core.models.terms import term_title
+
+    what = ", ".join(term_title(a) for a in added) if added else "the extra predictors"
     if p is None:
         return "No test: the two models have the same number of coefficients."
     if p < 0.05:
@@ -84,7 +91,7 @@ def _term_label(t: dict) -> str:
 
 #: What stands in the odds-ratio cells of a coefficient whose odds ratio is not shown (by ``withheld``).
 WITHHELD_CELLS = {
-    "curve": ("see curve", "odds ratios between stated values below"),
+    "curve": ("see curve", "see below"),
     "not settled": ("not shown", "the fit did not settle"),
 }
 
@@ -131,13 +138,23 @@ def describe(record: dict, source: str = "") -> str:
     add("")
     overall = record["overall"]
     add("Does the model as a whole carry information?")
+    penalised = "penalized_log_likelihood" in record
+    test_name = "Penalised likelihood-ratio" if penalised else "Likelihood-ratio"
     if overall["df"] > 0:
-        add(f"  Likelihood-ratio (G) test against the constant-only model: G = {fmt_num(overall['g'], 2)} "
-            f"on {overall['df']} degrees of freedom, p-value {fmt_p(overall['p_value'])}.")
+        add(f"  {test_name} (G) test against the constant-only model: G = {fmt_num(overall['g'], 2)} "
+            f"on {degrees(overall['df'])}, p-value {fmt_p(overall['p_value'])}.")
     add("  " + reading_overall(overall["p_value"] if overall["df"] > 0 else None))
-    add(f"  Log-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only {fmt_num(record['null_log_likelihood'], 2)}); "
-        f"deviance {fmt_num(record['deviance'], 2)}; AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
-        f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
+    if penalised:
+        # Ordinary log-likelihoods beside a penalised G would let a reader work out a different G.
+        add(f"  Fitted by Firth's penalised likelihood: penalised log-likelihood "
+            f"{fmt_num(record['penalized_log_likelihood'], 2)}; the tests are penalised likelihood-ratio tests "
+            "and predicted risks use the corrected intercept (FLIC).")
+        add(f"  {record['aic_note']}")
+    else:
+        add(f"  Log-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only "
+            f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
+            f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
+            f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
     add("")
     add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)")
     labels = [_term_label(t) for t in record["terms"]] + ["baseline odds (intercept)"]
@@ -151,7 +168,7 @@ def describe(record: dict, source: str = "") -> str:
         if col in joint and col not in shown_joint:
             j = joint[col]
             line = (f"  {j.get('label', col)}, all its coefficients together: Wald chi-square "
-                    f"{fmt_num(j['statistic'], 2)} on {j['df']} degrees of freedom, p-value {fmt_p(j['p_value'])}")
+                    f"{fmt_num(j['statistic'], 2)} on {degrees(j['df'])}, p-value {fmt_p(j['p_value'])}")
             shown_joint.add(col)
         odds, ci = or_cells(t)
         rows.append((line, (label, odds, ci, fmt_p(t["p_value"]), fmt_num(t["z"], 2),
@@ -175,6 +192,11 @@ def describe(record: dict, source: str = "") -> str:
         add(row_text(cells))
     if record["dropped_columns"]:
         add("  Left out as constant or duplicated: " + ", ".join(record["dropped_columns"]) + ".")
+    if record["converged"]:
+        add(f"  The fit settled after {record['iterations']} iterations.")
+    else:
+        add(f"  The fit did not settle after {record['iterations']} iterations: its odds ratios are not shown "
+            "(see the warnings).")
     stated = stated_lines(record)
     if stated:
         add("")
@@ -187,11 +209,14 @@ def describe(record: dict, source: str = "") -> str:
         add("")
         smaller = ", ".join(nested["smaller_predictors"]) or "no predictors (constant only)"
         add(f"Smaller model ({smaller}) against this one, both on the same {nested['rows']:,} rows")
-        add(f"  Likelihood-ratio test: G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
+        add(f"  {test_name} test: G = {fmt_num(nested['g'], 2)} on {degrees(nested['df'])}, "
             f"p-value {fmt_p(nested['p_value'])}.")
         add("  " + reading_nested(nested["p_value"] if nested["df"] > 0 else None, nested["added"]))
+    out.extend(_profile_lines(record))
+    out.extend(_shape_lines(record, test_name))
     if record.get("assessment"):
         out.extend(describe_assessment(record["assessment"], record))
+    out.extend(_validation_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -216,8 +241,7 @@ def describe_assessment(a: dict, record: dict) -> list[str]:
     add(f"    {a['calibration_note']}")
     hl = a["hosmer_lemeshow"]
     if hl:
-        add(f"  Hosmer-Lemeshow test over {hl['groups']} risk groups: {fmt_num(hl['statistic'], 2)} on {hl['df']} "
-            f"degrees of freedom, p-value {fmt_p(hl['p_value'])}.")
+        add(f"  Hosmer-Lemeshow test over {hl['groups']} risk groups: {fmt_num(hl['statistic'], 2)} on {degrees(hl['df'])}, p-value {fmt_p(hl['p_value'])}.")
         add(f"    {hl['note']}")
     add(f"  Pseudo R-squared: McFadden {fmt_num(a['mcfadden_r2'], 3)}, Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, "
         f"Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, Tjur {fmt_num(a['tjur_r2'], 3)}.")
@@ -247,13 +271,105 @@ def describe_assessment(a: dict, record: dict) -> list[str]:
                "unstable because the predictors overlap." if flagged else "; none above 10 (common practice)."))
     ss = a.get("sample_size")
     if ss:
-        add(f"  Sample size (Riley et al. 2020, with the model's own Cox-Snell R-squared): at least "
+        add(f"  Sample size (Riley et al. 2020, with this model's apparent Cox-Snell R-squared of "
+            f"{fmt_num(ss['r2_cs'], 3)}, as fitted to these records): at least "
             f"{ss['n_minimum']:,} records are needed for {ss['parameters']} coefficients; this extract used "
             f"{record['rows_used']:,}"
             + (" — fewer than needed, so expect the model to look better here than on new patients."
                if record["rows_used"] < ss["n_minimum"] else "."))
+    for note in a.get("notes") or []:
+        add(f"  Note: {note['message']}")
     if a["influential"]:
         top = a["influential"][:5]
         add("  Records with the most influence (Cook's distance), by row of the file: "
             + ", ".join(f"row {r['row']} ({fmt_num(r['cooks_distance'], 4)})" for r in top) + ".")
+    return out
+
+
+def corrected_sample_size_text(validation: dict, rows_used: int) -> str:
+    """The minimum sample size redone with the bootstrap's optimism-corrected Cox-Snell R-squared, in words."""
+    ss = validation.get("sample_size_corrected")
+    if ss is None:
+        return ("With the optimism-corrected Cox-Snell R-squared the minimum sample size (Riley et al. 2020) "
+                "cannot be worked out here: the corrected R-squared is not above zero (or this validation was "
+                "saved before Twofold recorded it).")
+    n = int(ss["n_minimum"])
+    return (f"With the optimism-corrected Cox-Snell R-squared of {fmt_num(ss['r2_cs'], 3)} (Riley et al. 2020 "
+            f"recommend such an adjusted value over the apparent one): at least {n:,} rows are needed; this "
+            f"extract used {rows_used:,}" + (" \u2014 fewer than needed." if rows_used < n else " \u2014 enough."))
+
+
+def curve_reading(term: str, p) -> str:
+    """Plain reading of the test of a curve against a straight line."""
+    if p is None or p != p:
+        return "No reading: the test could not be made."
+    return (f"The effect of {term} bends more than chance alone would easily explain." if p < 0.05
+            else f"A straight line for {term} may serve as well as the curve.")
+
+
+def interaction_reading(a: str, b: str, p) -> str:
+    """Plain reading of the test of an interaction."""
+    if p is None or p != p:
+        return "No reading: the test could not be made."
+    return (f"The effect of {a} differs with {b} more than chance alone would easily explain." if p < 0.05
+            else f"The data do not clearly show the effect of {a} differing with {b}.")
+
+
+def _shape_lines(record: dict, test_name: str) -> list[str]:
+    out = []
+    for t in record.get("nonlinearity") or []:
+        knots = ", ".join(f"{v:g}" for v in t["knots"])
+        out += ["", f"Is the effect of {t['column']} curved? (curve with {len(t['knots'])} knots, at {knots})",
+                f"  {test_name} test of the curve against a straight line, on the same rows: "
+                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                "  " + curve_reading(t["column"], t["p_value"])]
+    for t in record.get("interaction_tests") or []:
+        a, _, b = t["term"].partition(":")
+        out += ["", f"Does the effect of {a} differ with {b}?",
+                f"  {test_name} test of the model with {a} \u00d7 {b} against the model without it: "
+                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                "  " + interaction_reading(a, b, t["p_value"])]
+    return out
+
+
+def _profile_lines(record: dict) -> list[str]:
+    terms = [t for t in record["terms"] if "or_pl_low" in t]
+    if not terms:
+        return []
+    penalised = "penalized_log_likelihood" in record
+    separated = any(w.get("code") == "separation" for w in record["warnings"])
+    out = ["", "Profile-likelihood intervals of the odds ratios (95%)"
+           + (", from the penalised likelihood" if penalised else "")]
+    width = max(len(_term_label(t)) for t in terms) + 2
+    for t in terms:
+        out.append(f"  {_term_label(t):<{width}}{fmt_or(t['or_pl_low'])} to {fmt_or(t['or_pl_high'])}"
+                   f"   (Wald: {fmt_or(t['or_ci_low'])} to {fmt_or(t['or_ci_high'])})")
+    if separated or penalised:
+        out.append("  Report these profile intervals rather than the Wald ones: with separation or a penalised "
+                   "fit the Wald intervals are unreliable.")
+    else:
+        out.append("  Where the two differ, the profile interval is the better one to report: it does not assume "
+                   "the estimate's uncertainty is symmetric.")
+    return out
+
+
+def _validation_lines(record: dict) -> list[str]:
+    v = record.get("validation")
+    if not v:
+        return []
+    out = ["", f"Bootstrap validation ({v['completed']:,} of {v['repetitions']:,} resamples used, seed {v['seed']}; "
+               f"each resample refitted by {v.get('refit_method', 'maximum likelihood')})"]
+    out.append(f"  Area under the ROC curve: {fmt_num(v['auc_corrected'], 3)} corrected for optimism "
+               f"({fmt_num(v['auc_apparent'], 3)} on the data it was built from, optimism "
+               f"{fmt_num(v['auc_optimism'], 3)}).")
+    out.append(f"  Calibration slope: {fmt_num(v['calibration_slope_corrected'], 3)} corrected (1 on the data it "
+               "was built from); below 1 means its risks are too extreme for new patients.")
+    out.append(f"  Brier score: {fmt_num(v['brier_corrected'], 4)} corrected ({fmt_num(v['brier_apparent'], 4)} "
+               f"on the data it was built from).")
+    if v.get("cox_snell_r2_apparent") is not None:
+        out.append(f"  Cox-Snell R-squared: {fmt_num(v['cox_snell_r2_corrected'], 3)} corrected "
+                   f"({fmt_num(v['cox_snell_r2_apparent'], 3)} on the data it was built from).")
+    out.append("  " + corrected_sample_size_text(v, record["rows_used"]))
+    if v.get("failed"):
+        out.append(f"  {v['failed']:,} resamples could not be fitted and were left out.")
     return out
