@@ -65,6 +65,50 @@ def _compact_table(view: QTableView) -> None:
     view.setTabKeyNavigation(False)  # Tab leaves the table; arrows move inside it
 
 
+class Picture(QLabel):
+    """A drawn figure that shrinks with the pane (keeping its proportions) and never widens it."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self._picture = QPixmap()
+        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+
+    def set_picture(self, pixmap: QPixmap) -> None:
+        self._picture = pixmap
+        self._rescale()
+        self.updateGeometry()
+
+    def hasHeightForWidth(self) -> bool:
+        return not self._picture.isNull()
+
+    def heightForWidth(self, width: int) -> int:
+        pm = self._picture
+        return int(pm.height() * min(width, pm.width()) / max(pm.width(), 1))
+
+    def sizeHint(self):
+        return self._picture.size() if not self._picture.isNull() else super().sizeHint()
+
+    def minimumSizeHint(self):
+        from PySide6.QtCore import QSize
+
+        return QSize(160, self.heightForWidth(160) if not self._picture.isNull() else 0)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        self._rescale()
+
+    def _rescale(self) -> None:
+        pm = self._picture
+        if pm.isNull():
+            self.setPixmap(QPixmap())
+            return
+        width = min(self.width(), pm.width())
+        if not self.isVisible() or width < 16:  # not laid out yet: the whole picture until it is
+            width = pm.width()
+        self.setPixmap(pm if width == pm.width() else
+                       pm.scaledToWidth(width, Qt.TransformationMode.SmoothTransformation))
+
+
 # ---------------------------------------------------------------------------
 class DataPane(QWidget):
     """The loaded rows and the list of columns with their roles."""
@@ -344,6 +388,8 @@ class ModelPane(QWidget):
         label = QLabel("&Predictors (tick to add, untick to remove):")
         layout.addWidget(label)
         self.list = QListWidget()
+        # Eight predictors in sight at once on a small screen.
+        self.list.setMinimumHeight(8 * (self.list.fontMetrics().height() + 4) + 2 * self.list.frameWidth())
         self.list.setAccessibleName("Candidate predictors")
         self.list.setAccessibleDescription("Tick a predictor with the space bar to add it to the model.")
         self.list.itemChanged.connect(self._item_changed)
@@ -603,7 +649,11 @@ class ResultsPane(QWidget):
         scroll = QScrollArea()
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
+        # Sentences wrap to the pane's width: text never scrolls sideways (a wide table scrolls on its own).
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.scroll = scroll
         body = QWidget()
+        body.setMinimumWidth(0)
         layout = QVBoxLayout(body)
         layout.setContentsMargins(0, 0, 4, 0)
         self.placeholder = _wrapped("Choose the outcome and tick one or more predictors; the results appear "
@@ -640,6 +690,13 @@ class ResultsPane(QWidget):
         self.profile_status = _wrapped("", "Profile-likelihood intervals")
         row.addWidget(self.profile_status, 1)
         layout.addLayout(row)
+        # The table's essential columns fit a laptop screen; the rest are one tick away.
+        self.more_check = QCheckBox("Show Wald &z, coefficient and standard error")
+        self.more_check.setAccessibleName("Show the Wald z, coefficient and standard error columns")
+        self.more_check.setToolTip("Add the columns a statistician may want to check: the Wald z, the coefficient "
+                                   "on the log-odds scale and its standard error.")
+        self.more_check.toggled.connect(self._show_extra_columns)
+        layout.addWidget(self.more_check)
 
         self.coefficients = CoefficientModel(self)
         self.table = QTableView()
@@ -657,6 +714,8 @@ class ResultsPane(QWidget):
         # The profile interval is the model's last column; on screen it stands beside the Wald one.
         self.table.horizontalHeader().moveSection(CoefficientModel.PROFILE, 3)
         self.table.setColumnHidden(CoefficientModel.PROFILE, True)
+        for c in CoefficientModel.EXTRA:
+            self.table.setColumnHidden(c, True)
         layout.addWidget(self.table)
 
         self.notes_box = QWidget()
@@ -705,7 +764,7 @@ class ResultsPane(QWidget):
 
     def _show_parts(self, on: bool) -> None:
         for w in (self.title, self.counts, self.contents, self.table, self.notes_box, self.tests,
-                  self.assessment_box, self.profile_status):
+                  self.assessment_box, self.profile_status, self.more_check):
             w.setVisible(on)
         self.placeholder.setVisible(not on)
         if not on:
@@ -871,6 +930,16 @@ class ResultsPane(QWidget):
         self.assessment_box.results_shown(view)
         self.shown.emit(view)
 
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if self.coefficients.lines:
+            self._size_table()  # the predictor column takes the room the window now gives
+
+    def _show_extra_columns(self, on: bool) -> None:
+        for c in CoefficientModel.EXTRA:
+            self.table.setColumnHidden(c, not on)
+        self._size_table()
+
     def _size_table(self) -> None:
         self.table.resizeColumnsToContents()
         header = self.table.horizontalHeader()
@@ -891,7 +960,12 @@ class ResultsPane(QWidget):
                 if x.kind == "heading":
                     longest = max(bold.horizontalAdvance(part) for part in x.label.split("\n"))
                     width = max(width, longest + icon + 24 - spanned)
-            self.table.setColumnWidth(0, width)
+            # No wider than the room the other columns leave: a long label is cut short (its tooltip has it
+            # whole) rather than pushing the odds ratios out of sight.
+            others = sum(self.table.columnWidth(c) for c in range(1, self.coefficients.columnCount())
+                         if not self.table.isColumnHidden(c))
+            room = self.scroll.viewport().width() - others - 2 * self.table.frameWidth() - 8
+            self.table.setColumnWidth(0, min(width, max(220, room)))
         vh = self.table.verticalHeader()
         for r, x in enumerate(self.coefficients.lines):
             lines = x.label.count("\n") + 1
@@ -961,7 +1035,7 @@ class AssessmentSection(QFrame):
         plot_grid = QGridLayout()
         for k, (key, name) in enumerate((("roc", "ROC curve"), ("calibration", "Calibration plot"),
                                          ("influence", "Influence plot"))):
-            lab = QLabel()
+            lab = Picture()
             lab.setAccessibleName(name)
             lab.setAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignTop)
             self.plots[key] = lab
@@ -1043,7 +1117,7 @@ class AssessmentSection(QFrame):
             pm = QPixmap()
             if data:
                 pm.loadFromData(data, "PNG")
-            lab.setPixmap(pm)
+            lab.set_picture(pm)
             lab.setVisible(not pm.isNull())
         self.plot_note.setText(view.calibration_plot_note)
         self.plot_note.setVisible(bool(view.calibration_plot_note))
@@ -1062,8 +1136,8 @@ class LadderPane(QWidget):
         layout = QVBoxLayout(self)
         layout.setContentsMargins(0, 0, 0, 0)
         layout.addWidget(_heading("Model ladder", self))
-        layout.addWidget(_wrapped("Each change of predictors adds a model. All models are fitted on the same "
-                                  "rows, so any two nested models can be compared fairly.", "About the ladder"))
+        layout.addWidget(_wrapped("Each change of predictors adds a model, all on the same rows, so any two "
+                                  "nested models can be compared fairly.", "About the ladder"))
         self.notices = style.Banner("information", colour=style.SKY_BLUE, accessible_name="Note about the ladder")
         self.notices.hide()
         layout.addWidget(self.notices)
@@ -1078,6 +1152,10 @@ class LadderPane(QWidget):
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.ExtendedSelection)
         self.table.activated.connect(lambda idx: self.show_model(idx.row()))
         self.table.selectionModel().selectionChanged.connect(self._selection_changed)
+        # At least five models stay in sight, however small the screen (header, five rows, a scroll bar).
+        rows = self.table.verticalHeader().defaultSectionSize()
+        self.table.setMinimumHeight(2 * rows + 5 * rows + self.table.horizontalScrollBar().sizeHint().height()
+                                    + 2 * self.table.frameWidth())
         layout.addWidget(self.table, 1)
 
         row = QHBoxLayout()

@@ -206,6 +206,8 @@ class CoefficientModel(QAbstractTableModel):
     KEYS = (None, "odds_ratio", "ci", "p_value", "z", "estimate", "std_error", "pl_ci")
     #: Logical column of the profile-likelihood interval.
     PROFILE = 7
+    #: Columns a reader seldom needs (Wald z, coefficient, standard error): shown only when asked for.
+    EXTRA = (4, 5, 6)
     WORKING = "working\u2026"
 
     def __init__(self, parent=None):

@@ -13,7 +13,7 @@ from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (
     QApplication, QFileDialog, QHBoxLayout, QLabel, QMainWindow, QMenu, QMessageBox, QProgressBar,
-    QSplitter, QToolButton, QVBoxLayout, QWidget,
+    QFrame, QScrollArea, QSplitter, QToolButton, QVBoxLayout, QWidget,
 )
 
 from twofold.gui import style
@@ -81,7 +81,15 @@ class MainWindow(QMainWindow):
         self.ladder_pane = LadderPane(self.session)
         # Three panes side by side; the model ladder runs under the model and results panes.
         top = QSplitter(Qt.Orientation.Horizontal)
-        top.addWidget(self.model_pane)
+        # On a short screen the model pane scrolls rather than squeezing its list of predictors.
+        model_scroll = QScrollArea()
+        model_scroll.setWidget(self.model_pane)
+        model_scroll.setWidgetResizable(True)
+        model_scroll.setFrameShape(QFrame.Shape.NoFrame)
+        model_scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        model_scroll.setMinimumWidth(self.model_pane.minimumSizeHint().width()
+                                     + model_scroll.verticalScrollBar().sizeHint().width())
+        top.addWidget(model_scroll)
         top.addWidget(self.results_pane)
         top.setChildrenCollapsible(False)
         right = QSplitter(Qt.Orientation.Vertical)
@@ -166,6 +174,16 @@ class MainWindow(QMainWindow):
             edit.addAction(act)
 
         go = bar.addMenu("&Go to")
+        # On a small screen the data pane can step aside for the model and its results.
+        self.data_pane_action = QAction("Show the data &pane", self)
+        self.data_pane_action.setCheckable(True)
+        self.data_pane_action.setChecked(True)
+        self.data_pane_action.setShortcut(QKeySequence("Ctrl+0"))
+        self.data_pane_action.setToolTip("Hide the data pane to give the model and results more room; "
+                                         "show it again here (Ctrl+0).")
+        self.data_pane_action.toggled.connect(self.data_pane.setVisible)
+        go.addAction(self.data_pane_action)
+        go.addSeparator()
         for key, text, target in (("Ctrl+1", "&Data rows", lambda: self.data_pane.table),
                                   ("Ctrl+2", "&Column list", lambda: self.data_pane.columns),
                                   ("Ctrl+3", "&Outcome", lambda: self.model_pane.outcome_combo),
@@ -483,6 +501,9 @@ class MainWindow(QMainWindow):
         if not self.confirm_leave("closing Twofold"):
             event.ignore()  # the autosave stays, and so does the window
             return
+        if self.remember:
+            self.settings.setValue("geometry", self.saveGeometry())
+            self.settings.sync()
         if self.model_shape_dialog is not None:
             self.model_shape_dialog.shutdown()  # a bootstrap must not outlive the window
         if self.calculator is not None:
@@ -492,14 +513,29 @@ class MainWindow(QMainWindow):
         super().closeEvent(event)
 
 
+#: Below this screen size the window opens maximised (hospital laptops are often 1366 by 768 or 1280 by 720).
+SMALL_SCREEN = (1600, 900)
+
+
 def default_size(window: QMainWindow) -> None:
-    """A size that fits the screen: most of it, at most 1600 by 1000."""
+    """The size the window opens at: as the user left it, else maximised on a small screen, else most of it.
+
+    The geometry is remembered in Twofold's own settings file when the
+    window closes (not for windows that do not remember, such as pictures).
+    """
+    saved = window.settings.value("geometry") if window.remember else None
+    if saved is not None and window.restoreGeometry(saved):
+        balance(window)
+        return
     screen = window.screen() or QApplication.primaryScreen()
     if screen is None:
         window.resize(1400, 900)
         return
     g = screen.availableGeometry()
     window.resize(min(1600, int(g.width() * 0.92)), min(1000, int(g.height() * 0.9)))
+    if g.width() < SMALL_SCREEN[0] or g.height() < SMALL_SCREEN[1]:
+        window.resize(g.width(), g.height())
+        window.setWindowState(window.windowState() | Qt.WindowState.WindowMaximized)
     balance(window)
 
 
@@ -510,7 +546,8 @@ def balance(window) -> None:
     included, then fits without scrolling sideways.
     """
     w = window.width()
-    window.split.setSizes([int(w * 0.235), int(w * 0.765)])
+    data = 0.235 if w >= 1500 else 0.2  # a narrow screen: the results need the room more than the rows
+    window.split.setSizes([int(w * data), int(w * (1 - data))])
     window.model_split.setSizes([int(w * 0.19), int(w * 0.575)])
     h = window.height()
     window.right_split.setSizes([int(h * 0.70), int(h * 0.30)])
