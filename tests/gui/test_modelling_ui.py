@@ -48,10 +48,16 @@ def test_spline_shows_core_nonlinearity_test(qtbot, window, dialog):
     ref = nonlinearity_tests(study, fit)[0]
     assert ref.term == "age" and shown.df == ref.df == 2  # 4 knots: 2 extra columns
     assert shown.g == pytest.approx(ref.g, rel=1e-8)
-    assert f"{shown.g:.3f}"[:4] in dialog.nonlinear_label.text()
+    from twofold.core.outputs.text import fmt_num
+
+    assert f"G = {fmt_num(shown.g, 2)} on" in dialog.nonlinear_label.text()
     assert not dialog.effect_picture.pixmap().isNull()
     assert dialog.shape_combo.currentData() == 4  # the shape list shows the shape now in the model
     assert "2 degrees of freedom" in dialog.nonlinear_label.text()
+    # Ends in one plain sentence, as the main pane does.
+    reading = ("The effect of age bends more than chance alone would easily explain." if ref.p_value < 0.05
+               else "A straight line for age may serve as well as the curve.")
+    assert dialog.nonlinear_label.text().endswith(reading)
     # The refit went through the request path: the results pane shows the spline model.
     assert window.session.is_current("results", rid)
     assert any("age" in str(line) for line in window.results_pane.view.lines)

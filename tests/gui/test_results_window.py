@@ -256,3 +256,26 @@ def test_outcome_without_a_known_event_asks_for_it(qtbot, window):
     assert window.model_pane.list.isEnabled()
     view = tick(qtbot, window, ["age"])
     assert view.title.endswith("sex = M")
+
+
+def test_two_models_that_are_not_nested_get_a_plain_verdict(qtbot, readmission):
+    # Reference: statsmodels' AIC of each model decides which the verdict names.
+    import statsmodels.formula.api as smf
+    import pandas as pd
+
+    window = readmission
+    tick(qtbot, window, ["age"])
+    tick(qtbot, window, ["sex"])
+    pane = window.ladder_pane
+    pane.first.setCurrentIndex(0)
+    pane.second.setCurrentIndex(1)
+    qtbot.mouseClick(pane.compare_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: "compared with model 2" in pane.comparison.text(), timeout=20_000)
+    frame = pd.read_csv(READMISSION)
+    aic_age = smf.logit("readmitted_30d ~ age", frame).fit(disp=0).aic
+    aic_sex = smf.logit("readmitted_30d ~ C(sex)", frame).fit(disp=0).aic
+    better, worse = (1, 2) if aic_age < aic_sex else (2, 1)
+    text = pane.comparison.text()
+    assert f"By AIC model {better} fits" in text and f"than model {worse}" in text
+    assert "tells patients apart" in text or "does not clearly differ" in text
+    assert "This compares fit, not causes." in text

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import threading
 
-from PySide6.QtCore import QThread, Signal
+from PySide6.QtCore import Qt, QThread, Signal
 from PySide6.QtGui import QPixmap
 from PySide6.QtWidgets import (
     QComboBox, QDialog, QFormLayout, QGroupBox, QHBoxLayout, QLabel, QLineEdit, QProgressBar, QPushButton,
@@ -138,6 +138,8 @@ class ModelShapeDialog(QDialog):
         self.boot_thread: BootstrapThread | None = None
 
         tabs = QTabWidget()
+        tabs.setUsesScrollButtons(False)  # every tab name in full
+        tabs.tabBar().setElideMode(Qt.TextElideMode.ElideNone)
         tabs.addTab(self._build_spline(), "Curved effect")
         tabs.addTab(self._build_interaction(), "Interaction")
         tabs.addTab(self._build_bootstrap(), "Bootstrap validation")
@@ -357,7 +359,7 @@ class ModelShapeDialog(QDialog):
             self._boot_idle(failure.message)
 
     def _show_spline(self, payload) -> None:
-        from twofold.core.outputs.text import fmt_num, fmt_p
+        from twofold.core.outputs.text import curve_reading, fmt_num, fmt_p
 
         self.spline_result = payload
         col = payload["column"]
@@ -367,9 +369,9 @@ class ModelShapeDialog(QDialog):
             t = payload["tests"][0]
             knots = ", ".join(f"{k:g}" for k in t.knots)
             self.nonlinear_label.setText(
-                f"Is the effect of {col} curved? Likelihood-ratio test of the spline against a straight "
-                f"line: G = {fmt_num(t.g)} on {_df(t.df)}, p {fmt_p(t.p_value)}. "
-                f"Knots at {knots}.")
+                f"Is the effect of {col} curved? Likelihood-ratio test of the curve against a straight "
+                f"line: G = {fmt_num(t.g, 2)} on {_df(t.df)}, p-value {fmt_p(t.p_value)}. "
+                f"Knots at {knots}.\n{curve_reading(col, t.p_value)}")
         pix = QPixmap()
         pix.loadFromData(payload["png"], "PNG")
         self.effect_picture.setPixmap(pix)
@@ -380,15 +382,17 @@ class ModelShapeDialog(QDialog):
         self.status.setText("The model was refitted; the results pane shows it.")
 
     def _show_interaction(self, payload) -> None:
-        from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p
+        from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, interaction_reading
 
         self.interaction_result = payload
         term = payload["term"]
         if payload["tests"]:
             t = payload["tests"][0]
+            a, _, b = term.partition(":")
             self.interaction_label.setText(
-                f"Does adding {term.replace(':', ' by ')} improve the model? Likelihood-ratio test against the "
-                f"model without it: G = {fmt_num(t.g)} on {_df(t.df)}, p {fmt_p(t.p_value)}.")
+                f"Does the effect of {a} differ with {b}? Likelihood-ratio test of the model with "
+                f"{a} \u00d7 {b} against the model without it: G = {fmt_num(t.g, 2)} on {_df(t.df)}, p-value "
+                f"{fmt_p(t.p_value)}.\n{interaction_reading(a, b, t.p_value)}")
         rows = payload["table"]
         self.or_table.setRowCount(len(rows))
         for r, row in enumerate(rows):

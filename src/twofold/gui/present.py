@@ -14,7 +14,7 @@ from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.models.terms import TIMES, value_text
 from twofold.core.outputs.text import (
     curve_reading, fmt_num, fmt_or, fmt_p, interaction_reading, or_cells, stated_line, reading_nested,
-    reading_overall,
+    reading_not_nested, reading_overall,
 )
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
@@ -415,7 +415,10 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
         diffs += (f" Area under the ROC curve (c statistic): model {a} {fmt_num(auc.auc_a, 3)}, model {b} "
                   f"{fmt_num(auc.auc_b, 3)}; paired DeLong test of the difference, p-value {fmt_p(auc.p_value)}.")
     if c.test is None:
-        return ComparisonView(i, j, False, diffs, "", c.note, aic_difference=c.aic_difference,
+        rungs = ws.ladder.rungs
+        same = set(rungs[i].predictors) == set(rungs[j].predictors)
+        reading = "" if same else reading_not_nested(a, b, c.aic_difference, auc)
+        return ComparisonView(i, j, False, diffs, reading, c.note, aic_difference=c.aic_difference,
                               bic_difference=c.bic_difference)
     t = c.test
     if t.added:

@@ -373,3 +373,35 @@ def _validation_lines(record: dict) -> list[str]:
     if v.get("failed"):
         out.append(f"  {v['failed']:,} resamples could not be fitted and were left out.")
     return out
+
+
+def reading_not_nested(first: int, second: int, aic_difference, auc_test=None) -> str:
+    """Plain reading of two models neither of which contains the other: AIC, then discrimination.
+
+    ``aic_difference`` is AIC(second) - AIC(first).  The wording of the size
+    follows Burnham & Anderson (Model Selection and Multimodel Inference, 2nd
+    ed., 2002, sec. 2.6): under 2 the two are about equally supported, 4 to 7
+    clearly less for the worse one, above 10 essentially none (common practice).
+    """
+    if aic_difference is None or aic_difference != aic_difference:
+        out = "AIC cannot compare these two models here."
+    else:
+        better, worse = (second, first) if aic_difference < 0 else (first, second)
+        size = abs(aic_difference)
+        if size < 2:
+            out = (f"By AIC the two models fit about equally well (difference {fmt_num(size, 1)}, under 2); "
+                   "the simpler one may serve.")
+        elif size <= 10:
+            out = (f"By AIC model {better} fits better than model {worse} (by {fmt_num(size, 1)}; differences "
+                   "of 4 to 10 are usually read as clear support for the better model).")
+        else:
+            out = (f"By AIC model {better} fits much better than model {worse} (by {fmt_num(size, 1)}, "
+                   "more than 10).")
+    if auc_test is not None and auc_test.p_value == auc_test.p_value:
+        higher = second if auc_test.auc_b > auc_test.auc_a else first
+        if auc_test.p_value < 0.05:
+            out += (f" Model {higher} tells patients apart better, a difference in the area under the ROC curve "
+                    "larger than chance alone would easily explain.")
+        else:
+            out += (" Their ability to tell patients apart (area under the ROC curve) does not clearly differ.")
+    return out + " This compares fit, not causes."
