@@ -212,3 +212,29 @@ def test_the_assessment_process_ends_with_the_window_process_even_after_a_crash(
     while any(alive(p) for p in pids) and time.time() < deadline:
         time.sleep(0.2)
     assert not any(alive(p) for p in pids)
+
+
+def test_the_risk_cut_off_starts_at_the_observed_event_rate_and_more_measures_fold_open(qtbot, readmission):
+    # Reference: the event rate counted by pandas; McFadden's R-squared from statsmodels' prsquared.
+    import statsmodels.formula.api as smf
+    from PySide6.QtCore import QPoint, Qt
+    from sklearn.metrics import recall_score
+
+    window = readmission
+    tick(qtbot, window, PREDICTORS)
+    box = wait_assessed(qtbot, window)
+    frame = pd.read_csv(READMISSION)
+    rate = round(frame["readmitted_30d"].mean(), 2)
+    assert box.view.threshold == pytest.approx(rate)
+    assert box.threshold.value() == pytest.approx(rate)
+    assert f"at least {rate:.2f} positive" in box.classification.text()
+    fit = core_fit(PREDICTORS)
+    called = (fit.fitted >= rate).astype(int)
+    assert box.view.values["sensitivity"] == pytest.approx(recall_score(fit.design.y, called))
+    # The pseudo-R-squared values are folded away until asked for.
+    assert not box.pseudo.isVisible()
+    window.results_pane.scroll.ensureWidgetVisible(box.more_measures)
+    qtbot.mouseClick(box.more_measures, Qt.MouseButton.LeftButton, pos=QPoint(8, box.more_measures.height() // 2))
+    assert box.pseudo.isVisible()
+    ref = smf.logit("readmitted_30d ~ age + C(sex) + C(discharge_destination)", frame).fit(disp=0)
+    assert f"McFadden {fmt_num(ref.prsquared, 3)}" in box.pseudo.text()

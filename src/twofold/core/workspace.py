@@ -27,8 +27,16 @@ from types import SimpleNamespace
 from twofold.core.errors import ModelError, TwofoldError
 from twofold.core.events import Event
 
-#: Risk threshold of the classification table until the user picks another.
-DEFAULT_THRESHOLD = 0.5
+#: Risk threshold of the classification table until the user picks another: None means the observed event
+#: rate of the model shown (a cut-off that matches the data, where 0.5 would call almost no one positive
+#: when events are rare).
+DEFAULT_THRESHOLD = None
+
+
+def event_rate_threshold(fit) -> float:
+    """The observed event rate of ``fit``'s rows, to two decimals (as the window's threshold box shows it)."""
+    rate = fit.events / max(fit.n_used, 1)
+    return float(min(max(round(rate, 2), 0.01), 0.99))
 
 #: Profile-likelihood intervals are worked out without being asked when rows times
 #: coefficients is at most this (maximum likelihood) or the second figure (penalised):
@@ -409,6 +417,10 @@ class Workspace:
 
         return self._operate("fitting method", run)
 
+    def threshold_for(self, fit) -> float:
+        """The risk threshold of ``fit``'s classification table: the user's, else its observed event rate."""
+        return self.threshold if self.threshold is not None else event_rate_threshold(fit)
+
     def set_threshold(self, threshold: float) -> Change:
         """Use this risk threshold for the classification table."""
         t = float(threshold)
@@ -579,13 +591,13 @@ class Workspace:
         spec = self.spec()
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
-            assessment = assess_fit(study, shown, threshold=self.threshold)
-        elif assessment is not None and self.threshold is not None:
+            assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))
+        elif assessment is not None:
             from dataclasses import replace
 
             from twofold.core.assessing import discrimination as disc
 
-            table = disc.classification_table(shown.design.y, shown.fitted, self.threshold)
+            table = disc.classification_table(shown.design.y, shown.fitted, self.threshold_for(shown))
             assessment = replace(assessment, classification=table)
         # A copy, so the reading notices join the fit's warnings without changing the fit on screen.
         fit = copy.copy(shown)

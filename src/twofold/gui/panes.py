@@ -1008,19 +1008,28 @@ class AssessmentSection(QFrame):
         self.vif = _wrapped("", "Variance inflation")
         self.sample = _wrapped("", "Sample size")
         self.influential = _wrapped("", "Most influential records")
-        for w in (self.auc, self.brier, self.calibration, self.hosmer, self.pseudo, self.drop_one, self.vif,
-                  self.sample, self.influential):
-            w.setTextFormat(Qt.TextFormat.RichText)
+        # Measures a committee seldom needs sit behind a fold, opened with one click.
+        self.more_measures = QCheckBox("More measures of fit (pseudo-R-squared)")
+        self.more_measures.setAccessibleName("Show more measures of fit")
+        self.more_measures.toggled.connect(self.pseudo.setVisible)
+        for w in (self.auc, self.brier, self.calibration, self.hosmer, self.more_measures, self.pseudo,
+                  self.drop_one, self.vif, self.sample, self.influential):
+            if isinstance(w, QLabel):
+                w.setTextFormat(Qt.TextFormat.RichText)
             b.addWidget(w)
+        self.pseudo.hide()
 
         row = QHBoxLayout()
         self.threshold = QDoubleSpinBox()
         self.threshold.setRange(0.01, 0.99)
         self.threshold.setSingleStep(0.01)
         self.threshold.setDecimals(2)
-        self.threshold.setValue(getattr(session, "threshold", 0.5))
+        # Until the user sets one, the threshold is the observed event rate of the model shown (its view says it).
+        self.threshold.setValue(getattr(session, "threshold", None) or 0.5)
         self.threshold.setAccessibleName("Risk threshold for the classification table")
-        self.threshold.setToolTip("Records with a predicted risk at or above this are counted as positive.")
+        self.threshold.setToolTip("Records with a predicted risk at or above this are counted as positive. It "
+                                  "starts at the observed event rate of the model shown; set the cut-off your "
+                                  "clinical question needs.")
         self.threshold.valueChanged.connect(self._threshold_changed)
         label = QLabel("Risk &threshold:")
         label.setBuddy(self.threshold)

@@ -34,8 +34,8 @@ from twofold.gui.worker import CoreWorker, Job, log_exception
 #: The displays a job can update; each has its own "newest request" mark.
 FACETS = ("study", "columns", "outcome", "results", "comparison", "history")
 
-#: Risk threshold of the classification table until the user picks another.
-DEFAULT_THRESHOLD = 0.5
+#: Risk threshold of the classification table until the user picks another (None: the model's event rate).
+DEFAULT_THRESHOLD = None
 
 
 class _Superseded(Exception):
@@ -469,7 +469,7 @@ class Session(QObject):
         if fit is None:
             self._assessed.emit(job_id, None, None)
             return None
-        index, study, threshold = ws.ladder.current, ws.study, ws.threshold
+        index, study, threshold = ws.ladder.current, ws.study, ws.threshold_for(fit)
         self._assessor.submit(self._assess, job_id, study, fit, index, threshold)
         if self.profile_always or ws.wants_profile(fit):
             self._start_profile(job_id)
