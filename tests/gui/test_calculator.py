@@ -235,3 +235,31 @@ def test_nothing_typed_is_kept_anywhere(qtbot, fitted, home, tmp_path, monkeypat
     c = window.open_calculator()
     qtbot.waitUntil(lambda: idle(window) and c.model is not None, timeout=WAIT_MS)
     assert all((w.text() == "" if hasattr(w, "text") else w.currentData() is None) for w in c.fields.values())
+
+
+def test_a_decimal_comma_typed_in_the_calculator_is_read_as_a_decimal(qtbot, fitted):
+    # Reference: statsmodels' risk at age 72.5 (hand computation as above); the user types "72,5".
+    from PySide6.QtCore import Qt
+
+    window = fitted
+    tick(qtbot, window, ["age"])
+    c = _open_calculator(qtbot, window, ["age"])
+    qtbot.waitUntil(lambda: idle(window), timeout=WAIT_MS)
+    box = c.fields["age"]
+    box.clear()
+    qtbot.keyClicks(box, "72,5")
+    qtbot.keyClick(box, Qt.Key.Key_Return)  # Enter works the risk out (and clears nothing)
+    qtbot.waitUntil(lambda: idle(window) and (c.last_prediction is not None or "72" in c.problem.text()),
+                    timeout=WAIT_MS)
+    assert c.last_prediction is not None, (box.text(), c.problem.text())
+    got = c.last_prediction
+    df = pd.read_csv(READMISSION)[["age", OUTCOME]].dropna()
+    X = pd.DataFrame({"const": 1.0, "age": df["age"].astype(float)})
+    p, _, _ = _statsmodels_risk(X, df[OUTCOME].astype(float), np.array([1.0, 72.5]))
+    assert got.probability == pytest.approx(p, rel=1e-6)
+    # An ambiguous "1,250" is refused in words that suit the window (no command-line syntax).
+    box.clear()
+    qtbot.keyClicks(box, "1,250")
+    qtbot.keyClick(box, Qt.Key.Key_Return)
+    qtbot.waitUntil(lambda: "could mean 1250 or 1.250" in c.problem.text(), timeout=WAIT_MS)
+    assert "=" not in c.problem.text()

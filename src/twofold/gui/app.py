@@ -59,7 +59,7 @@ def launch(argv: list[str] | None = None):
     app = QApplication.instance() or QApplication([sys.argv[0] if sys.argv else "twofold"])
     app.setApplicationName("Twofold")
     app.setOrganizationName("Twofold")
-    app.setApplicationDisplayName("Twofold")
+    # No display name: on Linux Qt would add " - Twofold" to every title, which already starts with Twofold.
     window = MainWindow()
     app.twofold_window = window
     default_size(window)

@@ -160,6 +160,10 @@ class RiskCalculator(QDialog):
         buttons.addButton(self.clear_button, QDialogButtonBox.ButtonRole.ResetRole)
         close = buttons.addButton(QDialogButtonBox.StandardButton.Close)
         close.clicked.connect(self.close)
+        # Enter in a value box works the risk out; it must never press "Clear" or "Close" instead.
+        for b in (self.clear_button, close):
+            b.setAutoDefault(False)
+            b.setDefault(False)
         layout.addWidget(buttons)
 
         self._timer = QTimer(self)
@@ -239,6 +243,7 @@ class RiskCalculator(QDialog):
                 if was_number:
                     box.setText(old)
                 box.textEdited.connect(lambda _t: self._timer.start())
+                box.returnPressed.connect(self.calculate)
                 widget = box
                 if term.low is not None:  # the range stays in view once a value is typed
                     holder = QWidget()

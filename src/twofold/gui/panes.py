@@ -18,6 +18,7 @@ from PySide6.QtWidgets import (
     QVBoxLayout, QWidget,
 )
 
+from twofold.core.data.tidy import plural
 from twofold.gui import style
 from twofold.gui.tables import CellsModel, CoefficientModel, ColumnsModel, LadderModel
 from twofold.gui.views import CAUTION, ROLE_LABELS
@@ -286,7 +287,7 @@ class DataPane(QWidget):
             self.role_combo.setEnabled(c.name != self.columns_model.outcome)
             if c.is_factor:
                 for raw, label, n in zip(c.levels, c.level_labels, c.counts or [None] * len(c.levels)):
-                    self.reference_combo.addItem(f"{label} ({n:,} rows)" if n is not None else label, raw)
+                    self.reference_combo.addItem(f"{label} ({plural(n, 'row')})" if n is not None else label, raw)
                 self.reference_combo.setCurrentIndex(max(0, c.level_labels.index(c.reference_label)
                                                          if c.reference_label in c.level_labels else 0))
             self.reference_combo.setEnabled(c.is_factor)

@@ -178,8 +178,14 @@ class SessionActions(QObject):
         return str(Path(folder) / name) if name else folder
 
     def _suggest(self, ending: str) -> str:
+        """Where a save dialog starts: the folder last written to (a data file's folder is often read-only)."""
         data = self._data_path()
-        return self._start(f"{Path(data).stem}{ending}" if data else "")
+        folder = self.window.settings.value("last_output_folder", "") or str(Path.home())
+        return str(Path(folder) / f"{Path(data).stem}{ending}") if data else folder
+
+    def _written_to(self, path) -> None:
+        """Remember the folder of a file the user chose to write, for the next save dialog."""
+        self.window.settings.setValue("last_output_folder", str(Path(path).resolve().parent))
 
     def _fail(self, message: str) -> None:
         self.window.show_failure(Failure("file", message))
@@ -241,6 +247,7 @@ class SessionActions(QObject):
         """Save the model shown, its ladder and options as a session file (on the worker)."""
         if self._refuses(path):
             return None
+        self._written_to(path)
         def job(ws):
             from twofold.core.outputs.session import save_session
 
@@ -369,6 +376,7 @@ class SessionActions(QObject):
         """
         if self._refuses(path):
             return None
+        self._written_to(path)
         from twofold.core.outputs.privacy import MAX_THRESHOLD
 
         if suppress_up_to is not None and not 1 <= int(suppress_up_to) <= MAX_THRESHOLD:
@@ -395,7 +403,8 @@ class SessionActions(QObject):
 
     def export_dialog(self) -> None:
         path, chosen = QFileDialog.getSaveFileName(self.window, "Export the tables", self._suggest("-tables.xlsx"),
-                                                   "Workbook (*.xlsx);;CSV text (*.csv)")
+                                                   "Workbook, one sheet per table (*.xlsx);;"
+                                                   "CSV text, two files: coefficients and models (*.csv)")
         if path:
             if Path(path).suffix.lower() not in (".csv", ".xlsx"):
                 path += ".csv" if "csv" in chosen.lower() else ".xlsx"
@@ -413,6 +422,7 @@ class SessionActions(QObject):
         ladder_path = self.ladder_csv(path) if path.suffix.lower() == ".csv" else None
         if self._refuses(*([path] + ([ladder_path] if ladder_path is not None else []))):
             return None
+        self._written_to(path)
         s = self.session
 
         def job(ws):

@@ -15,6 +15,7 @@ and a number outside the range the model was fitted on.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -232,14 +233,28 @@ def _shown_levels(term: EncodedTerm) -> str:
     return shown + (" ..." if len(levels) > 12 else "")
 
 
+#: A number written with a decimal comma ("72,5"): digits, one comma, then one, two or four or more digits.
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d+,(\d{1,2}|\d{4,})$")
+
+
 def _number(column: str, value) -> float:
+    """A value typed for a numeric predictor; a decimal comma ("72,5") is read as a decimal point.
+
+    "1,250" is refused rather than guessed: it could mean 1250 or 1.25.
+    """
     if isinstance(value, bool):
-        raise ModelError(f"The value for '{column}' should be a number, not {value!r}; give for example {column}=50.")
+        raise ModelError(f"The value for '{column}' should be a number such as 50, not {value!r}.")
+    text = str(value).strip() if not isinstance(value, (int, float)) else None
+    if text is not None and _DECIMAL_COMMA.match(text):
+        text = text.replace(",", ".")
+    elif text is not None and re.fullmatch(r"[+-]?\d+,\d{3}", text):
+        raise ModelError(f"The value {text!r} for '{column}' could mean {text.replace(',', '')} or "
+                         f"{text.replace(',', '.')}; write it without the comma or with a decimal point.")
     try:
-        x = float(str(value).strip()) if not isinstance(value, (int, float)) else float(value)
+        x = float(text) if text is not None else float(value)
     except ValueError:
-        raise ModelError(f"The value {value!r} for '{column}' is not a number; give a number, "
-                         f"for example {column}=50.") from None
+        raise ModelError(f"The value {value!r} for '{column}' is not a number; write a number such as 50 "
+                         "(a decimal point or comma is fine).") from None
     if not math.isfinite(x):
         raise ModelError(f"The value {value!r} for '{column}' is not a finite number; give an ordinary number.")
     return x
