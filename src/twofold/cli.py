@@ -38,6 +38,9 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="treat a column differently from what Twofold inferred (repeat for more); ROLE is one "
                         f"of {', '.join(role_names())}, e.g. --role ward_code=categorical")
     p.add_argument("--sheet", metavar="NAME", help="the sheet of a workbook (default: the first)")
+    p.add_argument("--missing", action="append", default=[], metavar="COLUMN=VALUE",
+                   help="treat this value of a column as missing, e.g. --missing lactate=999 or "
+                        "--missing readmitted=unknown (repeat for more)")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
     p.add_argument("--firth", action="store_true", help="fit by Firth's penalised likelihood (for separation or small samples)")
     p.add_argument("--profile-ci", action="store_true", help="add profile-likelihood intervals for the odds ratios")
@@ -128,6 +131,7 @@ def _spec(args):
     from twofold.core.analysis import (
         AnalysisSpec,
         parse_interactions,
+        parse_missing,
         parse_references,
         parse_roles,
         parse_splines,
@@ -140,6 +144,7 @@ def _spec(args):
         firth=args.firth,
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
+        missing=parse_missing(getattr(args, "missing", [])),
     )
 
 

@@ -43,6 +43,8 @@ class AnalysisSpec:
         Bootstrap repetitions for optimism correction (None: none).
     seed : int, optional
         Seed of the bootstrap.
+    missing : dict
+        Values to treat as missing, per column (``--missing COLUMN=VALUE``).
     rows_complete_in : list of str
         Columns whose completeness decides the rows, besides the outcome and
         the model's own predictors: a row missing any of them is left out too
@@ -67,6 +69,8 @@ class AnalysisSpec:
     validate: int | None = None
     seed: int | None = None
     rows_complete_in: list = field(default_factory=list)
+    #: Values that mean "missing", per column ("unknown", 999), applied before anything else.
+    missing: dict = field(default_factory=dict)
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -92,6 +96,8 @@ def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
 
     if study is None:
         study = Study.from_file(spec.data, sheet=spec.sheet)
+    for column, values in spec.missing.items():
+        study.set_missing(column, values)
     allowed = role_names()
     for column, role in spec.roles.items():
         name = study.column(column)
@@ -155,6 +161,18 @@ def parse_interactions(items) -> list:
         if len(parts) != 2 or not all(parts):
             raise ColumnError(f"--interaction {item!r} should name two predictors as A:B, for example age:sex.")
         out.append(":".join(parts))
+    return out
+
+
+def parse_missing(items) -> dict:
+    """``["COLUMN=VALUE", ...]`` into {column: [values]}, with a clear message for a malformed item."""
+    out: dict[str, list] = {}
+    for item in items:
+        column, sep, value = item.partition("=")
+        if not sep or not column.strip() or not value.strip():
+            raise ColumnError(f"--missing {item!r} should look like COLUMN=VALUE, for example lactate=999 "
+                              "or readmitted=unknown.")
+        out.setdefault(column.strip(), []).append(value.strip())
     return out
 
 
@@ -287,6 +305,7 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
                 "profile", f"The profile-likelihood interval could not be found for {', '.join(lost)} "
                 "(too few records for a clear maximum); read the Wald interval with care.", tuple(lost)))
     record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
+    record["values_marked_missing"] = {k: list(v) for k, v in study.missing_values.items()}
     from twofold.core.models.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
     from twofold.core.outputs.summary import clean_number
 

@@ -352,6 +352,20 @@ class Workspace:
 
         return self._operate(f"role of {column}", run)
 
+    def set_missing(self, column: str, values) -> Change:
+        """Treat these values of a column as missing ("unknown", 999); the models using it are refitted."""
+        def run():
+            study, ladder = self.study, self.ladder
+            name = study.column(column)
+            study.set_missing(name, values)
+            if ladder.rungs and (name == study.outcome or name in ladder.used_predictors):
+                ladder.refit()
+            shown = ", ".join(repr(v) for v in study.missing_values.get(name, ())) or "no values"
+            return Change(f"In '{name}', {shown} now count as missing.",
+                          frozenset(("columns", "outcome", "ladder", "comparison")))
+
+        return self._operate(f"missing values of {column}", run)
+
     def set_reference(self, column: str, level) -> Change:
         """Choose the reference group of a column with groups; the models using it are refitted."""
         def run():
@@ -571,7 +585,8 @@ class Workspace:
         return AnalysisSpec(
             data=str(study.table.path), outcome=study.outcome, predictors=list(rung.predictors),
             event=study.event, roles=roles, sheet=study.table.sheet, firth=is_penalised(fit),
-            profile_ci=self.wants_profile(fit), threshold=self.threshold, splines=dict(study.splines),
+            profile_ci=self.wants_profile(fit), threshold=self.threshold_for(fit), splines=dict(study.splines),
+            missing={k: list(v) for k, v in study.missing_values.items()},
             validate=None if v is None else v.repetitions, seed=None if v is None else v.seed,
             rows_complete_in=columns_of(study, self.ladder.used_predictors))
 
@@ -612,6 +627,7 @@ class Workspace:
             return result
         profile = self.profile_intervals(shown) if spec.profile_ci else None
         record = fit_record(fit, study.outcome, study.event, profile=profile, assessment=assessment)
+        record["values_marked_missing"] = {k: list(v) for k, v in study.missing_values.items()}
         curves, crossings = self.shape_tests(shown)
         if any(p in study.splines for p in fit.design.predictors):
             record["nonlinearity"] = [

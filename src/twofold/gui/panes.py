@@ -66,6 +66,20 @@ def _compact_table(view: QTableView) -> None:
     view.setTabKeyNavigation(False)  # Tab leaves the table; arrows move inside it
 
 
+def ask_missing_values(parent, column: str, current) -> list | None:
+    """Ask which values of ``column`` mean missing; None if cancelled (tests replace this function)."""
+    from PySide6.QtWidgets import QInputDialog
+
+    text, ok = QInputDialog.getText(
+        parent, "Values that mean missing",
+        f"Values of '{column}' that mean the value is not known, separated by semicolons\n"
+        "(for example: unknown; not recorded; 999). Leave empty to treat every value as given.",
+        text="; ".join(current))
+    if not ok:
+        return None
+    return [v.strip() for v in text.split(";") if v.strip()]
+
+
 class Picture(QLabel):
     """A drawn figure that shrinks with the pane (keeping its proportions) and never widens it."""
 
@@ -195,8 +209,15 @@ class DataPane(QWidget):
         ref_label = QLabel("&Reference group:")
         ref_label.setBuddy(self.reference_combo)
         form.addRow(ref_label, self.reference_combo)
+        self.missing_button = QPushButton("Values that mean &missing\u2026")
+        self.missing_button.setAccessibleName("Values of the selected column that mean missing")
+        self.missing_button.setToolTip("Mark values such as 'unknown', 'not recorded', 999 or -1 as missing: "
+                                       "those records are then left out where the column is used, and counted.")
+        self.missing_button.clicked.connect(lambda _=False: self._ask_missing())
+        form.addRow("", self.missing_button)
         b.addLayout(form)
         self.reason = _wrapped("", "Why the column has this role")
+        self.reason.setTextFormat(Qt.TextFormat.PlainText)  # names and values come from the data file
         b.addWidget(self.reason)
         split.addWidget(box)
         split.setStretchFactor(0, 3)
@@ -271,6 +292,16 @@ class DataPane(QWidget):
     def _set_form_enabled(self, on: bool) -> None:
         self.role_combo.setEnabled(on)
         self.reference_combo.setEnabled(on)
+        self.missing_button.setEnabled(on)
+
+    def _ask_missing(self) -> int | None:
+        c = self._column_view(self.selected_column())
+        if c is None:
+            return None
+        values = ask_missing_values(self, c.name, c.missing_values)
+        if values is None or tuple(values) == tuple(c.missing_values):
+            return None
+        return self.session.set_missing(c.name, values)
 
     def _show_selected(self) -> None:
         c = self._column_view(self.selected_column())
@@ -285,6 +316,7 @@ class DataPane(QWidget):
                 self.role_combo.addItem(label, value)
             self.role_combo.setCurrentIndex(max(0, self.role_combo.findData(c.role)))
             self.role_combo.setEnabled(c.name != self.columns_model.outcome)
+            self.missing_button.setEnabled(True)
             if c.is_factor:
                 for raw, label, n in zip(c.levels, c.level_labels, c.counts or [None] * len(c.levels)):
                     self.reference_combo.addItem(f"{label} ({plural(n, 'row')})" if n is not None else label, raw)
@@ -298,6 +330,8 @@ class DataPane(QWidget):
             else:
                 suggested = ROLE_LABELS.get(c.inferred_role, c.inferred_role)
                 why = f"'{c.name}' is used as {c.role_label} (your choice; Twofold suggested {suggested})."
+            if c.missing_values:
+                why += " Counted as missing: " + ", ".join(repr(v) for v in c.missing_values) + "."
             self.reason.setText(why)
 
     def _role_chosen(self, i: int) -> None:
@@ -519,9 +553,16 @@ class ModelPane(QWidget):
         with QSignalBlocker(self.outcome_combo):
             self.outcome_combo.clear()
             self.outcome_combo.addItem("Choose the outcome\u2026", None)
+            items = self.outcome_combo.model()
             for c in view.columns:
                 kind = "2 values" if c.n_levels == 2 else f"{c.n_levels:,} values"
                 self.outcome_combo.addItem(f"{c.name} ({kind})", c.name)
+                if c.outcome_refusal and c.name != self.outcome:
+                    # Shown, so the user sees it was considered, but not offered: with the reason.
+                    item = items.item(self.outcome_combo.count() - 1)
+                    item.setEnabled(False)
+                    item.setText(f"{c.name} \u2014 not an outcome: {c.outcome_refusal}")
+                    item.setToolTip(f"'{c.name}' cannot be the outcome: {c.outcome_refusal}.")
             self.outcome_combo.setCurrentIndex(max(0, self.outcome_combo.findData(self.outcome)))
         ticked = set(self.ticked_predictors()) if keep else set()
         with QSignalBlocker(self.list):

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 
+from twofold.core.data.checks import outcome_refusal
 from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.models.terms import TIMES, value_text
 from twofold.core.outputs.text import (
@@ -73,7 +74,8 @@ def column_views(study) -> tuple:
             counts=tuple(info.counts) if factor else (),
             reference=reference, reference_label=value_label(reference) if reference is not None else "",
             is_factor=factor, reason=info.reason, role_choices=_role_choices(info),
-            spline_knots=study.splines.get(name),
+            spline_knots=study.splines.get(name), missing_values=tuple(study.missing_values.get(name, ())),
+            outcome_refusal=outcome_refusal(info) or "",
         ))
     return tuple(out)
 

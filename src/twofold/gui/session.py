@@ -198,6 +198,17 @@ class Session(QObject):
 
         return self._submit("role", job, facets=("columns", "results", "comparison"), on_error=self._snapshot_all)
 
+    def set_missing(self, column: str, values) -> int:
+        """Treat these values of a column as missing and refit what uses it; returns the id."""
+        values = tuple(values)
+
+        def job():
+            self.workspace.set_missing(column, values)
+            return self._views(("columns", "outcome", "results"), comparison=None)
+
+        return self._submit("missing", job, facets=("columns", "outcome", "results", "comparison"),
+                            on_error=self._snapshot_all)
+
     def set_reference(self, column: str, level) -> int:
         """Change a factor's reference level and refit the ladder; returns the id."""
         def job():

@@ -56,6 +56,10 @@ class ColumnView:
     is_factor: bool = False
     reason: str = ""
     role_choices: tuple = ()
+    #: Values the user marked as meaning "missing" in this column.
+    missing_values: tuple = ()
+    #: Why the column cannot be the outcome ("" when it can).
+    outcome_refusal: str = ""
     #: Knots of the curved (spline) effect chosen for this column; None for a straight line.
     spline_knots: int | None = None
 

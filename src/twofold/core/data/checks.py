@@ -40,6 +40,25 @@ def _same_number(a, b) -> bool:
         return False
 
 
+def outcome_refusal(info) -> str | None:
+    """Why a column cannot be the outcome (one short reason), or None when it can.
+
+    An outcome has exactly two values (missing cells aside) and is not an
+    identifier or a date.
+    """
+    role = getattr(info.role, "value", info.role)
+    if role in ("identifier", "date"):
+        return f"it is {'an identifier' if role == 'identifier' else 'a date'}, not a yes/no result"
+    if info.n_levels == 2:
+        return None
+    if info.n_levels < 2:
+        return "it has fewer than two values"
+    if info.n_levels <= 5:
+        return (f"it has {info.n_levels} values, an outcome needs two (mark values such as 'unknown' as "
+                "missing first)")
+    return f"it has {info.n_levels:,} values, an outcome needs two"
+
+
 def outcome_levels(series, name: str, source: str | None = None) -> list:
     """The two distinct non-missing values of an outcome column, most frequent first.
 

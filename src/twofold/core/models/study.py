@@ -19,7 +19,7 @@ from twofold.core.errors import ColumnError, ModelError, Notice
 from twofold.core.events import Event
 from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, fit_logistic, nested_test
 from twofold.core.data.io import LoadedTable, read_table
-from twofold.core.data.roles import ColumnInfo, Role, default_event, describe_columns
+from twofold.core.data.roles import ColumnInfo, Role, default_event, describe_column, describe_columns
 from twofold.core.data.checks import match_event, outcome_levels, outcome_vector, require_column
 
 
@@ -64,6 +64,8 @@ class Study:
         self.outcome_levels: list = []
         self._y_all: np.ndarray | None = None
         self.events = SimpleNamespace(roles=Event("roles"), outcome=Event("outcome"))
+        #: Values the user marked as meaning "missing", per column (as typed).
+        self._missing: dict[str, tuple] = {}
 
     @classmethod
     def from_file(cls, path, sheet: str | None = None) -> "Study":
@@ -125,6 +127,47 @@ class Study:
         self.block(name)  # check the level now, so a bad one is reported here
         self.events.roles.emit(name)
 
+    @property
+    def missing_values(self) -> dict[str, tuple]:
+        """Values marked as meaning "missing", per column (as the user gave them)."""
+        return dict(self._missing)
+
+    def set_missing(self, name: str, values) -> None:
+        """Treat these values of a column as missing ("unknown", "not recorded", 999, -1); () undoes it.
+
+        A cell matches a value when both read as the same number, or as the
+        same text ignoring case and surrounding spaces.  A text column whose
+        other cells are all numbers becomes a numeric column.  The file is
+        never changed: the study keeps its own copy of the column.
+        """
+        import pandas as pd
+
+        name = self.column(name)
+        values = tuple(dict.fromkeys(str(v).strip() for v in values if str(v).strip()))
+        original = self.table.frame[name]
+        series = original
+        if values:
+            series = original.mask(_matches(original, values))
+            if not pd.api.types.is_numeric_dtype(series):
+                numbers = pd.to_numeric(series.astype(object), errors="coerce")
+                if int(numbers.isna().sum()) == int(series.isna().sum()):
+                    series = numbers
+        if series.notna().sum() == 0:
+            raise ColumnError(f"Every cell of '{name}' would then be missing; check the values to treat as missing.")
+        if self.frame is self.table.frame:
+            self.frame = self.frame.copy(deep=False)  # the file's own table is never changed
+        self.frame[name] = series
+        info = describe_column(name, series)
+        self._columns[name] = info
+        if values:
+            self._missing[name] = values
+        else:
+            self._missing.pop(name, None)
+        self._forget(name)
+        if name == self.outcome:
+            self.set_outcome(name, self.event, guess=False)
+        self.events.roles.emit(name)
+
     def reference(self, name: str):
         """The reference level in force for a factor column (None for numeric)."""
         block = self.block(name)
@@ -138,20 +181,24 @@ class Study:
         self._aliased = {k: v for k, v in self._aliased.items() if not any(touches(t) for t in k[0])}
 
     def settings(self) -> dict:
-        """The user's choices on this study (roles, references, curves, outcome and event), to restore later."""
+        """The user's choices on this study (roles, references, curves, missing values, outcome, event), to restore."""
         return {"columns": dict(self._columns), "references": dict(self._references),
-                "splines": dict(self._splines), "outcome": self.outcome, "event": self.event}
+                "splines": dict(self._splines), "outcome": self.outcome, "event": self.event,
+                "missing": dict(self._missing), "frame": self.frame}
 
     def restore_settings(self, settings: dict) -> None:
         """Put back choices taken by :meth:`settings` (undo); cached encodings are rebuilt as needed."""
         self._columns = dict(settings["columns"])
         self._references = dict(settings["references"])
         self._splines = dict(settings["splines"])
+        frame_changed = settings.get("frame", self.frame) is not self.frame
+        self._missing = dict(settings.get("missing", {}))
+        self.frame = settings.get("frame", self.frame)
         self._blocks.clear()
         self._aliased.clear()
         if settings["outcome"] is None:
             self.outcome, self.event, self.outcome_levels, self._y_all = None, None, [], None
-        elif (settings["outcome"], settings["event"]) != (self.outcome, self.event):
+        elif frame_changed or (settings["outcome"], settings["event"]) != (self.outcome, self.event):
             self.set_outcome(settings["outcome"], settings["event"], guess=False)
         self.events.roles.emit(None)
         self.events.outcome.emit(self.outcome)
@@ -370,6 +417,24 @@ class DropOneTest:
         out["includes"] = list(self.includes)
         out["label"] = self.label
         return out
+
+
+def _matches(series, values) -> "pd.Series":
+    """True where a cell equals one of ``values``: the same number, or the same text ignoring case and spaces."""
+    import pandas as pd
+
+    numbers = []
+    for v in values:
+        try:
+            numbers.append(float(v.replace(",", ".")) if v.count(",") == 1 and "." not in v else float(v))
+        except ValueError:
+            pass
+    texts = {v.casefold() for v in values}
+    hit = series.astype("string").str.strip().str.casefold().isin(texts).fillna(False).astype(bool)
+    if numbers:
+        as_number = pd.to_numeric(series, errors="coerce")
+        hit |= as_number.isin(numbers).fillna(False).astype(bool)
+    return hit
 
 
 def drop_one_tests(study: Study, fit: LogisticFit) -> list[DropOneTest]:

@@ -123,7 +123,7 @@ KEYS = ("format", "schema_version", "saved_by", "saved_at",
         *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model",
         "report", "parents", "validation_result")
 #: Fields added after version 1 was first written, with what a file without them means.
-LATER_DEFAULTS = {"parents": None, "validation_result": None}
+LATER_DEFAULTS = {"parents": None, "validation_result": None, "missing": {}}
 #: The report's options and what a session without them means.
 REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False}
 TERM_KEYS = ("column", "kind", "levels", "reference", "range", "knots", "of")
@@ -557,8 +557,14 @@ def validate_session(session, path=None) -> dict:
     c.fields(report, REPORT_DEFAULTS, "the report options have", "the report option '{}' is missing")
     c.integer(report["suppress_up_to"], "suppress_up_to", 1, MAX_THRESHOLD)
     c.boolean(report["list_records"], "list_records")
+    missing = c.obj(session["missing"], "missing")
+    if len(missing) > MAX_PREDICTORS:
+        c.fail("'missing' names more columns than allowed")
+    for column, values in missing.items():
+        c.name(column, "a column of 'missing'")
+        c.names(values, f"the values that mean missing in {column[:40]!r}", cap=100)
     for key in SPEC_KEYS:
-        if key not in CHECKED_SPEC_KEYS:
+        if key not in CHECKED_SPEC_KEYS + ("missing",):
             _plain_json(c, session[key], key)
     ladder = session["ladder"]
     if not isinstance(ladder, list):
