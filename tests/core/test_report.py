@@ -147,7 +147,7 @@ def test_figures_match_outside_references(result, written):
     glm = sm.GLM(result.fit.design.y, design, family=sm.families.Binomial()).fit()
     cooks = glm.get_influence().cooks_distance[0]
     above = int(np.sum(cooks > 4 / len(cooks)))
-    assert f"{above:,} of {len(cooks):,}" in html
+    assert f"{above:,} of the {len(cooks):,} records" in html
     assert "row of the data file" not in html  # no record numbers unless asked
 
 
@@ -156,7 +156,7 @@ def test_contents_a_committee_needs(result, written):
     for needle in ("Models tried", "The chosen model", "odds ratio", "95% interval", "by construction",
                    "Hosmer-Lemeshow test", "Hosmer &amp; Lemeshow 1980", "DeLong et al. (1988)",
                    "Van Calster et al. 2016", "Peduzzi et al. (1996)", "Riley et al. (2020)", "statsmodels",
-                   "Cook&#x27;s distance above 4/n", "Warnings", "lives_alone", "suppressed",
+                   "Cook&#x27;s distance is above 4/n", "Warnings", "lives_alone", "suppressed",
                    "Centers for Medicare &amp; Medicaid Services"):
         assert needle in html, needle
     assert html.count("These figures describe statistical associations") == 2  # top and bottom
