@@ -243,3 +243,57 @@ def test_rows_left_out_for_other_columns_are_explained():
                      and "rows missing it" in b.headers[1])
     assert ["lives_alone", f"{missing:,}"] in by_column.rows
     assert f"{missing:,} rows were left out" in text and "outside the rows compared" not in text
+
+
+def _table(rep, first_header, second=None):
+    return next(b for b in rep.blocks if isinstance(b, Table) and b.headers[0] == first_header
+                and (second is None or b.headers[1] == second))
+
+
+def test_a_small_groups_coefficients_are_withheld_and_said_so(rare):
+    # ESSnet output-checking rule (Eurostat 2015, common practice): no coefficient of a group below the limit.
+    rep = build_report(rare)
+    coef = _table(rep, "predictor", "group")
+    rows = {r[0]: r for r in coef.rows}
+    assert rows["ward"][1:3] == ["all its groups", "withheld"] and len([r for r in coef.rows if r[0] == "ward"]) == 1
+    # The measured predictor keeps its figures: statsmodels' Logit on the same design gives its odds ratio.
+    X = rare.fit.design.X
+    ref = sm.Logit(rare.fit.design.y, X).fit(disp=0)
+    assert rows["age"][2] == f"{np.exp(ref.params[1]):.3f}"
+    text = rep.text()
+    assert "What this report leaves out" in text and "'ward' (and of any interaction with it)" in text
+    assert f"{np.exp(ref.params[2]):.3f}" not in text and f"{np.exp(ref.params[3]):.3f}" not in text
+    # No ward row in the joint Wald tests either.
+    assert not any(isinstance(b, Table) and b.headers[0].startswith("predictor (all") and
+                   any(r[0] == "ward" for r in b.rows) for b in rep.blocks)
+
+
+def test_warnings_come_before_the_results_and_profile_intervals_are_explained():
+    res = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes",
+                                    predictors=["age", "wound_class"], profile_ci=True))
+    rep = build_report(res, suppress_below=0)  # suppression off: every figure is printed
+    headings = [b.text for b in rep.blocks if hasattr(b, "level")]
+    assert headings.index("Warnings") < headings.index("The records") < headings.index("The chosen model")
+    first = next(b for b in rep.blocks if getattr(b, "style", None) == "warning")
+    assert any("separat" in item for item in first.items)
+    coef = _table(rep, "predictor", "group")
+    assert "95% profile-likelihood interval" in coef.headers and "95% Wald interval" in coef.headers
+    assert "always when a predictor separates the outcome, use the profile-likelihood interval" in coef.caption
+
+
+def test_small_study_calibration_shows_mean_risks_and_plain_counts():
+    res = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes", predictors=["age", "bmi"]))
+    rep = build_report(res)
+    cal = _table(rep, "risk group")
+    groups = res.assessment.groups
+    # The mean predicted risk is an average of predictions, not a count: shown for every group, and it is the
+    # plain mean of the fitted probabilities within the group (numpy on statsmodels' fitted values).
+    assert [r[2] for r in cal.rows[:-1]] == [f"{m:.3f}" for m in groups.mean_predicted]
+    p = sm.Logit(res.fit.design.y, res.fit.design.X).fit(disp=0).predict()
+    order = np.sort(p)
+    assert float(groups.mean_predicted[0]) == pytest.approx(order[: int(groups.n[0])].mean(), rel=1e-6)
+    assert any(r[3] == SUPPRESSED for r in cal.rows[:-1])
+    text = rep.text()
+    assert "Hosmer-Lemeshow test is withheld" in text
+    assert "suppressed of" not in text
+    assert re.search(r"Cook's distance is above 4/n = [0-9.]+ .*: (1 to 10|[0-9,]+) of the 120 records", text)

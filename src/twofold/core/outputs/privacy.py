@@ -329,8 +329,10 @@ class ModelCheck:
     Attributes
     ----------
     withheld : dict
-        Predictor name -> why every figure of it (coefficients, odds ratios,
-        intervals, standard errors, its tests) is withheld.
+        Predictor name -> why its coefficient figures (coefficients, odds
+        ratios, intervals, standard errors, Wald tests) are withheld.
+        Likelihood-ratio tests compare whole models and follow
+        ``whole_model`` of the models they compare.
     whole_model : str or None
         Why every figure of the model (coefficients, fit statistics, tests,
         assessment) is withheld, or None when they may be shown.
@@ -351,7 +353,7 @@ class ModelCheck:
 #: The reason given for a predictor whose groups disclose.
 GROUP_REASON = ("one or more of its groups holds 1 to {t} people, or 1 to {t} with or without the event, or "
                 "people who all had the same outcome; its coefficients, odds ratios, intervals, standard errors "
-                "and tests would reveal those counts")
+                "and Wald tests would reveal those counts")
 
 
 def check_model(groups: dict, patterns, n_used: int, n_params: int,

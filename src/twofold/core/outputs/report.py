@@ -172,6 +172,7 @@ READING_WORDS = {
     "decimal_comma": "Numbers written with a decimal comma were read as numbers with decimals{of}.",
     "infinite": "Infinite values were read as missing{of}.",
     "bool_missing": "TRUE/FALSE values with some cells empty were read as 1 and 0{of}.",
+    "numbers_as_text": "Numbers stored as text were read as numbers{of}.",
 }
 
 
@@ -395,6 +396,11 @@ def _notice_fields(n) -> tuple[str, str, tuple]:
     return n.code, n.message, tuple(getattr(n, "subjects", ()))
 
 
+def _how_many(count: int, threshold: int) -> str:
+    """A count in a sentence: the number, or "1 to N" when it is small enough to be suppressed."""
+    return f"1 to {threshold}" if is_small(count, threshold) else f"{int(count):,}"
+
+
 def _quoted(columns) -> str:
     return ", ".join(f"'{c}'" for c in columns)
 
@@ -422,11 +428,11 @@ def report_notices(notices, record: dict, threshold: int, check=None, reading_co
                 msg = ("The rows compared changed because of missing values in a newly used predictor; every model "
                        "tried was refitted on the new common rows so that their tests stay valid.")
             else:
-                parts = [f"{show_count(record['rows_missing_outcome'], threshold)} with no outcome"] \
+                parts = [f"{_how_many(record['rows_missing_outcome'], threshold)} with no outcome"] \
                     if record["rows_missing_outcome"] else []
-                parts += [f"{show_count(k, threshold)} missing '{c}'"
+                parts += [f"{_how_many(k, threshold)} missing '{c}'"
                           for c, k in record["missing_by_column"].items() if k]
-                msg = (f"{show_count(left, threshold)} rows were left out ({'; '.join(parts) or 'missing values'}); "
+                msg = (f"{_how_many(left, threshold)} rows were left out ({'; '.join(parts) or 'missing values'}); "
                        "results describe the complete rows only.")
         elif code in reading_codes or code in READING_WORDS or code not in MODEL_CODES:
             cols = [s for s in subjects if isinstance(s, str)]
@@ -547,7 +553,7 @@ def _withheld_row(column: str, width: int) -> list[str]:
     return [column, "all its groups", WITHHELD] + [""] * (width - 3)
 
 
-def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozenset()) -> None:
+def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozenset(), smaller_check=None) -> None:
     rep.add(Heading("The chosen model"))
     method = record.get("method", "maximum likelihood")
     preds = ", ".join(record["predictors"]) or "no predictors"
@@ -609,10 +615,12 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
                       [[t["column"], fmt_num(t["statistic"], 2), str(t["df"]), fmt_p(t["p_value"])]
                        for t in tests]))
     a = record.get("assessment") or {}
-    drop = [t for t in a.get("drop_one") or [] if not _involves(t["column"], withheld)]
+    drop = a.get("drop_one") or []
     if drop:
-        rows = [[t["column"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"]), fmt_num(t["wald"], 2),
-                 fmt_p(t["wald_p_value"]), "yes" if t["prefer_lr"] else ""] for t in drop]
+        rows = [[t["column"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                + ([WITHHELD, WITHHELD, ""] if _involves(t["column"], withheld) else
+                   [fmt_num(t["wald"], 2), fmt_p(t["wald_p_value"]), "yes" if t["prefer_lr"] else ""])
+                for t in drop]
         rep.add(Table(["predictor", "likelihood-ratio G", "degrees of freedom", "p-value", "Wald chi-square",
                        "p-value", "report the likelihood-ratio test"], rows,
                       caption="Each predictor tested by refitting without it on the same rows, beside its Wald "
@@ -633,9 +641,10 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     nested = record.get("nested")
     if nested:
         smaller = ", ".join(nested["smaller_predictors"]) or "no predictors"
-        if any(_involves(c, withheld) for c in nested.get("added", [])):
-            rep.add(Para(f"The test of the smaller model ({smaller}) against this one is withheld, since it tests "
-                         f"a predictor whose figures are withheld ({SEE_PRIVACY}).", "note"))
+        if smaller_check is not None and smaller_check.whole_model is not None:
+            rep.add(Para(f"The test of the smaller model ({smaller}) against this one is withheld: with this "
+                         "model's log-likelihood it would give the smaller model's, whose figures would reveal "
+                         f"small groups ({SEE_PRIVACY}).", "note"))
         else:
             rep.add(Para(f"Smaller model ({smaller}) against this one on the same {nested['rows']:,} rows: "
                          f"likelihood-ratio G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
@@ -658,11 +667,10 @@ def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False
             hidden.append(str(k + 1))
         test = ""
         if t is not None:
+            # A likelihood-ratio test is a difference of the two models' log-likelihoods: it is withheld
+            # with either model's figures (a predictor's coefficients being withheld does not hide it).
             before = checks[rung.previous] if rung.previous is not None else None
-            changed = list(rung.added) + list(rung.removed)
-            blocked = own or (before is not None and before.whole_model is not None) or any(
-                _involves(c, checks[k].withheld) or (before is not None and _involves(c, before.withheld))
-                for c in changed)
+            blocked = own or (before is not None and before.whole_model is not None)
             test = WITHHELD if blocked else f"G = {fmt_num(t.g, 2)}, {t.df} df, p-value {fmt_p(t.p_value)}"
         rows.append([
             f"{k + 1}{' (chosen)' if k == ladder.current else ''}", ", ".join(rung.predictors) or "none",
@@ -841,11 +849,8 @@ def _influence_section(rep: Report, assessment, record: dict, threshold: int, in
     cut = COOKS_RULE / n if n else float("nan")
     above = int(np.sum(d > cut))
     largest = float(np.nanmax(d)) if n and np.isfinite(d).any() else float("nan")
-    if is_small(above, threshold):
-        how_many = (f"between 1 and {threshold} of the {n:,} records (the exact number is not shown because it "
-                    "is small)")
-    else:
-        how_many = f"{above:,} of the {n:,} records"
+    how_many = f"{_how_many(above, threshold)} of the {n:,} records" + (
+        " (the exact number is not shown because it is small)" if is_small(above, threshold) else "")
     rep.add(Para(f"Records whose Cook's distance is above 4/n = {fmt_num(cut, 5)} (a rule of thumb, common "
                  f"practice; Cook 1977): {how_many}. The largest Cook's distance is {fmt_num(largest, 4)}. "
                  "Records above the rule are worth checking for data errors; they are not to be removed for "
@@ -932,7 +937,7 @@ MODEL_RULES_NOTE = (
     "the outcome of every member, so that zero is suppressed with its complement too. Model figures are checked "
     "as the ESSnet guidelines for output checking (Eurostat 2015) advise for regression results: a predictor "
     "whose groups hold 1 to {t} people, 1 to {t} with or without the event, or people who all had the same "
-    "outcome has its coefficients, odds ratios, intervals, standard errors and tests withheld; a model whose "
+    "outcome has its coefficients, odds ratios, intervals, standard errors and Wald tests withheld; a model whose "
     "predictors are all groupings is a table in disguise, and its figures are shown only when every combination "
     "of its groups could be shown; a model with fewer than {df} records beyond one per coefficient is not "
     "described."
@@ -1035,7 +1040,7 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         withheld_notes.append(f"Every figure of the chosen model, because {check.whole_model}.")
     for column, reason in check.withheld.items():
         if check.whole_model is None:
-            withheld_notes.append(f"The coefficients, odds ratios, intervals, standard errors and tests of "
+            withheld_notes.append(f"The coefficients, odds ratios, intervals, standard errors and Wald tests of "
                                   f"'{column}' (and of any interaction with it), because {reason}.")
     if nameless:
         withheld_notes.append(f"The names of the groups of {_quoted(sorted(nameless))}, because their values "
@@ -1046,7 +1051,12 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
             withheld_notes.append(f"The AIC, BIC and tests of model{'s' if len(hidden) > 1 else ''} "
                                   f"{', '.join(hidden)} of the models tried, whose predictors are all groupings "
                                   "with some combination of groups too small to show.")
-    _coefficient_section(rep, record, fit, check, nameless)
+    smaller = getattr(result, "smaller_fit", None)
+    smaller_check = model_check(smaller.design, threshold) if smaller is not None else None
+    if smaller_check is not None and smaller_check.whole_model is not None:
+        withheld_notes.append("The likelihood-ratio test against the smaller model, whose predictors are all "
+                              "groupings with some combination of groups too small to show.")
+    _coefficient_section(rep, record, fit, check, nameless, smaller_check)
     if a:
         _assessment_section(rep, a, result.assessment, record, threshold, False, include_records, check,
                             withheld_notes)
