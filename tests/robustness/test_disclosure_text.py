@@ -87,3 +87,21 @@ def test_the_privacy_statement_is_checked(messy):
     rep = build_report(result, details={"title": f"Deaths, including {TITLE_ID}", "authors": "", "question": ""})
     assert TITLE_ID not in rep.text() and REDACTED in rep.title
     assert "was replaced by" in rep.text()
+
+
+def test_large_date_groups_are_numbered_not_named(tmp_path):
+    # Four admission dates of 100 records each: no group is small, so the coefficients are shown, by number.
+    rng = np.random.default_rng(8)
+    dates = np.repeat(["2024-02-01", "2024-02-02", "2024-02-03", "2024-02-04"], 100)
+    age = rng.normal(60, 10, 400).round()
+    y = (rng.random(400) < 0.35).astype(int)
+    path = tmp_path / "dates.csv"
+    pd.DataFrame({"admitted": dates, "age": age, "died": y}).to_csv(path, index=False)
+    result = run_analysis(
+        AnalysisSpec(data=str(path), outcome="died", predictors=["age", "admitted"], roles={"admitted": "categorical"}))
+    rep = build_report(result)
+    text = rep.text()
+    assert not any(d in text for d in set(dates))
+    groups = [r[1] for b in rep.blocks if getattr(b, "headers", [None])[:2] == ["predictor", "group"]
+              for r in b.rows if r[0] == "admitted"]
+    assert groups == [f"group {k} (compared with group 1; groups not named)" for k in (2, 3, 4)]

@@ -578,7 +578,7 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     headers = ["predictor", "group", "odds ratio", "95% Wald interval"] \
         + (["95% profile-likelihood interval"] if profile else []) \
         + ["p-value", "Wald z", "coefficient", "standard error"]
-    rows, done = [], set()
+    rows, done, numbered = [], set(), {}
     for t in record["terms"]:
         if _involves(t["column"], withheld):
             if t["column"] not in done:
@@ -586,6 +586,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
                 done.add(t["column"])
             continue
         col, group = _label(t, nameless)
+        if col in nameless and t.get("level") is not None:
+            numbered[col] = numbered.get(col, 1) + 1
+            group = f"group {numbered[col]} (compared with group 1; groups not named)"
         row = [col, group, fmt_or(t["odds_ratio"]), _ci(t["or_ci_low"], t["or_ci_high"])]
         if profile:
             row.append(_ci(t.get("or_pl_low"), t.get("or_pl_high")))
