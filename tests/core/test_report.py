@@ -279,6 +279,12 @@ def test_warnings_come_before_the_results_and_profile_intervals_are_explained():
     coef = _table(rep, "predictor", "group")
     assert "95% profile-likelihood interval" in coef.headers and "95% Wald interval" in coef.headers
     assert "always when a predictor separates the outcome, use the profile-likelihood interval" in coef.caption
+    # With the default limit wound_class's figures are withheld (its 'contaminated' group all had the event),
+    # but the separation warning still comes first: it names the predictor, not the group.
+    rep = build_report(res)
+    first = next(b for b in rep.blocks if getattr(b, "style", None) == "warning")
+    assert any("'wound_class'" in item and "separat" in item for item in first.items)
+    assert [r for r in _table(rep, "predictor", "group").rows if r[0] == "wound_class"][0][2] == "withheld"
 
 
 def test_small_study_calibration_shows_mean_risks_and_plain_counts():

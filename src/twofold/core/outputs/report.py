@@ -446,7 +446,9 @@ def report_notices(notices, record: dict, threshold: int, check=None, reading_co
         elif whole and code != "few_events":
             left_out = True
             continue
-        elif any(_involves(s, withheld) for s in subjects):
+        elif code != "separation" and any(_involves(s, withheld) for s in subjects):
+            # Separation is said even of a withheld predictor: a reader must know the model has it, and it
+            # names no group.
             left_out = True
             continue
         else:
@@ -696,14 +698,17 @@ def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False
 def _calibration_groups(rep: Report, groups, threshold: int) -> bool:
     """The risk-group table and plot; True when some group's counts are suppressed.
 
-    Counts of people pass the suppression (with complements); the observed
+    Counts of people pass the suppression (with complements, and a zero
+    beside a group's count hidden too); the observed
     share and its interval reveal a group's count with its size, so they go
     with it; the mean predicted risk is an average of the model's
     predictions, not a count, and is always shown.
     """
     ev = np.rint(np.asarray(groups.observed) * np.asarray(groups.n)).astype(int)
     counts = np.column_stack([ev, np.asarray(groups.n) - ev])
-    prot = protect_table(counts, threshold)
+    # A risk group in which everyone had the same outcome is as telling as a predictor's group: the people of
+    # the highest risk group are those with the traits the model weighs most.
+    prot = protect_table(counts, threshold, zeros_disclose=True)
     shown = prot.as_text()
     rows, keep = [], []
     for g in range(len(ev)):
@@ -936,8 +941,9 @@ def _closing(rep: Report, record: dict, threshold: int, withheld: list[str]) -> 
 
 #: How model figures are checked, as the privacy section says it.
 MODEL_RULES_NOTE = (
-    "A row of a table of groups in which everyone had the same outcome (a zero beside the group's count) tells "
-    "the outcome of every member, so that zero is suppressed with its complement too. Model figures are checked "
+    "A row of a table of groups (a predictor's groups, or groups of predicted risk) in which everyone had the same "
+    "outcome (a zero beside the group's count) tells the outcome of every member, so that zero is suppressed "
+    "with its complement too. Model figures are checked "
     "as the ESSnet guidelines for output checking (Eurostat 2015) advise for regression results: a predictor "
     "whose groups hold 1 to {t} people, 1 to {t} with or without the event, or people who all had the same "
     "outcome has its coefficients, odds ratios, intervals, standard errors and Wald tests withheld; a model whose "
