@@ -26,6 +26,8 @@ import pandas as pd
 import pytest
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
+from twofold.core.outputs.predict import evaluate_frozen
+from twofold.core.outputs.session import frozen_from_session, session_from_result
 from twofold.core.outputs import report as report_module
 from twofold.core.outputs.privacy import SUPPRESSED, ModelCheck
 from twofold.core.outputs.report import Figure, Para, Table, build_report
@@ -61,6 +63,10 @@ def _group_table(rep) -> Table:
 def _report(folder, counts, labels, spec_extra):
     path = folder / "cohort.csv"
     _write(path, counts, labels)
+    frozen = spec_extra.get("frozen")
+    if frozen is not None:
+        # A saved model applied unchanged to this cohort: only its performance here is reported.
+        return build_report(evaluate_frozen(frozen, path, threshold=0.4))
     result = run_analysis(AnalysisSpec(data=str(path), outcome="died", predictors=["grp"], **spec_extra))
     return build_report(result, ladder=[["grp"]])
 
@@ -137,3 +143,39 @@ def test_the_attacker_has_teeth_without_the_model_check(tmp_path, monkeypatch):
     possible = attack(tmp_path, [(30, 40), (2, 25)], ["a", "b"])
     assert possible and all(len(v) == 1 for v in possible.values())
     assert possible[(1, 0)] == {2}
+
+
+
+def _frozen_attack(folder, frozen, sizes, events):
+    """The events of group b that agree with a saved model's report, for an attacker who even knows each
+    group's size (a frozen report prints no table of groups) and reads the events total the report prints."""
+    true = _published(_report(folder, [(events[0], sizes[0] - events[0]), (events[1], sizes[1] - events[1])],
+                              ["a", "b"], {"frozen": frozen}))
+    total = sum(events)
+    found = set()
+    for eb in range(0, sizes[1] + 1):
+        ea = total - eb
+        if not 0 <= ea <= sizes[0]:
+            continue
+        rep = _report(folder, [(ea, sizes[0] - ea), (eb, sizes[1] - eb)], ["a", "b"], {"frozen": frozen})
+        if _published(rep) == true:
+            found.add(eb)
+    return found
+
+
+@pytest.fixture(scope="module")
+def frozen(tmp_path_factory):
+    big = tmp_path_factory.mktemp("big")
+    _write(big / "cohort.csv", [(300, 400), (200, 250)], ["a", "b"])
+    fitted = run_analysis(AnalysisSpec(data=str(big / "cohort.csv"), outcome="died", predictors=["grp"]))
+    return frozen_from_session(session_from_result(fitted))
+
+
+def test_a_saved_model_applied_to_a_small_cohort_gives_nothing_back(tmp_path, frozen, monkeypatch):
+    # The model was fitted on a large cohort (nothing small there); applied unchanged to a cohort whose group b
+    # has 2 events, its assessment there (area under the ROC curve, calibration, risk groups) is worked out
+    # from that cohort's counts alone, so it is held to the same test.
+    assert len(_frozen_attack(tmp_path, frozen, (70, 27), (30, 2))) > 1
+    # Without the check the printed assessment gives the 2 back.
+    monkeypatch.setattr(report_module, "frozen_check", lambda result, threshold=10: ModelCheck({}, None))
+    assert _frozen_attack(tmp_path, frozen, (70, 27), (30, 2)) == {2}

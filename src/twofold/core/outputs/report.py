@@ -269,6 +269,31 @@ def model_check(design, threshold: int = DEFAULT_THRESHOLD):
     return check_model(groups, patterns, len(y), design.X.shape[1], threshold)
 
 
+def frozen_check(result, threshold: int = DEFAULT_THRESHOLD):
+    """Which figures of a saved model applied to new records may be published.
+
+    Nothing is refitted, so only the assessment is printed; it is worked out
+    from each record's predicted risk and outcome.  When the model's
+    predictors are all groupings (or its predicted risks take no more values
+    than two-valued predictors could give), those risks are the combinations
+    of groups, and the assessment is shown only when the table of
+    combinations by outcome could be shown
+    (:func:`twofold.core.outputs.privacy.check_model`).
+    """
+    y = np.asarray(result.y)
+    terms = result.model.terms
+    values, inverse = np.unique(np.round(np.asarray(result.predicted, dtype=float), 12), return_inverse=True)
+    grouped = all(t.kind == "factor" or (t.kind == "interaction" and all(lvl is not None for lvl in t.levels))
+                  for t in terms)
+    patterns = None
+    if grouped or len(values) <= 2 ** len(terms):
+        inverse = np.asarray(inverse).ravel()
+        events = np.bincount(inverse, weights=y, minlength=len(values)).astype(int)
+        people = np.bincount(inverse, minlength=len(values))
+        patterns = list(zip(events.tolist(), (people - events).tolist()))
+    return check_model({}, patterns, len(y), 1, threshold)
+
+
 def _involves(name: str, withheld) -> bool:
     """A predictor or interaction ("A:B") is withheld when it, or either predictor it multiplies, is."""
     return name in withheld or any(part in withheld for part in str(name).split(":"))
@@ -1023,14 +1048,17 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
     a = record.get("assessment") or {}
     withheld_notes: list[str] = []
     if frozen:
+        check = frozen_check(result, threshold)
         notices = report_notices(list(result.notices) + list(getattr(result.assessment, "notices", [])),
-                                 record, threshold)
+                                 record, threshold, check)
         _warnings_section(rep, notices)
         preds = ", ".join(record["predictors"]) or "no predictors"
         rep.add(Para(f"The saved model ({record['method']}; predictors: {preds}) was applied without refitting."))
         _data_section(rep, record, threshold, what="saved model")
-        _assessment_section(rep, a, result.assessment, record, threshold, True, include_records,
-                            withheld_notes=withheld_notes)
+        if check.whole_model is not None:
+            withheld_notes.append(f"How the saved model performs on these records, because {check.whole_model}.")
+        _assessment_section(rep, a, result.assessment, record, threshold, True, include_records, check,
+                            withheld_notes)
         _methods(rep, record, True, False, False, False)
         promise = _closing(rep, record, threshold, withheld_notes)
         return _finish(rep, set(), promise)
