@@ -303,3 +303,23 @@ def test_small_study_calibration_shows_mean_risks_and_plain_counts():
     assert "Hosmer-Lemeshow test is withheld" in text
     assert "suppressed of" not in text
     assert re.search(r"Cook's distance is above 4/n = [0-9.]+ .*: (1 to 10|[0-9,]+) of the 120 records", text)
+
+
+def test_a_rare_outcome_is_not_counted_and_its_model_not_described(tmp_path):
+    # Six deaths among 300: the counts of 1 to 10 rule (CMS, common practice) covers the events total too, and
+    # every model figure from the intercept on would give it back.
+    rng = np.random.default_rng(4)
+    age = rng.normal(60, 10, 300).round()
+    died = np.zeros(300, dtype=int)
+    died[rng.choice(300, 6, replace=False)] = 1
+    path = tmp_path / "rare_outcome.csv"
+    pd.DataFrame({"age": age, "died": died}).to_csv(path, index=False)
+    res = run_analysis(AnalysisSpec(data=str(path), outcome="died", predictors=["age"]))
+    assert res.record["events"] == 6 and res.record["events_per_parameter"] == pytest.approx(6.0)
+    rep = build_report(res)
+    rows = dict((r[0], r[1]) for r in _table(rep, "", "count").rows)
+    assert rows["Events among them"] == SUPPRESSED == rows["Non-events among them"]
+    text = re.sub(r"SHA-256 checksum [0-9a-f]+", "", rep.text())
+    assert "The model's figures are withheld" in text and "294" not in text and "2.0%" not in text
+    assert "6.0 of the rarer outcome" not in text and "Only 6.0" not in text
+    assert not any(isinstance(b, Table) and b.headers[:2] == ["predictor", "group"] for b in rep.blocks)

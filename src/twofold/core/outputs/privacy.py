@@ -357,7 +357,7 @@ GROUP_REASON = ("one or more of its groups holds 1 to {t} people, or 1 to {t} wi
 
 
 def check_model(groups: dict, patterns, n_used: int, n_params: int,
-                threshold: int = DEFAULT_THRESHOLD) -> ModelCheck:
+                threshold: int = DEFAULT_THRESHOLD, outcome=None) -> ModelCheck:
     """Decide which figures of a fitted model can be published, following output-checking practice.
 
     The rules follow the ESSnet guidelines for the checking of output based
@@ -383,6 +383,9 @@ def check_model(groups: dict, patterns, n_used: int, n_params: int,
         Records used and coefficients (intercept included).
     threshold : int
         The suppression limit (0: nothing is withheld).
+    outcome : (events, nonevents), optional
+        The records used by outcome: when either is 1 to ``threshold``, every
+        figure of the model (from its intercept on) reveals it.
     """
     if threshold <= 0:
         return ModelCheck({}, None)
@@ -390,7 +393,10 @@ def check_model(groups: dict, patterns, n_used: int, n_params: int,
     withheld = {name: GROUP_REASON.format(t=t) for name, pairs in groups.items()
                 if any(group_discloses(e, ne, t) for e, ne in pairs)}
     whole = None
-    if n_used - n_params < MIN_RESIDUAL_DF:
+    if outcome is not None and (is_small(outcome[0], t) or is_small(outcome[1], t)):
+        whole = (f"only 1 to {t} of the records used had the event, or did not, and every figure of the model "
+                 "(its intercept, fit statistics, tests and assessment) would reveal that number")
+    elif n_used - n_params < MIN_RESIDUAL_DF:
         whole = (f"the model has {n_params} coefficients for {n_used:,} records, fewer than "
                  f"{MIN_RESIDUAL_DF} records beyond one per coefficient (the least the ESSnet guidelines for "
                  "output checking, Eurostat 2015, allow), so its figures come close to describing single records")

@@ -266,7 +266,8 @@ def model_check(design, threshold: int = DEFAULT_THRESHOLD):
         events = np.bincount(inverse, weights=y).astype(int)
         people = np.bincount(inverse)
         patterns = list(zip(events.tolist(), (people - events).tolist()))
-    return check_model(groups, patterns, len(y), design.X.shape[1], threshold)
+    events = int((y == 1).sum())
+    return check_model(groups, patterns, len(y), design.X.shape[1], threshold, (events, len(y) - events))
 
 
 def frozen_check(result, threshold: int = DEFAULT_THRESHOLD):
@@ -291,7 +292,8 @@ def frozen_check(result, threshold: int = DEFAULT_THRESHOLD):
         events = np.bincount(inverse, weights=y, minlength=len(values)).astype(int)
         people = np.bincount(inverse, minlength=len(values))
         patterns = list(zip(events.tolist(), (people - events).tolist()))
-    return check_model({}, patterns, len(y), 1, threshold)
+    events = int((y == 1).sum())
+    return check_model({}, patterns, len(y), 1, threshold, (events, len(y) - events))
 
 
 def _involves(name: str, withheld) -> bool:
@@ -468,7 +470,11 @@ def report_notices(notices, record: dict, threshold: int, check=None, reading_co
                        "quote cells of the data.")
             else:
                 msg = words.format(of=f" in {_quoted(cols)}" if cols else "")
-        elif whole and code != "few_events":
+        elif whole and code == "few_events":
+            msg = ("There are fewer than 10 of the rarer outcome per estimated coefficient (a rule of thumb from "
+                   "Peduzzi et al. 1996): estimates may be unstable and odds ratios exaggerated; consider fewer "
+                   "predictors.")
+        elif whole:
             left_out = True
             continue
         elif code != "separation" and any(_involves(s, withheld) for s in subjects):
@@ -502,13 +508,16 @@ def _data_section(rep: Report, record: dict, threshold: int, what: str = "model"
     read, used = record["rows_read"], record["rows_used"]
     left = read - used
     small_left = is_small(left, threshold)
+    # Events and non-events add up to the rows used: a small one hides the other too.
+    small_outcome = is_small(record["events"], threshold) or is_small(record["nonevents"], threshold)
     rows = [
         ["Rows read from the file", SUPPRESSED if small_left else f"{read:,}"],
         ["Rows without an outcome", show_count(record["rows_missing_outcome"], threshold)],
         ["Rows left out (no outcome, or a predictor missing)", show_count(left, threshold)],
         [f"Rows used by the {what}", f"{used:,}"],
-        ["Events among them", f"{record['events']:,} ({_pct(record['events'], used)})"],
-        ["Non-events among them", f"{record['nonevents']:,} ({_pct(record['nonevents'], used)})"],
+        ["Events among them", SUPPRESSED if small_outcome else f"{record['events']:,} ({_pct(record['events'], used)})"],
+        ["Non-events among them",
+         SUPPRESSED if small_outcome else f"{record['nonevents']:,} ({_pct(record['nonevents'], used)})"],
     ]
     rep.add(Table(["", "count"], rows, "lr"))
     if small_left:
@@ -520,10 +529,10 @@ def _data_section(rep: Report, record: dict, threshold: int, what: str = "model"
                       "A row can miss several predictors, so these can add up to more than the rows left out."))
     else:
         rep.add(Para("No predictor value was missing among the rows with an outcome."))
-    if is_small(record["events"], threshold) or is_small(record["nonevents"], threshold):
-        rep.add(Para(f"The {'events' if is_small(record['events'], threshold) else 'non-events'} number "
-                     f"{threshold} or fewer people; they are shown because no model can be described without "
-                     "them, so check the local rules before sharing this report.", "warning"))
+    if small_outcome:
+        rep.add(Para(f"The {'events' if is_small(record['events'], threshold) else 'non-events'} number 1 to "
+                     f"{threshold} people, so neither count is shown, and the model's figures, which would reveal "
+                     f"them, are withheld ({SEE_PRIVACY}).", "warning"))
 
 
 def _describe_predictors(rep: Report, fit, threshold: int, nameless=frozenset()) -> None:
@@ -571,7 +580,8 @@ def _describe_predictors(rep: Report, fit, threshold: int, nameless=frozenset())
             share = _pct(e, total) if e is not None and total is not None else SUPPRESSED
             rows.append([label, shown[i][0], shown[i][1], shown[i][2], share])
         m = len(labels)
-        rows.append(["all rows used", shown[m][0], shown[m][1], shown[m][2], _pct(counts[:, 0].sum(), counts.sum())])
+        share = _pct(counts[:, 0].sum(), counts.sum()) if prot.col_total(0) is not None else SUPPRESSED
+        rows.append(["all rows used", shown[m][0], shown[m][1], shown[m][2], share])
         rep.add(Table([f"{column}", "events", "non-events", "total", "share with the event"], rows, "lrrrr",
                       f"Rows used by the model, by group of {column} and outcome."))
 
