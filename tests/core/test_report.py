@@ -279,6 +279,14 @@ def test_warnings_come_before_the_results_and_profile_intervals_are_explained():
     coef = _table(rep, "predictor", "group")
     assert "95% profile-likelihood interval" in coef.headers and "95% Wald interval" in coef.headers
     assert "always when a predictor separates the outcome, use the profile-likelihood interval" in coef.caption
+    # Under separation the report gives profile-likelihood intervals even when they were not asked for.
+    plain = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes",
+                                      predictors=["age", "wound_class"]))
+    assert not any("or_pl_low" in t for t in plain.record["terms"])
+    shown = _table(build_report(plain, suppress_below=0), "predictor", "group")
+    assert "95% profile-likelihood interval" in shown.headers
+    assert [r[4] for r in shown.rows] == [r[4] for r in coef.rows]  # the same intervals as when asked for
+    assert not any("or_pl_low" in t for t in plain.record["terms"])  # the record itself is left alone
     # With the default limit wound_class's figures are withheld (its 'contaminated' group all had the event),
     # but the separation warning still comes first: it names the predictor, not the group.
     rep = build_report(res)

@@ -639,7 +639,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     if profile:
         caption += (" Beside the Wald interval stands the profile-likelihood interval, which does not assume the "
                     "estimate's distribution is symmetric; where the two differ, and always when a predictor "
-                    "separates the outcome, use the profile-likelihood interval.")
+                    "separates the outcome, use the profile-likelihood interval. An end shown as 'n/a' is "
+                    "infinite (the likelihood never falls to the cut-off on that side, as under separation) or "
+                    "could not be found.")
     if done:
         caption += f" Rows marked '{WITHHELD}' are left out to protect small groups ({SEE_PRIVACY})."
     if nameless:
@@ -1024,6 +1026,27 @@ def _as_ladder(result, ladder):
     return ladder_from_lists(result.study, ladder, list(result.fit.design.predictors))
 
 
+def _with_profile_under_separation(record: dict, fit, check) -> dict:
+    """The record, with profile-likelihood intervals added when a predictor separates the outcome.
+
+    Under separation the Wald intervals cannot be trusted, so a report gives
+    the profile-likelihood ones beside them even when they were not asked
+    for (the record itself is left as it is).
+    """
+    separated = any(getattr(n, "code", None) == "separation" for n in fit.notices)
+    if not separated or check.whole_model is not None or any("or_pl_low" in t for t in record["terms"]):
+        return record
+    from twofold.core.models.penalised import profile_intervals
+    from twofold.core.outputs.summary import clean_number
+
+    profile = profile_intervals(fit)
+    terms = []
+    for t, row in zip(record["terms"], fit.coefficient_rows[1:]):
+        lo, hi = profile.get(row["name"], (float("nan"), float("nan")))
+        terms.append({**t, "or_pl_low": clean_number(lo), "or_pl_high": clean_number(hi)})
+    return {**record, "terms": terms}
+
+
 def _finish(rep: Report, forbidden: set, promise: Para) -> Report:
     """Check the privacy promise: any text of identifier or date columns still in the report is replaced."""
     if redact(rep, forbidden):
@@ -1074,6 +1097,7 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         return _finish(rep, set(), promise)
     fit = result.fit
     check = model_check(fit.design, threshold)
+    record = _with_profile_under_separation(record, fit, check)
     nameless = nameless_predictors(fit.design, result.study)
     lad = _as_ladder(result, ladder)
     notes = list(fit.notices) + list(getattr(result.assessment, "notices", []) if result.assessment else [])
