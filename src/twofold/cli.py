@@ -15,7 +15,8 @@ import sys
 from pathlib import Path
 
 from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
-    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, suppress_limit,
+    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, report_texts,
+    suppress_limit,
 )
 
 SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
@@ -104,7 +105,8 @@ def run_fit(argv: list[str]) -> int:
             from twofold.commands import write_fit_outputs
 
             write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out,
-                              suppress_up_to=args.suppress_up_to, report_records=args.report_records)
+                              suppress_up_to=args.suppress_up_to, report_records=args.report_records,
+                              report_texts=report_texts(args))
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
         return EXIT_USAGE

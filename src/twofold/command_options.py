@@ -20,8 +20,17 @@ class CommandParser(argparse.ArgumentParser):
         self.exit(EXIT_USAGE, f"twofold: {message} (see 'twofold {self.prog.split()[-1]} --help').\n")
 
 
+#: The report's texts for its first page: option name -> (key of the report options, what it is, example).
+REPORT_TEXT_OPTIONS = {
+    "--report-title": ("title", "the report's title", "'Readmissions after discharge, 2024'"),
+    "--report-authors": ("authors", "who wrote the analysis", "'A. Patel, quality team'"),
+    "--report-question": ("question", "the question the analysis answers",
+                          "'Which patients are readmitted within 30 days?'"),
+}
+
+
 def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
-    """``--suppress-up-to N`` and ``--report-records``, shared by ``fit`` and ``rerun``."""
+    """``--suppress-up-to N``, ``--report-records`` and the report's texts, shared by ``fit`` and ``rerun``."""
     from twofold.core.outputs.privacy import DEFAULT_THRESHOLD
 
     p.add_argument("--suppress-up-to", type=suppress_limit, metavar="N", default=None,
@@ -30,6 +39,29 @@ def add_report_options(p: argparse.ArgumentParser, default_note: str) -> None:
     p.add_argument("--report-records", action=argparse.BooleanOptionalAction, default=None,
                    help="list the most influential records in the report by their row number in the data file "
                         "(row numbers can point back to patients; off unless asked)")
+    for option, (key, what, example) in REPORT_TEXT_OPTIONS.items():
+        p.add_argument(option, type=report_text(key), metavar="TEXT", default=None,
+                       help=f"{what}, printed on the report's first page (for example {example}; {default_note})")
+
+
+def report_text(key: str):
+    """The parser of one report text: one line, at most the length a session keeps."""
+    def parse(text: str) -> str:
+        from twofold.core.outputs.session import REPORT_TEXT_LIMITS
+
+        value = " ".join(text.split())
+        if len(value) > REPORT_TEXT_LIMITS[key]:
+            raise argparse.ArgumentTypeError(f"the report's {key} is {len(value):,} characters long; shorten it to "
+                                             f"at most {REPORT_TEXT_LIMITS[key]:,}")
+        return value
+
+    parse.__name__ = f"report {key}"
+    return parse
+
+
+def report_texts(args) -> dict:
+    """The report texts given on the command line (None where not given), by their key."""
+    return {key: getattr(args, option[2:].replace("-", "_")) for option, (key, _, _) in REPORT_TEXT_OPTIONS.items()}
 
 
 def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) -> None:
@@ -38,8 +70,11 @@ def report_options_need_a_place(p: argparse.ArgumentParser, args, places: dict) 
     ``places`` names ``--report`` and, for ``fit``, ``--session-out`` (the
     session keeps the options for the reports of later re-runs).
     """
+    texts = report_texts(args)
     given = [name for name, value in (("--suppress-up-to", args.suppress_up_to),
-                                      ("--report-records", args.report_records)) if value is not None]
+                                      ("--report-records", args.report_records),
+                                      *((option, texts[key]) for option, (key, _, _) in REPORT_TEXT_OPTIONS.items()))
+             if value is not None]
     if given and not any(places.values()):
         them = "it" if len(given) == 1 else "them"
         nor = (f" (nor --session-out, which keeps {them} for later reports)" if "--session-out" in places else "")

@@ -16,7 +16,8 @@ import os
 import sys
 from pathlib import Path
 
-from twofold.command_options import EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place
+from twofold.command_options import (EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place,
+                                     report_texts)
 
 def _same_file(a, b) -> bool:
     try:
@@ -41,7 +42,7 @@ def _refuse_data_targets(outputs, data, session_file=None) -> None:
 
 
 def write_fit_outputs(result, session=None, report=None, table=None, ladder=None, suppress_up_to=None,
-                      report_records=None) -> list[Path]:
+                      report_records=None, report_texts=None) -> list[Path]:
     """Write the session file, the report and the coefficient table of a fit (each optional).
 
     Parameters
@@ -57,6 +58,9 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
     report_records : bool, optional
         List the most influential records by row number in the report
         (default False); kept in the session too.
+    report_texts : dict, optional
+        ``title``, ``authors`` and ``question`` for the report's first page
+        (None or missing: empty); kept in the session too.
 
     Returns
     -------
@@ -81,7 +85,7 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
                             "end the file name with .csv or .xlsx.")
     from twofold.core.outputs.session import REPORT_DEFAULTS
 
-    options = report_options(REPORT_DEFAULTS, suppress_up_to, report_records)
+    options = report_options(REPORT_DEFAULTS, suppress_up_to, report_records, report_texts)
     written = []
     if session:
         from twofold.core.outputs.session import save_session, session_from_result
@@ -96,14 +100,21 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
         from twofold.render.report_writer import write_report
 
         written.append(write_report(result, report, ladder=ladder, suppress_below=options["suppress_up_to"],
-                                    include_records=options["list_records"]))
+                                    include_records=options["list_records"], details=options))
     return written
 
 
-def report_options(saved: dict, suppress_up_to=None, report_records=None) -> dict:
-    """The report's options: those given (not None) over those ``saved`` (a session's ``report``)."""
-    return {"suppress_up_to": int(saved["suppress_up_to"] if suppress_up_to is None else suppress_up_to),
-            "list_records": bool(saved["list_records"] if report_records is None else report_records)}
+def report_options(saved: dict, suppress_up_to=None, report_records=None, texts=None) -> dict:
+    """The report's options: those given (not None) over those ``saved`` (a session's ``report``).
+
+    ``texts`` holds the report's ``title``, ``authors`` and ``question`` given now (None: the saved one).
+    """
+    texts = texts or {}
+    out = {"suppress_up_to": int(saved["suppress_up_to"] if suppress_up_to is None else suppress_up_to),
+           "list_records": bool(saved["list_records"] if report_records is None else report_records)}
+    for key in ("title", "authors", "question"):
+        out[key] = str(saved.get(key, "") if texts.get(key) is None else texts[key])
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -206,7 +217,7 @@ def _rerun(args):
     from twofold.core.data.io import read_table
 
     session = ses.load_session(args.session)
-    options = report_options(session["report"], args.suppress_up_to, args.report_records)
+    options = report_options(session["report"], args.suppress_up_to, args.report_records, report_texts(args))
     own = args.data is None
     data = Path(session["data"] if own else args.data)
     ses.require_data_file(data)
@@ -240,7 +251,7 @@ def _rerun(args):
 
             if args.report_records:
                 _note("a saved model applied unchanged is not refitted, so its report lists no influential records.")
-            write_report(result, args.report, suppress_below=options["suppress_up_to"])
+            write_report(result, args.report, suppress_below=options["suppress_up_to"], details=options)
         return result.record, result.source
     from twofold.core.analysis import run_analysis
     from twofold.core.models.study import Study
@@ -260,7 +271,7 @@ def _rerun(args):
         parents = session["parents"] if len(rungs) == len(session["ladder"]) else None
         ladder = ses.ladder_from_lists(result.study, rungs, session["predictors"], parents) if len(rungs) > 1 else None
         write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
-                     include_records=options["list_records"])
+                     include_records=options["list_records"], details=options)
     return result.record, result.study.source
 
 

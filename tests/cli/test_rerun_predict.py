@@ -355,21 +355,29 @@ def test_report_records_lists_the_most_influential_rows(tmp_path, capsys):
 def test_report_options_are_saved_and_reused_by_rerun(tmp_path, capsys):
     # Without --report the options go into the session, for the reports of later re-runs.
     code, _, err = run(capsys, main, *WOUND_FIT, "--predictor", "age", "bmi", "diabetes",
-                       "--session-out", tmp_path / "s.json", "--suppress-up-to", "3", "--report-records")
+                       "--session-out", tmp_path / "s.json", "--suppress-up-to", "3", "--report-records",
+                       "--report-title", "Wound  infections, 2024", "--report-authors", "B. Osei",
+                       "--report-question", "Which patients get a wound infection?")
     assert code == 0, err
     session = json.loads((tmp_path / "s.json").read_text())
-    assert session["report"] == {"suppress_up_to": 3, "list_records": True}
+    assert session["report"] == {"suppress_up_to": 3, "list_records": True, "title": "Wound infections, 2024",
+                                 "authors": "B. Osei", "question": "Which patients get a wound infection?"}
     rows, _ = wound_top_influential_rows()
     code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--report", tmp_path / "again.html")
     assert code == 0, err
     html = (tmp_path / "again.html").read_text(encoding="utf-8")
     assert _group_rows(html, "diabetes")["yes"] == ["10", "11", "21"]  # pandas crosstab, as above
+    # The first page: the title typed, the authors and the question, before any result.
+    assert "<h1>Wound infections, 2024</h1>" in html
+    first = html.index("<h2>")
+    assert 0 < html.index("Authors: B. Osei") < first and 0 < html.index("Which patients get a wound") < first
     assert f"<tr><td>{rows[0]}</td>" in html and "row of the data file" in html
     # The rerun's own options win over the session's.
     code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--report", tmp_path / "over.html",
-                       "--suppress-up-to", "10", "--no-report-records")
+                       "--suppress-up-to", "10", "--no-report-records", "--report-title", "March extract")
     assert code == 0, err
     html = (tmp_path / "over.html").read_text(encoding="utf-8")
+    assert "<h1>March extract</h1>" in html and "Authors: B. Osei" in html
     assert _group_rows(html, "diabetes")["yes"][0] == "suppressed" and "row of the data file" not in html
     # A frozen rerun keeps the limit and says that it lists no records.
     code, _, err = run(capsys, outputs.run_rerun, tmp_path / "s.json", "--frozen", "--report", tmp_path / "f.html",
@@ -392,7 +400,8 @@ def test_bad_suppression_limit_is_one_line(tmp_path, capsys, argv, fragment):
 
 
 def test_report_options_without_a_report_are_refused(fitted, tmp_path, capsys):
-    for extra in (["--suppress-up-to", "5"], ["--report-records"], ["--suppress-up-to", "5", "--report-records"]):
+    for extra in (["--suppress-up-to", "5"], ["--report-records"], ["--suppress-up-to", "5", "--report-records"],
+                  ["--report-title", "A title"], ["--report-question", "Why?"]):
         code, err = usage(capsys, main, *WOUND_FIT, "--predictor", "age", *extra)
         assert code == 2 and err.count("\n") == 1 and "only a report" in err and "--session-out" in err, err
         code, err = usage(capsys, outputs.run_rerun, fitted / "s.json", "--json", tmp_path / "r.json", *extra)
@@ -410,6 +419,8 @@ def test_report_options_without_a_report_are_refused(fitted, tmp_path, capsys):
     ({"suppress_up_to": 3, "list_records": "yes"}, "true or false"),
     ({"suppress_up_to": 3}, "'list_records' is missing"),
     ({"suppress_up_to": 3, "list_records": False, "run": "rm"}, "unknown field"),
+    ({"suppress_up_to": 3, "list_records": False, "title": ["x"]}, "'title' should be text"),
+    ({"suppress_up_to": 3, "list_records": False, "question": "q" * 5000}, "more than the 1,000 allowed"),
     ("all", "should be an object"),
 ])
 def test_hostile_report_options_in_a_session_run_nothing(fitted, tmp_path, capsys, report, fragment):

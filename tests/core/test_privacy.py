@@ -15,7 +15,8 @@ import numpy as np
 import pytest
 
 from twofold.core.errors import TwofoldError
-from twofold.core.outputs.privacy import SUPPRESSED, is_small, protect_table, show_count
+from twofold.core.outputs.privacy import (MIN_RESIDUAL_DF, SUPPRESSED, check_model, coarse_roc, group_discloses,
+                                          is_small, protect_table, show_count)
 
 
 def brute_values(values, hidden, shape, row_totals=True, col_totals=True):
@@ -199,3 +200,65 @@ def test_bad_input():
         protect_table([[-1, 2]])
     off = protect_table([[1, 2], [3, 4]], threshold=0)
     assert not off.any_hidden
+
+
+def test_a_zero_beside_a_group_is_hidden_with_a_complement():
+    # "contaminated: 14 events, 0 non-events": everyone in the group had the event. The zero goes, and since
+    # the row total (14) is published, so does the 14 beside it; the columns get complements as usual.
+    counts = np.array([[20, 46], [12, 28], [14, 0]])
+    plain = protect_table(counts)
+    assert not plain.hidden[2, 1]  # zeros alone are shown in an ordinary table
+    prot = protect_table(counts, zeros_disclose=True)
+    assert prot.primary[2, 1] and prot.hidden[2, 0] and prot.row_total(2) == 14
+    assert_protected(prot)
+    # A wholly empty row is no one's outcome: its zeros stay.
+    assert not protect_table([[20, 46], [0, 0], [30, 30]], zeros_disclose=True).any_hidden
+
+
+def test_groups_that_disclose():
+    # Small counts as the table rule (1-10), a small group, or a group that all had one outcome.
+    assert group_discloses(3, 40) and group_discloses(40, 10) and group_discloses(14, 0) and group_discloses(0, 30)
+    assert not group_discloses(11, 11) and not group_discloses(0, 0)
+    assert not group_discloses(3, 40, threshold=0)
+
+
+def test_model_check_follows_output_checking_rules():
+    # ESSnet guidelines for output checking (Eurostat 2015), rules as summarised in the module (common practice):
+    # (a) a predictor with a disclosing group has its coefficients withheld;
+    check = check_model({"ward": [(40, 60), (2, 5)], "sex": [(30, 40), (12, 25)]}, None, 107, 4)
+    assert set(check.withheld) == {"ward"} and check.whole_model is None
+    assert check.shows("sex") and not check.shows("ward")
+    # (b) a model of groupings only is a table: one disclosing combination withholds all of it;
+    check = check_model({"sex": [(30, 40), (12, 25)]}, [(30, 40), (12, 25)], 107, 2)
+    assert check.whole_model is None and not check.withheld
+    check = check_model({"sex": [(30, 40), (12, 25)], "ward": [(30, 50), (12, 15)]},
+                        [(25, 30), (5, 10), (10, 20), (2, 5)], 107, 3)
+    assert check.whole_model is not None and "combination" in check.whole_model
+    # (c) fewer than 10 residual degrees of freedom: nothing of the model is shown.
+    assert MIN_RESIDUAL_DF == 10
+    assert check_model({}, None, 24, 15).whole_model is not None
+    assert check_model({}, None, 25, 15).whole_model is None
+    # Suppression switched off: nothing withheld.
+    assert not check_model({"ward": [(1, 1)]}, [(1, 1)], 5, 2, threshold=0).anything_withheld
+
+
+def test_coarse_roc_steps_hold_no_small_count():
+    # Outside reference: scikit-learn's roc_curve on seeded scores; the steps between kept points, turned back
+    # into counts of events and non-events, must each be 0 or more than the limit.
+    from sklearn.metrics import roc_curve
+
+    rng = np.random.default_rng(5)
+    y = rng.random(150) < 0.3
+    score = rng.random(150) + 0.4 * y
+    fpr, tpr, _ = roc_curve(y, score, drop_intermediate=False)
+    n1, n0 = int(y.sum()), int((~y).sum())
+    f, t = coarse_roc(fpr, tpr, n0, n1, 10)
+    assert (f[0], t[0]) == (fpr[0], tpr[0]) and (f[-1], t[-1]) == (1.0, 1.0)
+    assert 2 < len(f) < len(fpr)
+    steps = np.column_stack([np.diff(np.rint(f * n0)), np.diff(np.rint(t * n1))])
+    assert np.all((steps == 0) | (steps > 10)), steps
+    # Every kept point is a point of the full curve (thinned, not smoothed).
+    full = set(zip(fpr.round(12), tpr.round(12)))
+    assert all(p in full for p in zip(f.round(12), t.round(12)))
+    same = coarse_roc(fpr, tpr, n0, n1, 0)
+    assert len(same[0]) == len(fpr)

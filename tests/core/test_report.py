@@ -147,7 +147,7 @@ def test_figures_match_outside_references(result, written):
     glm = sm.GLM(result.fit.design.y, design, family=sm.families.Binomial()).fit()
     cooks = glm.get_influence().cooks_distance[0]
     above = int(np.sum(cooks > 4 / len(cooks)))
-    assert f"{above:,} of {len(cooks):,}" in html
+    assert f"{above:,} of the {len(cooks):,} records" in html
     assert "row of the data file" not in html  # no record numbers unless asked
 
 
@@ -156,7 +156,7 @@ def test_contents_a_committee_needs(result, written):
     for needle in ("Models tried", "The chosen model", "odds ratio", "95% interval", "by construction",
                    "Hosmer-Lemeshow test", "Hosmer &amp; Lemeshow 1980", "DeLong et al. (1988)",
                    "Van Calster et al. 2016", "Peduzzi et al. (1996)", "Riley et al. (2020)", "statsmodels",
-                   "Cook&#x27;s distance above 4/n", "Warnings", "lives_alone", "suppressed",
+                   "Cook&#x27;s distance is above 4/n", "Warnings", "lives_alone", "suppressed",
                    "Centers for Medicare &amp; Medicaid Services"):
         assert needle in html, needle
     assert html.count("These figures describe statistical associations") == 2  # top and bottom
@@ -243,3 +243,91 @@ def test_rows_left_out_for_other_columns_are_explained():
                      and "rows missing it" in b.headers[1])
     assert ["lives_alone", f"{missing:,}"] in by_column.rows
     assert f"{missing:,} rows were left out" in text and "outside the rows compared" not in text
+
+
+def _table(rep, first_header, second=None):
+    return next(b for b in rep.blocks if isinstance(b, Table) and b.headers[0] == first_header
+                and (second is None or b.headers[1] == second))
+
+
+def test_a_small_groups_coefficients_are_withheld_and_said_so(rare):
+    # ESSnet output-checking rule (Eurostat 2015, common practice): no coefficient of a group below the limit.
+    rep = build_report(rare)
+    coef = _table(rep, "predictor", "group")
+    rows = {r[0]: r for r in coef.rows}
+    assert rows["ward"][1:3] == ["all its groups", "withheld"] and len([r for r in coef.rows if r[0] == "ward"]) == 1
+    # The measured predictor keeps its figures: statsmodels' Logit on the same design gives its odds ratio.
+    X = rare.fit.design.X
+    ref = sm.Logit(rare.fit.design.y, X).fit(disp=0)
+    assert rows["age"][2] == f"{np.exp(ref.params[1]):.3f}"
+    text = rep.text()
+    assert "What this report leaves out" in text and "'ward' (and of any interaction with it)" in text
+    assert f"{np.exp(ref.params[2]):.3f}" not in text and f"{np.exp(ref.params[3]):.3f}" not in text
+    # No ward row in the joint Wald tests either.
+    assert not any(isinstance(b, Table) and b.headers[0].startswith("predictor (all") and
+                   any(r[0] == "ward" for r in b.rows) for b in rep.blocks)
+
+
+def test_warnings_come_before_the_results_and_profile_intervals_are_explained():
+    res = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes",
+                                    predictors=["age", "wound_class"], profile_ci=True))
+    rep = build_report(res, suppress_below=0)  # suppression off: every figure is printed
+    headings = [b.text for b in rep.blocks if hasattr(b, "level")]
+    assert headings.index("Warnings") < headings.index("The records") < headings.index("The chosen model")
+    first = next(b for b in rep.blocks if getattr(b, "style", None) == "warning")
+    assert any("separat" in item for item in first.items)
+    coef = _table(rep, "predictor", "group")
+    assert "95% profile-likelihood interval" in coef.headers and "95% Wald interval" in coef.headers
+    assert "always when a predictor separates the outcome, use the profile-likelihood interval" in coef.caption
+    # Under separation the report gives profile-likelihood intervals even when they were not asked for.
+    plain = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes",
+                                      predictors=["age", "wound_class"]))
+    assert not any("or_pl_low" in t for t in plain.record["terms"])
+    shown = _table(build_report(plain, suppress_below=0), "predictor", "group")
+    assert "95% profile-likelihood interval" in shown.headers
+    assert [r[4] for r in shown.rows] == [r[4] for r in coef.rows]  # the same intervals as when asked for
+    assert not any("or_pl_low" in t for t in plain.record["terms"])  # the record itself is left alone
+    # With the default limit wound_class's figures are withheld (its 'contaminated' group all had the event),
+    # but the separation warning still comes first: it names the predictor, not the group.
+    rep = build_report(res)
+    first = next(b for b in rep.blocks if getattr(b, "style", None) == "warning")
+    assert any("'wound_class'" in item and "separat" in item for item in first.items)
+    assert [r for r in _table(rep, "predictor", "group").rows if r[0] == "wound_class"][0][2] == "withheld"
+
+
+def test_small_study_calibration_shows_mean_risks_and_plain_counts():
+    res = run_analysis(AnalysisSpec(data=str(WOUND), outcome="infection", event="yes", predictors=["age", "bmi"]))
+    rep = build_report(res)
+    cal = _table(rep, "risk group")
+    groups = res.assessment.groups
+    # The mean predicted risk is an average of predictions, not a count: shown for every group, and it is the
+    # plain mean of the fitted probabilities within the group (numpy on statsmodels' fitted values).
+    assert [r[2] for r in cal.rows[:-1]] == [f"{m:.3f}" for m in groups.mean_predicted]
+    p = sm.Logit(res.fit.design.y, res.fit.design.X).fit(disp=0).predict()
+    order = np.sort(p)
+    assert float(groups.mean_predicted[0]) == pytest.approx(order[: int(groups.n[0])].mean(), rel=1e-6)
+    assert any(r[3] == SUPPRESSED for r in cal.rows[:-1])
+    text = rep.text()
+    assert "Hosmer-Lemeshow test is withheld" in text
+    assert "suppressed of" not in text
+    assert re.search(r"Cook's distance is above 4/n = [0-9.]+ .*: (1 to 10|[0-9,]+) of the 120 records", text)
+
+
+def test_a_rare_outcome_is_not_counted_and_its_model_not_described(tmp_path):
+    # Six deaths among 300: the counts of 1 to 10 rule (CMS, common practice) covers the events total too, and
+    # every model figure from the intercept on would give it back.
+    rng = np.random.default_rng(4)
+    age = rng.normal(60, 10, 300).round()
+    died = np.zeros(300, dtype=int)
+    died[rng.choice(300, 6, replace=False)] = 1
+    path = tmp_path / "rare_outcome.csv"
+    pd.DataFrame({"age": age, "died": died}).to_csv(path, index=False)
+    res = run_analysis(AnalysisSpec(data=str(path), outcome="died", predictors=["age"]))
+    assert res.record["events"] == 6 and res.record["events_per_parameter"] == pytest.approx(6.0)
+    rep = build_report(res)
+    rows = dict((r[0], r[1]) for r in _table(rep, "", "count").rows)
+    assert rows["Events among them"] == SUPPRESSED == rows["Non-events among them"]
+    text = re.sub(r"SHA-256 checksum [0-9a-f]+", "", rep.text())
+    assert "The model's figures are withheld" in text and "294" not in text and "2.0%" not in text
+    assert "6.0 of the rarer outcome" not in text and "Only 6.0" not in text
+    assert not any(isinstance(b, Table) and b.headers[:2] == ["predictor", "group"] for b in rep.blocks)

@@ -316,10 +316,18 @@ def test_round_trip_keeps_rows_and_report_options(tmp_path):
     spec = AnalysisSpec(data=str(READMIT), outcome="readmitted_30d", predictors=["age", "sex"],
                         rows_complete_in=["age", "sex", "comorbidity_score"])
     res = run_analysis(spec)
-    path = ses.save_session(ses.session_from_result(res, report={"suppress_up_to": 4, "list_records": True}),
-                            tmp_path / "s.json")
+    texts = {"title": "Readmissions", "authors": "Quality team", "question": "Who comes back within 30 days?"}
+    path = ses.save_session(ses.session_from_result(res, report={"suppress_up_to": 4, "list_records": True,
+                                                                 **texts}), tmp_path / "s.json")
     loaded = ses.load_session(path)
-    assert loaded["report"] == {"suppress_up_to": 4, "list_records": True}
+    assert loaded["report"] == {"suppress_up_to": 4, "list_records": True, **texts}
+    # A session saved before reports had a title, authors and a question reads them as empty.
+    older = json.loads(path.read_text(encoding="utf-8"))
+    for key in texts:
+        older["report"].pop(key)
+    (tmp_path / "older.json").write_text(json.dumps(older), encoding="utf-8")
+    assert ses.load_session(tmp_path / "older.json")["report"] == {"suppress_up_to": 4, "list_records": True,
+                                                                    "title": "", "authors": "", "question": ""}
     assert loaded["rows_complete_in"] == ["age", "sex", "comorbidity_score"]
     assert "comorbidity_score" in ses.session_columns(loaded)  # so a later extract without it is noticed
     again = run_analysis(ses.spec_from_session(loaded))
@@ -334,5 +342,6 @@ def test_a_session_saved_before_the_new_fields_still_loads(saved, result, tmp_pa
     path = tmp_path / "old.json"
     path.write_text(json.dumps(old), encoding="utf-8")
     loaded = ses.load_session(path)
-    assert loaded["report"] == {"suppress_up_to": 10, "list_records": False} and loaded["rows_complete_in"] == []
+    assert loaded["report"] == {"suppress_up_to": 10, "list_records": False, "title": "", "authors": "",
+                                "question": ""} and loaded["rows_complete_in"] == []
     assert run_analysis(ses.spec_from_session(loaded)).record == result.record

@@ -168,3 +168,18 @@ def test_a_session_written_before_parents_and_kept_validation_still_opens(ws, tm
     old.write_text(json.dumps(session))
     back = Workspace.from_session(load_session(old))
     assert ladder_numbers(back) == ladder_numbers(ws)
+
+
+def test_report_texts_are_kept_with_the_analysis(ws, tmp_path):
+    ws.set_predictors(["age"])
+    ws.set_report_options(5, False, title="  Readmissions\n2024 ", question="Who comes back?")
+    ws.set_report_options(6, True)  # texts not given: kept
+    assert ws.report_options == {"suppress_up_to": 6, "list_records": True, "title": "Readmissions 2024",
+                                 "authors": "", "question": "Who comes back?"}
+    with pytest.raises(TwofoldError, match="shorten it to at most 200"):
+        ws.set_report_options(6, True, title="x" * 201)
+    with pytest.raises(TwofoldError, match="no text called"):
+        ws.set_report_options(6, True, subtitle="x")
+    assert ws.report_options["title"] == "Readmissions 2024"
+    back = Workspace.from_session(load_session(save_session(ws.to_session(), tmp_path / "r.json")))
+    assert back.report_options == ws.report_options

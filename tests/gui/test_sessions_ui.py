@@ -518,7 +518,10 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
     assert "point back to patients" in words
     dialog.limit.setValue(3)
     dialog.records.setChecked(True)
-    assert dialog.values() == {"suppress_up_to": 3, "list_records": True}
+    qtbot.keyClicks(dialog.texts["title"], "Wound infections")
+    qtbot.keyClicks(dialog.texts["question"], "Who gets one?")
+    assert dialog.values() == {"suppress_up_to": 3, "list_records": True, "title": "Wound infections", "authors": "",
+                               "question": "Who gets one?"}
 
     assert window.sessions.enable_autosave()
     load(qtbot, window, WOUND)
@@ -526,7 +529,8 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
     tick(qtbot, window, WOUND_MODEL)
     qtbot.waitUntil(lambda: idle(window) and window.session.last_assessment is not None, timeout=WAIT_MS)
     asked, files = [], []
-    answer = {"suppress_up_to": 3, "list_records": True}
+    answer = {"suppress_up_to": 3, "list_records": True, "title": "Wound infections after surgery",
+              "authors": "B. Osei", "question": "Which patients get a wound infection?"}
     monkeypatch.setattr(sessions_ui, "choose_report_options", lambda parent, current: asked.append(dict(current))
                         or answer)
     monkeypatch.setattr(sessions_ui.QFileDialog, "getSaveFileName",
@@ -534,8 +538,11 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
     done = Finished(window)
     window.sessions.report_dialog()
     wait_for(qtbot, window, done, "report")
-    assert asked == [{"suppress_up_to": 10, "list_records": False}]  # the defaults, before any choice
+    assert asked == [{"suppress_up_to": 10, "list_records": False, "title": "", "authors": "",
+                      "question": ""}]  # the defaults, before any choice
     html = (tmp_path / "report.html").read_text(encoding="utf-8")
+    assert "<h1>Wound infections after surgery</h1>" in html and "Authors: B. Osei" in html
+    assert "The question this analysis answers: Which patients get a wound infection?" in html
     # Outside reference: pandas crosstab of diabetes by infection; 10 of the 21 with diabetes were infected,
     # a count the default limit hides and a limit of 3 shows.
     tab = pd.crosstab(pd.read_csv(WOUND).diabetes, pd.read_csv(WOUND).infection)

@@ -130,7 +130,7 @@ def test_window_session_rerun_and_report_give_the_same_digits(qtbot, readmission
         return re.findall(r"<table.*?</table>", body, flags=re.S)
 
     window_tables, rerun_tables = printed_tables(report), printed_tables(rerun_report)
-    coefficient = [t for t in window_tables if "profile interval" in t]
+    coefficient = [t for t in window_tables if "profile-likelihood interval" in t]
     assert coefficient and coefficient[0] in rerun_tables
     ladder = [t for t in window_tables if "built from" in t]
     assert ladder and ladder[0] in rerun_tables  # the models tried, with AIC, BIC and their tests

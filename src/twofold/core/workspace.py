@@ -445,13 +445,27 @@ class Workspace:
         self._changed(change)
         return change
 
-    def set_report_options(self, suppress_up_to: int, list_records: bool) -> Change:
+    def set_report_options(self, suppress_up_to: int, list_records: bool, **texts) -> Change:
+        """Set the report's options; ``texts`` may give ``title``, ``authors`` and ``question`` (None or not
+        given: kept)."""
         from twofold.core.outputs.privacy import MAX_THRESHOLD
+        from twofold.core.outputs.session import REPORT_TEXT_LIMITS
 
         n = int(suppress_up_to)
         if not 1 <= n <= MAX_THRESHOLD:
             raise ModelError(f"Counts to hide should run from 1 up to at most {MAX_THRESHOLD}, not {n}.")
-        self.report_options = {"suppress_up_to": n, "list_records": bool(list_records)}
+        kept = {k: self.report_options.get(k, "") for k in REPORT_TEXT_LIMITS}
+        for key, value in texts.items():
+            if key not in REPORT_TEXT_LIMITS:
+                raise ModelError(f"A report has no text called '{key}'; give its title, authors or question.")
+            if value is None:
+                continue  # not given: kept
+            value = " ".join(str(value).split())
+            if len(value) > REPORT_TEXT_LIMITS[key]:
+                raise ModelError(f"The report's {key} is {len(value):,} characters long; shorten it to at most "
+                                 f"{REPORT_TEXT_LIMITS[key]:,}.")
+            kept[key] = value
+        self.report_options = {"suppress_up_to": n, "list_records": bool(list_records), **kept}
         change = Change("The report's options changed.", frozenset(("report",)))
         self._changed(change)
         return change

@@ -15,8 +15,8 @@ from pathlib import Path
 
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import (QCheckBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QMessageBox,
-                               QSpinBox, QVBoxLayout)
+from PySide6.QtWidgets import (QCheckBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QLineEdit,
+                               QMessageBox, QSpinBox, QVBoxLayout)
 
 from twofold.gui.views import Failure
 
@@ -57,15 +57,28 @@ def choose_data_file(parent, start: str) -> str:
 
 
 class ReportOptionsDialog(QDialog):
-    """Asks how the report treats small counts and record numbers; it only asks, the core does the rest."""
+    """Asks for the report's title, authors and question, and how it treats small counts and record numbers;
+    it only asks, the core does the rest."""
 
-    def __init__(self, parent, suppress_up_to: int, list_records: bool):
+    def __init__(self, parent, suppress_up_to: int, list_records: bool, title: str = "", authors: str = "",
+                 question: str = ""):
         from twofold.core.outputs.privacy import MAX_THRESHOLD
+        from twofold.core.outputs.session import REPORT_TEXT_LIMITS
 
         super().__init__(parent)
         self.setWindowTitle("Twofold: report options")
         layout = QVBoxLayout(self)
         form = QFormLayout()
+        self.texts = {}
+        for key, label, value, hint in (
+                ("title", "Title", title, "Printed at the top of the first page (empty: the outcome is named)"),
+                ("authors", "Authors", authors, "Who carried out the analysis"),
+                ("question", "Question answered", question, "The question the analysis answers, in a sentence")):
+            edit = QLineEdit(value, self)
+            edit.setMaxLength(REPORT_TEXT_LIMITS[key])
+            edit.setToolTip(hint)
+            self.texts[key] = edit
+            form.addRow(label, edit)
         self.limit = QSpinBox(self)
         self.limit.setRange(1, MAX_THRESHOLD)
         self.limit.setValue(int(suppress_up_to))
@@ -92,12 +105,14 @@ class ReportOptionsDialog(QDialog):
         return label
 
     def values(self) -> dict:
-        return {"suppress_up_to": int(self.limit.value()), "list_records": bool(self.records.isChecked())}
+        return {"suppress_up_to": int(self.limit.value()), "list_records": bool(self.records.isChecked()),
+                **{key: edit.text().strip() for key, edit in self.texts.items()}}
 
 
 def choose_report_options(parent, current: dict) -> dict | None:
     """Ask for the report's options, starting from ``current``; None when cancelled (tests replace this function)."""
-    dialog = ReportOptionsDialog(parent, current["suppress_up_to"], current["list_records"])
+    dialog = ReportOptionsDialog(parent, current["suppress_up_to"], current["list_records"],
+                                 current.get("title", ""), current.get("authors", ""), current.get("question", ""))
     return dialog.values() if dialog.exec() == QDialog.DialogCode.Accepted else None
 
 
@@ -368,11 +383,13 @@ class SessionActions(QObject):
                 path += ".pdf" if "pdf" in chosen.lower() else ".html"
             self.report_to(path, **options)
 
-    def report_to(self, path, suppress_up_to: int | None = None, list_records: bool | None = None) -> int | None:
+    def report_to(self, path, suppress_up_to: int | None = None, list_records: bool | None = None,
+                  title: str | None = None, authors: str | None = None, question: str | None = None) -> int | None:
         """Write the report of the model shown: aggregate figures only, small counts suppressed (on the worker).
 
-        ``suppress_up_to`` and ``list_records`` (None: as before) become the
-        report options kept with the session, and autosaved at once.
+        ``suppress_up_to``, ``list_records`` and the first page's ``title``,
+        ``authors`` and ``question`` (None: as before) become the report
+        options kept with the session, and autosaved at once.
         """
         if self._refuses(path):
             return None
@@ -383,7 +400,8 @@ class SessionActions(QObject):
             self._fail(f"Counts of 1 up to {suppress_up_to} people cannot be the limit of the report; "
                        f"choose a whole number from 1 to {MAX_THRESHOLD}.")
             return None
-        chosen = {"suppress_up_to": suppress_up_to, "list_records": list_records}
+        chosen = {"suppress_up_to": suppress_up_to, "list_records": list_records, "title": title,
+                  "authors": authors, "question": question}
         changed = {k: v for k, v in chosen.items() if v is not None and v != self.report_options[k]}
         self.report_options.update(changed)
         s, options = self.session, dict(self.report_options)
@@ -391,10 +409,11 @@ class SessionActions(QObject):
         def job(ws):
             from twofold.render.report_writer import write_report
 
-            ws.set_report_options(options["suppress_up_to"], options["list_records"])
+            ws.set_report_options(options["suppress_up_to"], options["list_records"], title=options.get("title"),
+                                  authors=options.get("authors"), question=options.get("question"))
             result = ws.result(assessment=s.assessment_for(ws.shown_fit()))
             return str(write_report(result, path, ladder=ws.ladder, suppress_below=options["suppress_up_to"],
-                                    include_records=options["list_records"]))
+                                    include_records=options["list_records"], details=ws.report_options))
 
         job_id = self._run("report", job)
         if changed and self.session.last_results is not None:

@@ -83,11 +83,21 @@ def png_bytes(fig, dpi: float | None = None) -> bytes:
     return buf.getvalue()
 
 
+def literal_text(artist) -> None:
+    """Show every text of ``artist`` (an axes or a figure) as written: a ``$`` in a column or group name is a
+    dollar sign, not the start of mathematics (matplotlib reads ``$...$`` as TeX unless told not to)."""
+    from matplotlib.text import Text
+
+    for text in artist.findobj(Text):
+        text.set_parse_math(False)
+
+
 def _finish(ax, title: str | None, square: bool) -> None:
     if title:
         ax.set_title(title, fontsize="medium")
     if square:
         ax.set_aspect("equal")
+    literal_text(ax)
 
 
 # ---------------------------------------------------------------------------

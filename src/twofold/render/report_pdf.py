@@ -108,7 +108,7 @@ class _Pdf:
     def text_at(self, x: float, y: float, text: str, style: str, ha="left"):
         size, weight, colour = _STYLES[style]
         self.fig.text(x / _PAGE_W, 1 - y / _PAGE_H, text, fontsize=size, fontweight=weight, color=colour,
-                      va="top", ha=ha, family="DejaVu Sans")
+                      va="top", ha=ha, family="DejaVu Sans", parse_math=False)
 
     def line(self, x0, x1, y, colour="0.55", width=0.6):
         from matplotlib.lines import Line2D

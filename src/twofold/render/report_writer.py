@@ -18,7 +18,7 @@ def _data_path(result):
 
 
 def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESHOLD,
-                 include_records: bool = False) -> Path:
+                 include_records: bool = False, details: dict | None = None) -> Path:
     """Write the report of an analysis as ``.html`` or ``.pdf`` (chosen by the suffix).
 
     Parameters
@@ -31,6 +31,8 @@ def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESH
         Counts of 1 up to this many people are suppressed (default 10).
     include_records : bool
         Also list the row numbers of the most influential records.
+    details : dict, optional
+        ``title``, ``authors`` and ``question`` for the first page (other keys ignored).
 
     Raises
     ------
@@ -51,7 +53,8 @@ def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESH
     if suffix not in (".html", ".htm", ".pdf"):
         raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{path.suffix or path.name}'; "
                             "end the file name with .html or .pdf.")
-    rep = build_report(result, ladder=ladder, suppress_below=suppress_below, include_records=include_records)
+    rep = build_report(result, ladder=ladder, suppress_below=suppress_below, include_records=include_records,
+                       details=details)
     try:
         if suffix == ".pdf":
             tmp = path.with_name(f".{path.name}.tmp")

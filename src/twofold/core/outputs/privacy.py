@@ -47,7 +47,8 @@ def suppression_note(threshold: int = DEFAULT_THRESHOLD) -> str:
         return "No counts were suppressed (suppression was switched off)."
     return (
         f"Counts of 1 to {threshold} people are shown as '{SUPPRESSED}', and so is at least one more count in the "
-        "same row or column wherever the hidden one could otherwise be worked out from the totals; zeros are shown. "
+        "same row or column wherever the hidden one could otherwise be worked out from the totals; zeros are shown, "
+        "except where a zero says that everyone in a group had the same outcome. "
         f"This follows the US Centers for Medicare & Medicaid Services cell-size policy (1 to 10 hidden); "
         "it is common practice, not a single standard, and some data owners require other thresholds."
     )
@@ -201,7 +202,7 @@ def _ranges(values: np.ndarray, hidden: np.ndarray, lines) -> dict:
 
 
 def protect_table(counts, threshold: int = DEFAULT_THRESHOLD, row_totals: bool = True,
-                  col_totals: bool = True) -> ProtectedTable:
+                  col_totals: bool = True, zeros_disclose: bool = False) -> ProtectedTable:
     """Decide which counts of a two-way table (and its totals) may be published.
 
     Primary suppression hides every entry with 1 <= count <= threshold; zeros
@@ -221,6 +222,11 @@ def protect_table(counts, threshold: int = DEFAULT_THRESHOLD, row_totals: bool =
     row_totals, col_totals : bool
         Whether the row totals (a last column) and column totals (a last row)
         are published; the grand total is published when both are.
+    zeros_disclose : bool
+        For a table whose rows are groups of people who share a trait and
+        whose columns are outcomes: a zero beside a non-zero count in a row
+        says that everyone in the group had the same outcome, so it is
+        hidden too (with a complement, as any hidden count).
 
     Returns
     -------
@@ -253,6 +259,8 @@ def protect_table(counts, threshold: int = DEFAULT_THRESHOLD, row_totals: bool =
         values[m, n] = inner.sum()
     threshold = int(threshold)
     primary = (values >= 1) & (values <= threshold) if threshold > 0 else np.zeros(values.shape, dtype=bool)
+    if zeros_disclose and threshold > 0:
+        primary[:m, :n] |= (inner == 0) & (inner.sum(axis=1) > 0)[:, None]
     hidden = primary.copy()
     if threshold <= 0:
         return ProtectedTable(values, hidden, primary, (m, n), row_totals, col_totals, threshold)
@@ -284,3 +292,152 @@ def protect_table(counts, threshold: int = DEFAULT_THRESHOLD, row_totals: bool =
             break
         hidden[pick] = True
     return ProtectedTable(values, hidden, primary, (m, n), row_totals, col_totals, threshold)
+
+
+# ---------------------------------------------------------------------------
+# zeros that disclose, and model outputs
+# ---------------------------------------------------------------------------
+
+#: Fewest residual degrees of freedom (records used minus coefficients) for a model's figures to be shown:
+#: the ESSnet guidelines for output checking (Eurostat 2015) ask for at least 10 (common practice).
+MIN_RESIDUAL_DF = 10
+
+
+def group_discloses(events, nonevents, threshold: int = DEFAULT_THRESHOLD) -> bool:
+    """True when a group's counts by outcome tell something about its members.
+
+    A group of people who share a trait (a predictor's group, or a
+    combination of groups) discloses when 1 to ``threshold`` of them had the
+    event, or did not, or are in it at all; or when everyone in it had the
+    same outcome (a zero beside a non-zero count: the outcome of every member
+    is then known, which the ESSnet guidelines call group disclosure).
+    """
+    if threshold <= 0:
+        return False
+    events, nonevents = int(events), int(nonevents)
+    total = events + nonevents
+    if total == 0:
+        return False
+    return (is_small(events, threshold) or is_small(nonevents, threshold) or is_small(total, threshold)
+            or events == 0 or nonevents == 0)
+
+
+@dataclass(frozen=True)
+class ModelCheck:
+    """What of a fitted model's figures may be shown (output checking of model results).
+
+    Attributes
+    ----------
+    withheld : dict
+        Predictor name -> why its coefficient figures (coefficients, odds
+        ratios, intervals, standard errors, Wald tests) are withheld.
+        Likelihood-ratio tests compare whole models and follow
+        ``whole_model`` of the models they compare.
+    whole_model : str or None
+        Why every figure of the model (coefficients, fit statistics, tests,
+        assessment) is withheld, or None when they may be shown.
+    """
+
+    withheld: dict
+    whole_model: str | None
+
+    def shows(self, predictor: str) -> bool:
+        """Whether a predictor's own figures may be shown."""
+        return self.whole_model is None and predictor not in self.withheld
+
+    @property
+    def anything_withheld(self) -> bool:
+        return bool(self.withheld) or self.whole_model is not None
+
+
+#: The reason given for a predictor whose groups disclose.
+GROUP_REASON = ("one or more of its groups holds 1 to {t} people, or 1 to {t} with or without the event, or "
+                "people who all had the same outcome; its coefficients, odds ratios, intervals, standard errors "
+                "and Wald tests would reveal those counts")
+
+
+def check_model(groups: dict, patterns, n_used: int, n_params: int,
+                threshold: int = DEFAULT_THRESHOLD, outcome=None) -> ModelCheck:
+    """Decide which figures of a fitted model can be published, following output-checking practice.
+
+    The rules follow the ESSnet guidelines for the checking of output based
+    on microdata (Eurostat 2015) for regression results: at least
+    :data:`MIN_RESIDUAL_DF` residual degrees of freedom; no coefficient of a
+    group (or combination of groups) whose counts would be suppressed in a
+    table (:func:`group_discloses`); and a model whose predictors are all
+    groups is a table in disguise (its fit depends on the counts of each
+    combination of groups by outcome only), so its figures are shown only
+    when that table could be shown whole.
+
+    Parameters
+    ----------
+    groups : dict
+        Predictor name -> list of (events, nonevents), one pair per group of
+        a grouped predictor (its levels, the two values of a two-valued
+        number, the combinations of an interaction of two grouped ones).
+    patterns : list of (events, nonevents) or None
+        For a model whose predictors are all grouped: one pair per
+        combination of groups present (covariate pattern); None when a
+        predictor is measured on a scale.
+    n_used, n_params : int
+        Records used and coefficients (intercept included).
+    threshold : int
+        The suppression limit (0: nothing is withheld).
+    outcome : (events, nonevents), optional
+        The records used by outcome: when either is 1 to ``threshold``, every
+        figure of the model (from its intercept on) reveals it.
+    """
+    if threshold <= 0:
+        return ModelCheck({}, None)
+    t = int(threshold)
+    withheld = {name: GROUP_REASON.format(t=t) for name, pairs in groups.items()
+                if any(group_discloses(e, ne, t) for e, ne in pairs)}
+    whole = None
+    if outcome is not None and (is_small(outcome[0], t) or is_small(outcome[1], t)):
+        whole = (f"only 1 to {t} of the records used had the event, or did not, and every figure of the model "
+                 "(its intercept, fit statistics, tests and assessment) would reveal that number")
+    elif n_used - n_params < MIN_RESIDUAL_DF:
+        whole = (f"the model has {n_params} coefficients for {n_used:,} records, fewer than "
+                 f"{MIN_RESIDUAL_DF} records beyond one per coefficient (the least the ESSnet guidelines for "
+                 "output checking, Eurostat 2015, allow), so its figures come close to describing single records")
+    elif patterns is not None and any(group_discloses(e, ne, t) for e, ne in patterns):
+        whole = (f"every predictor of the model is a grouping, so all its figures (coefficients, fit statistics, "
+                 "tests, discrimination and calibration) are worked out from the counts of each combination of "
+                 f"groups by outcome, and some combination holds 1 to {t} people, 1 to {t} with or without the "
+                 "event, or people who all had the same outcome; those counts could be solved for")
+    return ModelCheck(withheld, whole)
+
+
+def coarse_roc(fpr, tpr, nonevents: int, events: int, threshold: int = DEFAULT_THRESHOLD):
+    """An ROC curve thinned so that no step of it counts 1 to ``threshold`` people.
+
+    Each point of an ROC curve gives, exactly, how many events and non-events
+    have a predicted risk above a threshold; between two points lie the
+    people of a band of predicted risk.  The points kept here are such that
+    between any two neighbours the events and the non-events each number 0
+    or more than ``threshold`` (the curve runs straight between them, as a
+    curve through fewer thresholds does).  The first and last points are
+    always kept.
+
+    Returns
+    -------
+    fpr, tpr : ndarray
+    """
+    fpr, tpr = np.asarray(fpr, dtype=float), np.asarray(tpr, dtype=float)
+    if threshold <= 0 or len(fpr) <= 2:
+        return fpr, tpr
+    fp = np.rint(fpr * nonevents).astype(np.int64)
+    tp = np.rint(tpr * events).astype(np.int64)
+
+    def fine(a, b):
+        return not is_small(tp[b] - tp[a], threshold) and not is_small(fp[b] - fp[a], threshold)
+
+    kept = [0]
+    for k in range(1, len(fp) - 1):
+        if fine(kept[-1], k):
+            kept.append(k)
+    end = len(fp) - 1
+    while len(kept) > 1 and not fine(kept[-1], end):
+        kept.pop()
+    kept.append(end)
+    return fpr[kept], tpr[kept]

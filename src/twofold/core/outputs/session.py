@@ -28,8 +28,11 @@ other format that can run code when read).  Its fields:
                      empty: the rows complete for the chosen model alone
 ``report``           the report's options: ``suppress_up_to`` (counts of 1
                      up to this many people are hidden, 1 to 1000, default
-                     10) and ``list_records`` (true: list the most
-                     influential records by row number)
+                     10), ``list_records`` (true: list the most
+                     influential records by row number), and the texts the
+                     user typed for the first page: ``title``, ``authors``
+                     and ``question`` (the question the analysis answers;
+                     each may be empty, missing in older sessions: empty)
 ``ladder``           the models tried, each a list of predictors
 ``chosen``           index (from 0) of the chosen model in ``ladder``
 ``parents``          per model of ``ladder``, the index of the model it was
@@ -125,7 +128,10 @@ KEYS = ("format", "schema_version", "saved_by", "saved_at",
 #: Fields added after version 1 was first written, with what a file without them means.
 LATER_DEFAULTS = {"parents": None, "validation_result": None, "missing": {}}
 #: The report's options and what a session without them means.
-REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False}
+REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False, "title": "", "authors": "",
+                   "question": ""}
+#: The texts a user types for a report's first page, and the longest each may be.
+REPORT_TEXT_LIMITS = {"title": 200, "authors": 300, "question": 1000}
 TERM_KEYS = ("column", "kind", "levels", "reference", "range", "knots", "of")
 ROLE_VALUES = ("numeric", "binary", "categorical", "identifier", "date", "excluded")
 
@@ -554,7 +560,11 @@ def validate_session(session, path=None) -> dict:
         c.integer(session["seed"], "seed", -(2 ** 63), 2 ** 63 - 1)
     c.names(session["rows_complete_in"], "rows_complete_in", cap=MAX_PREDICTORS)
     report = c.obj(session["report"], "report")
+    for key in REPORT_TEXT_LIMITS:
+        report.setdefault(key, "")  # saved before reports had a title, authors and a question
     c.fields(report, REPORT_DEFAULTS, "the report options have", "the report option '{}' is missing")
+    for key, cap in REPORT_TEXT_LIMITS.items():
+        c.text(report[key], key, cap, empty=True)
     c.integer(report["suppress_up_to"], "suppress_up_to", 1, MAX_THRESHOLD)
     c.boolean(report["list_records"], "list_records")
     missing = c.obj(session["missing"], "missing")
