@@ -26,7 +26,8 @@ import numpy as np
 
 from twofold.core.outputs.privacy import (DEFAULT_THRESHOLD, MIN_RESIDUAL_DF, SUPPRESSED, check_model, coarse_roc,
                                           is_small, protect_table, show_count, suppression_note)
-from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p
+from twofold.core.models.terms import term_title
+from twofold.core.outputs.text import degrees, fmt_num, fmt_or, fmt_p, or_cells
 
 #: Cook's distance above 4/n marks an influential record (common practice, a rule of thumb).
 COOKS_RULE = 4.0
@@ -177,6 +178,10 @@ READING_WORDS = {
 
 
 def _label(t: dict, nameless=frozenset()) -> tuple[str, str]:
+    if t.get("part") in ("curve", "interaction") and t["column"].split(":")[0] not in nameless \
+            and t["column"].split(":")[-1] not in nameless:
+        label = t.get("label") or t["column"]
+        return term_title(t["column"]), label.split(": ", 1)[1] if ": " in label else "per 1 unit of each"
     if t.get("level") is None:
         return t["column"], "per unit"
     if t["column"] in nameless:
@@ -523,6 +528,12 @@ def _data_section(rep: Report, record: dict, threshold: int, what: str = "model"
     if small_left:
         rep.add(Para("Fewer than the suppression limit of rows were left out, so the number of rows read is "
                      "suppressed too: with both totals shown, the small number could be worked out.", "note"))
+    marked = record.get("values_marked_missing") or {}
+    if marked:
+        # Which columns, and how many values: not the values themselves, which are text from the file.
+        rep.add(Para("Values marked as meaning 'not known' were counted as missing in: "
+                     + ", ".join(f"{c} ({len(v)} value{'s' if len(v) != 1 else ''})" for c, v in marked.items())
+                     + "."))
     missing = [[c, show_count(n, threshold)] for c, n in record["missing_by_column"].items()]
     if any(n for n in record["missing_by_column"].values()):
         rep.add(Table(["predictor", "rows missing it (among rows with an outcome)"], missing, "lr",
@@ -603,14 +614,22 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
         return
     withheld = check.withheld
     ov = record["overall"]
+    penalised = "penalized_log_likelihood" in record
+    test_name = "Penalised likelihood-ratio" if penalised else "Likelihood-ratio"
     if ov and ov["df"]:
-        rep.add(Para(f"Likelihood-ratio test of the model against the overall event rate alone: "
-                     f"G = {fmt_num(ov['g'], 2)} on {ov['df']} degrees of freedom, p-value {fmt_p(ov['p_value'])}."))
-    rep.add(Para(f"Log-likelihood {fmt_num(record['log_likelihood'], 2)} (event rate alone "
-                 f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
-                 f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
-                 f"{fmt_num(record['events_per_parameter'], 1)} of the rarer outcome per coefficient besides "
-                 "the intercept."))
+        rep.add(Para(f"{test_name} test of the model against the overall event rate alone: "
+                     f"G = {fmt_num(ov['g'], 2)} on {degrees(ov['df'])}, p-value {fmt_p(ov['p_value'])}."))
+    per = (f"{fmt_num(record['events_per_parameter'], 1)} of the rarer outcome per coefficient besides "
+           "the intercept.")
+    if penalised:
+        # Ordinary log-likelihoods beside a penalised G would let a reader work out a different G.
+        rep.add(Para(f"Fitted by Firth's penalised likelihood: penalised log-likelihood "
+                     f"{fmt_num(record['penalized_log_likelihood'], 2)}; the tests are penalised likelihood-ratio "
+                     f"tests. {record['aic_note']} {per}"))
+    else:
+        rep.add(Para(f"Log-likelihood {fmt_num(record['log_likelihood'], 2)} (event rate alone "
+                     f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
+                     f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; {per}"))
     profile = any("or_pl_low" in t for t in record["terms"])
     headers = ["predictor", "group", "odds ratio", "95% Wald interval"] \
         + (["95% profile-likelihood interval"] if profile else []) \
@@ -626,9 +645,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
         if col in nameless and t.get("level") is not None:
             numbered[col] = numbered.get(col, 1) + 1
             group = f"group {numbered[col]} (compared with group 1; groups not named)"
-        row = [col, group, fmt_or(t["odds_ratio"]), _ci(t["or_ci_low"], t["or_ci_high"])]
+        row = [col, group, *or_cells(t)]
         if profile:
-            row.append(_ci(t.get("or_pl_low"), t.get("or_pl_high")))
+            row.append(_ci(t.get("or_pl_low"), t.get("or_pl_high")) if "or_pl_low" in t else "")
         row += [fmt_p(t["p_value"]), fmt_num(t["z"], 2), fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4)]
         rows.append(row)
     i = record["intercept"]
@@ -651,15 +670,27 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
         rep.add(Para("Left out as constant or exactly determined by other predictors: "
                      + ", ".join(c if c.split(":")[0] not in nameless else f"a group of {c.split(':')[0]}"
                                  for c in record["dropped_columns"]) + ".", "note"))
-    tests = [t for t in record["term_tests"] if not _involves(t["column"], withheld)]
+    stated = [e for e in record.get("effects_at_values") or []
+              if not _involves(e["column"], withheld) and not any(w in e["label"] for w in set(withheld) | set(nameless))]
+    if stated:
+        rep.add(Table(["odds ratio of", "odds ratio", "95% Wald interval"],
+                      [[e["label"], fmt_or(e["odds_ratio"]), _ci(e["or_ci_low"], e["or_ci_high"])] for e in stated],
+                      "lrr", "Where one coefficient alone would mislead (a predictor in an interaction, or a curve), "
+                             "its odds ratios at stated values of the other predictor, or between stated values "
+                             "along the curve."))
+    tests = [t for t in record["term_tests"]
+             if not _involves(t["column"], withheld) and not any(_involves(i, withheld) for i in t.get("includes", ()))]
     if tests:
-        rep.add(Table(["predictor (all its groups together)", "Wald chi-square", "degrees of freedom", "p-value"],
-                      [[t["column"], fmt_num(t["statistic"], 2), str(t["df"]), fmt_p(t["p_value"])]
-                       for t in tests]))
+        rep.add(Table(["predictor (all its coefficients together)", "Wald chi-square", "degrees of freedom",
+                       "p-value"],
+                      [[t.get("label", t["column"]), fmt_num(t["statistic"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                       for t in tests],
+                      caption="A predictor in an interaction is tested together with the interaction (its effect "
+                              "at any value of the other predictor)."))
     a = record.get("assessment") or {}
     drop = a.get("drop_one") or []
     if drop:
-        rows = [[t["column"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+        rows = [[t.get("label", t["column"]), fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
                 + ([WITHHELD, WITHHELD, ""] if _involves(t["column"], withheld) else
                    [fmt_num(t["wald"], 2), fmt_p(t["wald_p_value"]), "yes" if t["prefer_lr"] else ""])
                 for t in drop]
@@ -677,7 +708,8 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     inter = [t for t in record.get("interaction_tests") or [] if not _involves(t["term"], withheld)]
     if inter:
         rep.add(Table(["interaction", "likelihood-ratio G", "degrees of freedom", "p-value"],
-                      [[t["term"], fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])] for t in inter],
+                      [[term_title(t["term"]), fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+                       for t in inter],
                       caption="Each interaction tested by refitting without it on the same rows. With an "
                               "interaction, the odds ratio of either predictor depends on the other."))
     nested = record.get("nested")
