@@ -220,8 +220,11 @@ def draw_influence(ax, cooks_distance, rows, k: int = 10, *, title: bool = True)
     ax.plot(x[top], d[top], linestyle="none", marker="D", markersize=4, color=VERMILLION,
             label=f"the {len(top)} most influential")
     ax.set_xlabel("Row of the data file")
-    ax.set_ylabel("Cook's distance (pull on the estimates)")
-    ax.legend(loc="upper right", fontsize="small", frameon=False)
+    ax.set_ylabel("Cook's distance")
+    # A band above the tallest point holds the legend, so it never covers a record.
+    highest = float(np.nanmax(d)) if ok.any() else 1.0
+    ax.set_ylim(bottom=0, top=highest * 1.4 if highest > 0 else 1.0)
+    ax.legend(loc="upper center", fontsize="small", frameon=False, ncol=2, handletextpad=0.2, columnspacing=0.8)
     _finish(ax, "Influence of each record" if title else None, False)
 
 
