@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
 
 from twofold.core.data.tidy import plural
 from twofold.gui import style
+from twofold.gui.help_ui import link
 from twofold.gui.tables import CellsModel, CoefficientModel, ColumnsModel, LadderModel
 from twofold.gui.views import CAUTION, ROLE_LABELS
 
@@ -64,6 +65,23 @@ def _compact_table(view: QTableView) -> None:
     view.setWordWrap(False)
     view.setAlternatingRowColors(True)
     view.setTabKeyNavigation(False)  # Tab leaves the table; arrows move inside it
+
+
+def _help(widget, key: str) -> None:
+    """Give a result widget its "What does this mean?" topic: F1 on it, and a link when it shows rich text."""
+    widget.setProperty("help_topic", key)
+    widget.setFocusPolicy(Qt.FocusPolicy.StrongFocus if isinstance(widget, QLabel) else widget.focusPolicy())
+    if isinstance(widget, QLabel):
+        widget.setTextInteractionFlags(widget.textInteractionFlags() | Qt.TextInteractionFlag.LinksAccessibleByMouse
+                                       | Qt.TextInteractionFlag.LinksAccessibleByKeyboard)
+        widget.linkActivated.connect(lambda href, w=widget: _open_help(w, href))
+
+
+def _open_help(widget, href: str) -> None:
+    if href.startswith("help:"):
+        window = widget.window()
+        if hasattr(window, "explain"):
+            window.explain(href[len("help:"):])
 
 
 def ask_missing_values(parent, column: str, current) -> list | None:
@@ -774,6 +792,9 @@ class ResultsPane(QWidget):
         t.addWidget(tests_title)
         self.overall = _wrapped("", "Test of the model as a whole")
         self.previous = _wrapped("", "Test against the model before")
+        for w, key in ((self.overall, "overall"), (self.previous, "nested"), (self.table, "odds_ratio"),
+                       (self.counts, "events_per_coefficient")):
+            _help(w, key)
         t.addWidget(self.overall)
         t.addWidget(self.previous)
         self.shape = _wrapped("", "Tests of curved effects and interactions")
@@ -943,10 +964,11 @@ class ResultsPane(QWidget):
         self.notes_box.setVisible(bool(view.predictor_notes))
 
         o = view.overall
-        self.overall.setText(f"<b>{esc(o.title)}.</b> {esc(o.text)}<br>{esc(o.reading)}")
+        self.overall.setText(f"<b>{esc(o.title)}.</b> {esc(o.text)}<br>{esc(o.reading)}" + link("overall"))
         if view.previous is not None:
             p = view.previous
-            self.previous.setText(f"<b>{esc(p.title)}.</b> {esc(p.text)}" + (f"<br>{esc(p.reading)}" if p.reading else ""))
+            self.previous.setText(f"<b>{esc(p.title)}.</b> {esc(p.text)}" + (f"<br>{esc(p.reading)}" if p.reading else "")
+                                  + link("nested"))
         else:
             self.previous.setText("<b>Change from the model before.</b> This is the first model of the ladder; "
                                   "tick or untick a predictor to test the change.")
@@ -1050,6 +1072,10 @@ class AssessmentSection(QFrame):
         self.vif = _wrapped("", "Variance inflation")
         self.sample = _wrapped("", "Sample size")
         self.influential = _wrapped("", "Most influential records")
+        for w, key in ((self.auc, "auc"), (self.brier, "calibration"), (self.calibration, "calibration"),
+                       (self.hosmer, "hosmer_lemeshow"), (self.drop_one, "wald"), (self.vif, "variance_inflation"),
+                       (self.sample, "sample_size"), (self.influential, "cooks_distance")):
+            _help(w, key)
         # Measures a committee seldom needs sit behind a fold, opened with one click.
         self.more_measures = QCheckBox("More measures of fit (pseudo-R-squared)")
         self.more_measures.setAccessibleName("Show more measures of fit")
@@ -1129,10 +1155,12 @@ class AssessmentSection(QFrame):
         self.status.hide()
         self.body.show()
         self.heading.setText(view.title)
-        self.auc.setText(f"<b>Telling events from non-events.</b> {esc(view.auc_text)}<br>{esc(view.auc_reading)}")
+        self.auc.setText(f"<b>Telling events from non-events.</b> {esc(view.auc_text)}<br>{esc(view.auc_reading)}"
+                         + link("auc"))
         self.brier.setText(f"<b>Accuracy of the predicted risks.</b> {esc(view.brier_text)}")
-        self.calibration.setText(f"<b>Calibration.</b> {esc(view.calibration_text)}" + self._note(view.calibration_note))
-        self.hosmer.setText(f"{esc(view.hl_text)}" + self._note(view.hl_note))
+        self.calibration.setText(f"<b>Calibration.</b> {esc(view.calibration_text)}" + self._note(view.calibration_note)
+                                 + link("calibration"))
+        self.hosmer.setText(f"{esc(view.hl_text)}" + self._note(view.hl_note) + link("hosmer_lemeshow"))
         self.pseudo.setText(esc(view.pseudo_r2_text))
         if view.drop_one:
             rows = "".join(
@@ -1153,7 +1181,7 @@ class AssessmentSection(QFrame):
             self.vif.setText(f"<b>Variance inflation:</b> {'; '.join(parts)}." + self._note(view.vif_note))
         self.vif.setVisible(bool(view.vif))
         mark = "&#9888; " if view.sample_size_short else ""
-        self.sample.setText(mark + esc(view.sample_size_text))
+        self.sample.setText(mark + esc(view.sample_size_text) + link("sample_size"))
         if view.influential:
             items = ", ".join(f"row {r:,} ({esc(d)})" for r, d, _ in view.influential)
             self.influential.setText("<b>Most influential records</b> (row of the data file, with Cook's "

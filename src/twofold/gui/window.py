@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (
 )
 
 from twofold.gui import style
+from twofold.gui.help_ui import topic_of
 from twofold.gui.panes import DataPane, LadderPane, ModelPane, ResultsPane
 from twofold.gui.session import Session
 from twofold.gui.views import Failure
@@ -213,8 +214,15 @@ class MainWindow(QMainWindow):
         self.calculator = None
 
         help_menu = bar.addMenu("&Help")
+        self.explain_action = QAction("&What does this mean?", self)
+        self.explain_action.setShortcut(QKeySequence("F1"))
+        self.explain_action.setToolTip("Explain the result that has the keyboard focus: what it is, how to read "
+                                       "it, what counts as enough and what not to conclude (F1)")
+        self.explain_action.triggered.connect(lambda _=False: self.explain(topic_of(QApplication.focusWidget())))
+        help_menu.addAction(self.explain_action)
+        self.help_dialog = None
         keys = QAction("&Keyboard use", self)
-        keys.setShortcut(QKeySequence.StandardKey.HelpContents)
+        keys.setShortcut(QKeySequence("Shift+F1"))
         keys.triggered.connect(self._keyboard_help)
         help_menu.addAction(keys)
         about = QAction("&About Twofold", self)
@@ -466,6 +474,15 @@ class MainWindow(QMainWindow):
 
         return self._show_one("model_shape_dialog", ModelShapeDialog)
 
+    def explain(self, topic: str | None = None):
+        """Show "What does this mean?" at ``topic`` (the first topic when None); returns the dialog."""
+        from twofold.gui.help_ui import HelpDialog
+
+        if self.help_dialog is None:
+            self.help_dialog = HelpDialog(self)
+        self.help_dialog.show_topic(topic)
+        return self.help_dialog
+
     def open_calculator(self):
         """Show the risk calculator for the model shown (one per window, its fields emptied on closing)."""
         from twofold.gui.calculator import RiskCalculator
@@ -488,7 +505,8 @@ class MainWindow(QMainWindow):
             "the predictors, the results and the model ladder.\n\n"
             "In the predictor list, the space bar ticks or unticks the selected predictor.  In the model ladder, "
             "Enter shows the selected model.  Ctrl+Shift+C copies the results as text.  Ctrl+S saves the "
-            "analysis; Ctrl+R opens the risk for one patient."))
+            "analysis; Ctrl+R opens the risk for one patient.  F1 explains the result that has the keyboard "
+            "focus (what it is, how to read it, what counts as enough); Ctrl+0 hides or shows the data pane."))
 
     def _about(self) -> None:
         import twofold
