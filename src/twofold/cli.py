@@ -15,7 +15,8 @@ import sys
 from pathlib import Path
 
 from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
-    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, suppress_limit,
+    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_net_benefit_option, add_report_options, report_options_need_a_place,
+    suppress_limit,
 )
 
 SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
@@ -48,6 +49,7 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="add the interaction of two predictors")
     p.add_argument("--validate", type=_repetitions, metavar="B", help="bootstrap optimism correction with B resamples")
     p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
+    add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -140,6 +142,7 @@ def _spec(args):
         firth=args.firth,
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
+        net_benefit=args.net_benefit,
     )
 
 

@@ -16,7 +16,9 @@ import os
 import sys
 from pathlib import Path
 
-from twofold.command_options import EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place
+from twofold.command_options import (
+    EXIT_USAGE, CommandParser, add_net_benefit_option, add_report_options, report_options_need_a_place,
+)
 
 def _same_file(a, b) -> bool:
     try:
@@ -121,6 +123,7 @@ def _rerun_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "default for a re-run: the session's own")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    add_net_benefit_option(p, "on the new rows (default: the session's own thresholds, if it has any)")
     return p
 
 
@@ -162,6 +165,9 @@ def _frozen_text(record: dict, source: str) -> str:
         lines.append("  Risk groups (people, mean predicted risk, observed share):")
         for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
             lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
+    from twofold.core.outputs.text import decision_lines
+
+    lines.extend(decision_lines(record))
     if record["warnings"]:
         lines.append("Warnings")
         lines.extend(f"  - {w['message']}" for w in record["warnings"])
@@ -235,6 +241,7 @@ def _rerun(args):
 
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
                                  threshold=session["threshold"])
+        _frozen_decision_curve(result, args.net_benefit if args.net_benefit is not None else session["net_benefit"])
         if args.report:
             from twofold.render.report_writer import write_report
 
@@ -246,6 +253,8 @@ def _rerun(args):
     from twofold.core.models.study import Study
 
     spec = ses.spec_from_session(session, data)
+    if args.net_benefit is not None:
+        spec.net_benefit = args.net_benefit
     present = {str(c) for c in table.frame.columns}
     # A column missing from this extract no longer limits the rows (noted above); "A:B" stands for two columns.
     spec.rows_complete_in = [c for c in spec.rows_complete_in
@@ -262,6 +271,16 @@ def _rerun(args):
         write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
                      include_records=options["list_records"])
     return result.record, result.study.source
+
+
+def _frozen_decision_curve(result, setting) -> None:
+    """Add the decision curve of a saved model on the new rows to its record, when thresholds are set."""
+    if setting is None:
+        return
+    from twofold.core.analysis import add_decision_curve
+    from twofold.core.assessing.decision import grid_from_setting
+
+    add_decision_curve(result.record, result.y, result.predicted, grid_from_setting(setting))
 
 
 # ---------------------------------------------------------------------------

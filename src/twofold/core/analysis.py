@@ -49,6 +49,9 @@ class AnalysisSpec:
         (the window saves the columns of every model of its ladder here, so
         a re-run fits on the ladder's common rows).  Empty: the rows complete
         for the model alone.
+    net_benefit : list of float, optional
+        ``[LOW, HIGH, STEP]``: threshold risks of a decision curve (net
+        benefit), added as ``net_benefit`` to the record (None: none).
     """
 
     data: str
@@ -67,6 +70,7 @@ class AnalysisSpec:
     validate: int | None = None
     seed: int | None = None
     rows_complete_in: list = field(default_factory=list)
+    net_benefit: list | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -230,6 +234,16 @@ def count_rows_left_out(study, fit, columns) -> None:
     fit.notices = notices
 
 
+def add_decision_curve(record: dict, y, p, thresholds, optimism=None):
+    """Add ``net_benefit`` (and its ``net_benefit_summary``) to a record; returns the curve."""
+    from twofold.core.assessing.decision import decision_curve
+
+    curve = decision_curve(y, p, thresholds, optimism)
+    record["net_benefit"] = curve.as_records()
+    record["net_benefit_summary"] = curve.summary()
+    return curve
+
+
 def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> AnalysisResult:
     """Fit, test and assess the model a spec describes.
 
@@ -299,11 +313,19 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
             {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
             for t in interaction_tests(study, fit)]
     validation = None
+    thresholds = None
+    if spec.net_benefit is not None:
+        from twofold.core.assessing.decision import grid_from_setting
+
+        thresholds = grid_from_setting(spec.net_benefit)
     if spec.validate:
-        validation = bootstrap_validation(fit, spec.validate, seed=spec.seed)
+        validation = bootstrap_validation(fit, spec.validate, seed=spec.seed, thresholds=thresholds)
         from twofold.core.outputs.summary import validation_record
 
         record["validation"] = validation_record(validation, fit)
+    if thresholds is not None:
+        add_decision_curve(record, fit.design.y, fit.fitted, thresholds,
+                           None if validation is None else validation.net_benefit_optimism)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
     return result

@@ -217,6 +217,7 @@ def describe(record: dict, source: str = "") -> str:
     if record.get("assessment"):
         out.extend(describe_assessment(record["assessment"], record))
     out.extend(_validation_lines(record))
+    out.extend(decision_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -372,4 +373,35 @@ def _validation_lines(record: dict) -> list[str]:
     out.append("  " + corrected_sample_size_text(v, record["rows_used"]))
     if v.get("failed"):
         out.append(f"  {v['failed']:,} resamples could not be fitted and were left out.")
+    return out
+
+
+#: At most this many thresholds of a decision curve are printed in the plain-text account.
+DECISION_ROWS_SHOWN = 11
+
+
+def decision_lines(record: dict) -> list[str]:
+    """The decision curve of a record (``net_benefit``), its reading and a short table; [] when none."""
+    curve = record.get("net_benefit")
+    if not curve:
+        return []
+    summary = record.get("net_benefit_summary") or {}
+    corrected = "model_corrected" in curve[0]
+    out = ["", "Decision curve (net benefit per person; treating no one is 0)"]
+    if summary.get("reading"):
+        out.append("  " + summary["reading"])
+    head = f"    {'threshold':>9}  {'model':>8}" + (f"  {'corrected':>9}" if corrected else "") + f"  {'treat all':>9}"
+    out.append(head)
+    step = max(1, -(-len(curve) // DECISION_ROWS_SHOWN))
+    shown = curve[::step] if curve[-1] in curve[::step] else curve[::step] + [curve[-1]]
+    for e in shown:
+        threshold = f"{100 * e['threshold']:.4g}%"
+        row = f"    {threshold:>9}  {fmt_num(e['model'], 4):>8}"
+        if corrected:
+            row += f"  {fmt_num(e['model_corrected'], 4):>9}"
+        out.append(row + f"  {fmt_num(e['treat_all'], 4):>9}")
+    if len(shown) < len(curve):
+        out.append(f"    ({len(shown)} of {len(curve)} thresholds shown; every one is in the JSON)")
+    if summary.get("note"):
+        out.append("  " + summary["note"])
     return out
