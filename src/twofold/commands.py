@@ -165,8 +165,9 @@ def _frozen_text(record: dict, source: str) -> str:
         lines.append("  Risk groups (people, mean predicted risk, observed share):")
         for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
             lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
-    from twofold.core.outputs.text import decision_lines
+    from twofold.core.outputs.text import decision_lines, external_lines
 
+    lines.extend(external_lines(record))
     lines.extend(decision_lines(record))
     if record["warnings"]:
         lines.append("Warnings")

@@ -155,3 +155,34 @@ def test_a_session_with_a_bad_saved_range_runs_nothing(saved, tmp_path, capsys):
         for extra in ([], ["--frozen"]):
             code, out, err = run(capsys, outputs.run_rerun, path, *extra)
             assert code == 2 and out == "" and err.count("\n") == 1, err
+
+
+def test_frozen_rerun_reports_the_fuller_validation(saved, tmp_path, capsys):
+    new, frame = shifted(tmp_path)
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--frozen", "--json", "-")
+    assert code == 0, err
+    rec = json.loads(out)
+    a = rec["assessment"]
+    session = json.loads((saved / "s.json").read_text())
+    y, p = saved_risks(session, frame)
+    lp = np.log(p / (1 - p))
+    # O/E from the saved model's risks computed here; more events than predicted in this extract.
+    oe = a["observed_expected"]
+    assert set(oe) == {"ratio", "ci_low", "ci_high", "observed", "expected"}
+    assert oe["observed"] == y.sum() and oe["expected"] == pytest.approx(p.sum(), rel=1e-10)
+    assert oe["ratio"] == pytest.approx(y.sum() / p.sum(), rel=1e-10) and oe["ci_low"] > 1
+    # Calibration slope and calibration-in-the-large intervals: statsmodels' logistic fits of y on lp, and of y
+    # with lp as offset (Van Calster et al. 2016, J Clin Epidemiol 74:167).
+    slope = sm.Logit(y, sm.add_constant(lp)).fit(disp=0).conf_int()[1]
+    large = sm.GLM(y, np.ones((len(y), 1)), family=sm.families.Binomial(), offset=lp).fit().conf_int()[0]
+    assert a["calibration_slope_ci"] == pytest.approx(list(slope), abs=1e-6)
+    assert a["calibration_intercept_ci"] == pytest.approx(list(large), abs=1e-6)
+    assert 0 <= a["e50"] <= a["e90"] and a["ici"] > 0.01  # 20% of non-events turned into events: miscalibrated
+    size = a["validation_sample_size"]
+    assert size["n_available"] == len(y) and size["met"] is (len(y) >= size["n_required"])
+    assert size["n_required"] == max(v for v in size["criteria"].values() if v is not None)
+    # The coefficients applied are the saved ones, by name.
+    assert rec["coefficients_applied"] == [{"name": n, "estimate": b} for n, b in
+                                           zip(session["model"]["names"], session["model"]["coefficients"])]
+    code, out, _ = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--frozen")
+    assert code == 0 and "Observed/expected events" in out and "Coefficients applied" in out and "(ICI)" in out

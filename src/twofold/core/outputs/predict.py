@@ -531,6 +531,13 @@ def _pseudo_fit(model: FrozenModel, X: np.ndarray, y: np.ndarray, rows: np.ndarr
     return LogisticFit(design, model.coefficients, model.covariance, llf, True, 0, kept, dropped, [])
 
 
+def coefficients_applied(model: FrozenModel) -> list[dict]:
+    """``coefficients_applied``: each saved coefficient as applied, {name, estimate}, intercept first."""
+    from twofold.core.outputs.summary import clean_number
+
+    return [{"name": name, "estimate": clean_number(b)} for name, b in zip(model.names, model.coefficients)]
+
+
 def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshold: float | None = None,
                     groups: int = 10) -> FrozenResult:
     """Apply a saved model, unchanged, to the rows of a data file and assess it there.
@@ -548,6 +555,7 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         a numeric predictor, or groups the saved model never saw.
     """
     from twofold.core.assessing.assessment import assess
+    from twofold.core.assessing.external import external_record
     from twofold.core.errors import Notice
     from twofold.core.models.study import Study
     from twofold.core.outputs.summary import CAUTION, clean_number, plain_value
@@ -606,6 +614,7 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "influential": [],
         "sample_size": None,
     })
+    rec.update(external_record(y, fit.fitted, fit.linear_predictor, a.auc.auc, a.smooth))
     record = {
         "frozen": True,
         "method": model.method,
@@ -621,6 +630,7 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "log_likelihood": clean_number(fit.llf),
         "null_log_likelihood": clean_number(fit.null_llf),
         "assessment": rec,
+        "coefficients_applied": coefficients_applied(model),
         "warnings": [n.as_dict() for n in notices],
         "caution": CAUTION,
     }

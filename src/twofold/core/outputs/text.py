@@ -405,3 +405,28 @@ def decision_lines(record: dict) -> list[str]:
     if summary.get("note"):
         out.append("  " + summary["note"])
     return out
+
+
+def external_lines(record: dict) -> list[str]:
+    """A frozen validation's O/E, calibration index, sample-size check and the coefficients applied."""
+    a = record.get("assessment") or {}
+    out = []
+    oe = a.get("observed_expected")
+    if oe:
+        out.append(f"  Observed/expected events {fmt_num(oe['ratio'], 3)} (95% interval {fmt_num(oe['ci_low'], 3)} to "
+                   f"{fmt_num(oe['ci_high'], 3)}): {oe['observed']:,} events observed, {fmt_num(oe['expected'], 1)} "
+                   "expected from the model (above 1: more events than predicted).")
+    if a.get("ici") is not None:
+        out.append(f"  Distance between predicted risks and the smoothed calibration curve: mean (ICI) "
+                   f"{fmt_num(a['ici'], 4)}, median (E50) {fmt_num(a['e50'], 4)}, 90th centile (E90) "
+                   f"{fmt_num(a['e90'], 4)} (0 is perfect).")
+    size = a.get("validation_sample_size")
+    if size and size.get("n_required") is not None:
+        verdict = "enough" if size["met"] else "fewer than needed, so read the intervals as wide"
+        out.append(f"  Rows needed for a precise validation (Riley et al. 2024): {size['n_required']:,}; this extract "
+                   f"has {size['n_available']:,}, {verdict}.")
+    applied = record.get("coefficients_applied")
+    if applied:
+        out.append("  Coefficients applied: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}" for c in applied)
+                   + ".")
+    return out
