@@ -19,7 +19,7 @@ from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit 
     suppress_limit,
 )
 
-SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
+SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict", "units")
 
 
 def _fit_parser() -> argparse.ArgumentParser:
@@ -172,7 +172,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if argv and argv[0] == "fit":
             return run_fit(argv[1:])
-        if argv and argv[0] in ("rerun", "predict"):
+        if argv and argv[0] in ("rerun", "predict", "units"):
             from twofold import commands as outputs
 
             return getattr(outputs, f"run_{argv[0]}")(argv[1:])
@@ -182,7 +182,8 @@ def main(argv: list[str] | None = None) -> int:
             return run_snapshot(argv[1:])
         if argv and argv[0] in ("-h", "--help"):
             print("usage: twofold [DATA] | twofold fit DATA --outcome COLUMN --predictor COLUMN ... | "
-                  "twofold snapshot DATA ... --out PNG")
+                  "twofold snapshot DATA ... --out PNG | twofold rerun SESSION ... | twofold predict SESSION ... | "
+                  "twofold units SESSION --unit COLUMN ...")
             return 0
         return run_gui(argv)
     except KeyboardInterrupt:

@@ -345,3 +345,69 @@ def run_predict(argv: list[str]) -> int:
         f"(95% interval {fmt_num(100 * pred.ci_low, 1)}% to {fmt_num(100 * pred.ci_high, 1)}%).\n"
         f"Caution: {PATIENT_CAUTION}\n")
     return 0
+
+
+# ---------------------------------------------------------------------------
+# twofold units
+# ---------------------------------------------------------------------------
+
+
+def _units_parser() -> argparse.ArgumentParser:
+    p = CommandParser(prog="twofold units",
+                      description="Compare wards, hospitals or teams: events observed against those the saved "
+                                  "model expects from each unit's patients, with funnel limits.")
+    p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
+    p.add_argument("--unit", required=True, metavar="COLUMN",
+                   help="the column naming each record's unit (ward, hospital, team); not a predictor of the model")
+    p.add_argument("--data", metavar="NEW", help="the extract to compare units in (default: the session's own data)")
+    p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    return p
+
+
+def run_units(argv: list[str]) -> int:
+    """``twofold units SESSION --unit COLUMN [--data NEW] [--json PATH|-]``: returns the exit code."""
+    args = _units_parser().parse_args(argv)
+    from twofold.core.errors import TwofoldError
+
+    from twofold.core.outputs.text import describe_units
+
+    try:
+        record = units_record(args.session, args.unit, args.data, json_target=args.json)
+        if args.json:
+            _emit_json(record, args.json)
+        else:
+            sys.stdout.write(describe_units(record))
+    except TwofoldError as exc:
+        print(f"twofold: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    return 0
+
+
+def units_record(session_file, unit: str, data=None, json_target=None) -> dict:
+    """The JSON of ``twofold units``: the saved model's expected events by unit, with funnel limits."""
+    from twofold.core.assessing.units import compare_units
+    from twofold.core.data.checks import require_column
+    from twofold.core.errors import ColumnError
+    from twofold.core.outputs import session as ses
+    from twofold.core.outputs.predict import score_file
+
+    session = ses.load_session(session_file)
+    path = Path(session["data"] if data is None else data)
+    ses.require_data_file(path)
+    _refuse_data_targets([json_target], path, session_file=session_file)
+    model = ses.frozen_from_session(session)
+    scored = score_file(model, path, sheet=session["sheet"])
+    frame, source = scored.study.frame, scored.study.source
+    column = require_column(frame.columns, unit, source)
+    if column == model.outcome:
+        raise ColumnError(f"'{column}' is the outcome of the model, not a unit; give --unit the column naming each "
+                          "record's ward, hospital or team.")
+    if column in model.columns:
+        raise ColumnError(f"'{column}' is a predictor of the model, so differences between its groups are already "
+                          "adjusted away; give --unit a column that is not a predictor (a ward, hospital or team).")
+    values = frame[column].iloc[scored.rows].to_numpy(dtype=object)
+    comparison = compare_units(values, scored.y, scored.predicted, column)
+    from twofold.core.outputs.summary import plain_value
+
+    return {**comparison.as_record(), "outcome": model.outcome, "event": plain_value(scored.event),
+            "data": source, "rows_read": int(len(frame))}

@@ -186,3 +186,62 @@ def test_frozen_rerun_reports_the_fuller_validation(saved, tmp_path, capsys):
                                            zip(session["model"]["names"], session["model"]["coefficients"])]
     code, out, _ = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--frozen")
     assert code == 0 and "Observed/expected events" in out and "Coefficients applied" in out and "(ICI)" in out
+
+
+# ---------------------------------------------------------------------------
+# twofold units
+# ---------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def wards(tmp_path_factory):
+    """The synthetic extract with an invented ward per admission (seeded); ward W03 has extra readmissions."""
+    frame = pd.read_csv(READMIT)
+    rng = np.random.default_rng(318)
+    frame["ward"] = rng.choice([f"W{i:02d}" for i in range(12)], size=len(frame))
+    worse = (frame.ward == "W03") & (frame[OUTCOME] == 0) & (rng.random(len(frame)) < 0.3)
+    frame.loc[worse, OUTCOME] = 1
+    path = tmp_path_factory.mktemp("wards") / "wards.csv"
+    frame.to_csv(path, index=False)
+    return path, frame
+
+
+def test_units_json_follows_the_contract_and_flags_the_ward(saved, wards, capsys):
+    path, frame = wards
+    code, out, err = run(capsys, main, "units", saved / "s.json", "--unit", "ward", "--data", path, "--json", "-")
+    assert code == 0, err
+    rec = json.loads(out)
+    assert {"unit_column", "units", "limits", "overdispersion"} <= set(rec) and rec["unit_column"] == "ward"
+    assert set(rec["limits"]) == {"95", "99.8"} and all(len(v) == 3 for v in rec["limits"]["99.8"])
+    assert {"statistic", "df", "p_value", "factor"} <= set(rec["overdispersion"])
+    for u in rec["units"]:
+        assert {"unit", "observed", "expected", "ratio", "ci_low", "ci_high", "verdict"} <= set(u)
+    # Expected events: the saved model's risks computed here, summed by ward with pandas (indirect standardisation).
+    y, p = saved_risks(json.loads((saved / "s.json").read_text()), frame)
+    complete = frame[PREDICTORS + [OUTCOME]].dropna().index  # the rows design() keeps
+    sums = pd.DataFrame({"ward": frame.ward.loc[complete].to_numpy(), "y": y, "p": p}).groupby("ward").sum()
+    got = {u["unit"]: u for u in rec["units"]}
+    for ward, row in sums.iterrows():
+        assert got[ward]["observed"] == row.y and got[ward]["expected"] == pytest.approx(row.p, rel=1e-10)
+    assert "beyond what chance easily explains" in got["W03"]["verdict"]
+    code, out, _ = run(capsys, main, "units", saved / "s.json", "--unit", "ward", "--data", path)
+    assert code == 0 and "W03" in out and "Caution:" in out
+
+
+@pytest.mark.parametrize("unit, fragment", [
+    ("wardd", "no column 'wardd'"),
+    ("age", "is a predictor"),
+    (OUTCOME, "is the outcome"),
+    ("admission_id", "different values"),
+])
+def test_units_refusals_are_one_line(saved, wards, capsys, unit, fragment):
+    code, out, err = run(capsys, main, "units", saved / "s.json", "--unit", unit, "--data", wards[0])
+    assert code == 2 and out == "" and err.count("\n") == 1 and fragment in err, err
+
+
+def test_units_without_a_unit_option_or_on_the_session_data(saved, capsys):
+    code, out, err = usage(capsys, main, "units", saved / "s.json")
+    assert code == 2 and "--unit" in err and err.count("\n") == 1
+    # The session's own extract has no ward column: named in one sentence.
+    code, out, err = run(capsys, main, "units", saved / "s.json", "--unit", "ward")
+    assert code == 2 and "'ward'" in err and err.count("\n") == 1

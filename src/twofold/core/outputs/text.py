@@ -430,3 +430,26 @@ def external_lines(record: dict) -> list[str]:
         out.append("  Coefficients applied: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}" for c in applied)
                    + ".")
     return out
+
+
+def describe_units(record: dict) -> str:
+    """The plain-text account of a comparison of units."""
+    lines = [f"Events by '{record['unit_column']}' against those the model expects from each unit's patients "
+             f"({record['rows_used']:,} rows)"]
+    width = max(len(str(u["unit"])) for u in record["units"])
+    lines.append(f"  {'unit':<{width}}  {'rows':>7}  {'observed':>8}  {'expected':>8}  {'O/E':>6}  {'95% interval':>15}")
+    for u in record["units"]:
+        ci = f"{fmt_num(u['ci_low'], 2)} to {fmt_num(u['ci_high'], 2)}"
+        lines.append(f"  {str(u['unit']):<{width}}  {u['rows']:>7,}  {u['observed']:>8,}  {fmt_num(u['expected'], 1):>8}  "
+                     f"{fmt_num(u['ratio'], 2):>6}  {ci:>15}  {u['verdict']}")
+    d = record["overdispersion"]
+    if d["df"]:
+        lines.append(f"  Spread between units beyond chance (overdispersion): {fmt_num(d['statistic'], 2)} on "
+                     f"{d['df']} degrees of freedom, p-value {fmt_p(d['p_value'])}; "
+                     + (f"the limits are widened by a factor of {fmt_num(d['factor'], 2)}." if d["present"]
+                        else "no more than chance, so the limits are the exact Poisson ones."))
+    if record["rows_without_unit"]:
+        lines.append(f"  {record['rows_without_unit']:,} rows without a unit were left out.")
+    lines.append("")
+    lines.append("Caution: " + record["caution"])
+    return "\n".join(lines) + "\n"
