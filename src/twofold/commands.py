@@ -124,7 +124,16 @@ def _rerun_parser() -> argparse.ArgumentParser:
     add_report_options(p, "default for a re-run: the session's own")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
     add_net_benefit_option(p, "on the new rows (default: the session's own thresholds, if it has any)")
+    _add_adapt_options(p)
     return p
+
+
+def _add_adapt_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--adapt", action="store_true",
+                   help="apply the saved model to the new rows and choose how to adapt it (none, a new intercept, "
+                        "a new intercept and slope, or re-estimating every coefficient) by a closed sequence of "
+                        "likelihood-ratio tests")
+    p.add_argument("--session-out", metavar="PATH", help="with --adapt: save the adapted model as a new session")
 
 
 def _emit_json(record: dict, target: str) -> None:
@@ -165,9 +174,10 @@ def _frozen_text(record: dict, source: str) -> str:
         lines.append("  Risk groups (people, mean predicted risk, observed share):")
         for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
             lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
-    from twofold.core.outputs.text import decision_lines, external_lines
+    from twofold.core.outputs.text import adaptation_lines, decision_lines, external_lines
 
     lines.extend(external_lines(record))
+    lines.extend(adaptation_lines(record))
     lines.extend(decision_lines(record))
     if record["warnings"]:
         lines.append("Warnings")
@@ -186,6 +196,9 @@ def run_rerun(argv: list[str]) -> int:
     parser = _rerun_parser()
     args = parser.parse_args(argv)
     report_options_need_a_place(parser, args, {"--report": args.report})
+    if args.session_out and not args.adapt:
+        parser.error("--session-out saves an adapted model, so it needs --adapt; add --adapt or leave it out")
+    args.frozen = args.frozen or args.adapt  # adapting starts from the saved model applied unchanged
     from twofold.core.errors import TwofoldError
 
     try:
@@ -243,6 +256,8 @@ def _rerun(args):
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
                                  threshold=session["threshold"])
         _frozen_decision_curve(result, args.net_benefit if args.net_benefit is not None else session["net_benefit"])
+        if args.adapt:
+            _adapt(result, session, data, args)
         if args.report:
             from twofold.render.report_writer import write_report
 
@@ -272,6 +287,20 @@ def _rerun(args):
         write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
                      include_records=options["list_records"])
     return result.record, result.study.source
+
+
+def _adapt(result, session, data, args) -> None:
+    """Add ``adaptation`` to a frozen result's record and, with ``--session-out``, save the adapted model."""
+    from twofold.core.models.updating import adapt_model
+
+    adaptation = adapt_model(result.model, result.X, result.y, source=result.source)
+    result.record["adaptation"] = adaptation.as_dict()
+    if args.session_out:
+        from twofold.core.outputs.session import adapted_session
+        from twofold.core.outputs.storage import save_session
+
+        _refuse_data_targets([args.session_out], data, session_file=args.session)
+        save_session(adapted_session(session, adaptation.model, data, result.rows_read), args.session_out)
 
 
 def _frozen_decision_curve(result, setting) -> None:

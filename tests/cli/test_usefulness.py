@@ -245,3 +245,52 @@ def test_units_without_a_unit_option_or_on_the_session_data(saved, capsys):
     # The session's own extract has no ward column: named in one sentence.
     code, out, err = run(capsys, main, "units", saved / "s.json", "--unit", "ward")
     assert code == 2 and "'ward'" in err and err.count("\n") == 1
+
+
+# ---------------------------------------------------------------------------
+# twofold rerun --adapt
+# ---------------------------------------------------------------------------
+
+
+def test_rerun_adapt_chooses_and_saves_the_adapted_model(saved, tmp_path, capsys):
+    new, frame = shifted(tmp_path)  # more events everywhere: the intercept moved
+    out_session = tmp_path / "adapted.json"
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--adapt",
+                         "--session-out", out_session, "--json", "-")
+    assert code == 0, err
+    a = json.loads(out)["adaptation"]
+    assert a["chosen"] in ("none", "intercept", "intercept_and_slope", "refit")
+    assert all({"step", "g", "df", "p_value"} <= set(t) for t in a["tests"])
+    assert a["tests"][0]["step"] == "refit_vs_none" and a["tests"][0]["df"] == 4
+    # Recalibration in the large, checked with statsmodels' GLM: the new intercept alone.
+    session = json.loads((saved / "s.json").read_text())
+    y, p = saved_risks(session, frame)
+    lp = np.log(p / (1 - p))
+    a_alone = sm.GLM(y, np.ones((len(y), 1)), family=sm.families.Binomial(), offset=lp).fit().params[0]
+    assert a["recalibration"]["intercept_alone"] == pytest.approx(a_alone, abs=1e-6)
+    # The adapted session predicts with the adapted coefficients.
+    adapted = json.loads(out_session.read_text())
+    assert adapted["model"]["coefficients"] == pytest.approx([c["estimate"] for c in a["coefficients"]])
+    code, out, err = run(capsys, main, "predict", out_session, "--value", "age=60", "--value", "prior_admissions=1",
+                         "--value", "lives_alone=yes", "--json", "-")
+    assert code == 0, err
+    b = adapted["model"]["coefficients"]
+    assert json.loads(out)["probability"] == pytest.approx(expit(b[0] + 60 * b[1] + b[2] + b[3]), rel=1e-12)
+    code, out, _ = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--adapt")
+    assert code == 0 and "Adapting the saved model" in out and a["reading"] in out
+
+
+def test_rerun_adapt_refusals(saved, tmp_path, capsys):
+    code, out, err = usage(capsys, outputs.run_rerun, saved / "s.json", "--session-out", tmp_path / "x.json")
+    assert code == 2 and "--adapt" in err and err.count("\n") == 1
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--adapt", "--session-out", READMIT)
+    assert code == 2 and "data file" in err and err.count("\n") == 1
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--adapt", "--session-out", saved / "s.json")
+    assert code == 2 and "session file being read" in err and err.count("\n") == 1
+
+
+def test_rerun_adapt_on_too_few_rows_is_one_sentence(saved, tmp_path, capsys):
+    tiny = tmp_path / "tiny.csv"
+    pd.read_csv(READMIT).iloc[:12].to_csv(tiny, index=False)
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", tiny, "--adapt")
+    assert code == 2 and out == "" and err.count("\n") == 1 and "tiny.csv" in err

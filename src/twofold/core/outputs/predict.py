@@ -495,6 +495,8 @@ class FrozenResult:
     record: dict
     notices: list
     frozen: bool = True
+    #: The saved model's design on the rows used (kept columns, intercept first).
+    X: np.ndarray | None = None
 
     @property
     def rows_used(self) -> int:
@@ -671,4 +673,4 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "caution": CAUTION,
     }
     return FrozenResult(model, study.source, str(path), int(len(frame)), record["rows_missing_outcome"], missing_by,
-                        y, np.asarray(fit.fitted), a, record, notices)
+                        y, np.asarray(fit.fitted), a, record, notices, X=X)

@@ -453,3 +453,19 @@ def describe_units(record: dict) -> str:
     lines.append("")
     lines.append("Caution: " + record["caution"])
     return "\n".join(lines) + "\n"
+
+
+def adaptation_lines(record: dict) -> list[str]:
+    """``rerun --adapt``: the closed sequence of tests, each with its reading, and the choice."""
+    a = record.get("adaptation")
+    if not a:
+        return []
+    out = ["", "Adapting the saved model to these records (closed testing, each step at the 5% level)"]
+    for t in a["tests"]:
+        out.append(f"  {t['step']}: G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. "
+                   f"{t['reading']}")
+    out.append("  " + a["reading"])
+    out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
+                                                     for c in a["coefficients"]) + ".")
+    return out
+
