@@ -50,6 +50,8 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--validate", type=_repetitions, metavar="B", help="bootstrap optimism correction with B resamples")
     p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
     add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
+    p.add_argument("--subgroups", metavar="COLUMN", help="show AUC and calibration within the groups of a column "
+                                                         "(sex, age band, site)")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -142,7 +144,7 @@ def _spec(args):
         firth=args.firth,
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
-        net_benefit=args.net_benefit,
+        net_benefit=args.net_benefit, subgroups=args.subgroups,
     )
 
 

@@ -58,11 +58,16 @@ def saved(tmp_path_factory):
     return folder
 
 
-def test_fit_net_benefit_matches_a_statsmodels_fit_counted_by_hand(capsys):
-    code, out, err = run(capsys, main, "fit", READMIT, "--outcome", OUTCOME, "--predictor", *PREDICTORS,
-                         "--net-benefit", "0.05:0.5:0.01", "--json", "-")
+def fit_json(capsys, *extra) -> dict:
+    """``twofold fit`` of the usual model with ``extra`` options, its JSON read back."""
+    code, out, err = run(capsys, main, "fit", READMIT, "--outcome", OUTCOME, "--predictor", *PREDICTORS, *extra,
+                         "--json", "-")
     assert code == 0, err
-    rec = json.loads(out)
+    return json.loads(out)
+
+
+def test_fit_net_benefit_matches_a_statsmodels_fit_counted_by_hand(capsys):
+    rec = fit_json(capsys, "--net-benefit", "0.05:0.5:0.01")
     curve = rec["net_benefit"]
     assert len(curve) == 46 and all(set(e) == {"threshold", "model", "treat_all"} for e in curve)
     # The model's risks from statsmodels' own fit of the same design.
@@ -294,3 +299,36 @@ def test_rerun_adapt_on_too_few_rows_is_one_sentence(saved, tmp_path, capsys):
     pd.read_csv(READMIT).iloc[:12].to_csv(tiny, index=False)
     code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", tiny, "--adapt")
     assert code == 2 and out == "" and err.count("\n") == 1 and "tiny.csv" in err
+
+
+# ---------------------------------------------------------------------------
+# twofold fit --subgroups
+# ---------------------------------------------------------------------------
+
+
+def test_fit_subgroups_in_the_json_and_the_account(capsys):
+    rec = fit_json(capsys, "--subgroups", "followup_call")
+    groups = rec["subgroups"]
+    assert [g["group"] for g in groups] == ["no", "yes"]
+    for g in groups:
+        assert {"group", "rows", "auc", "auc_ci", "calibration_intercept", "calibration_slope"} <= set(g)
+    # Rows: pandas counts among the complete rows; calibration-in-the-large: statsmodels on the group.
+    frame = pd.read_csv(READMIT)
+    complete = frame.loc[frame[PREDICTORS + [OUTCOME]].dropna().index]  # the rows design() keeps
+    y, X = design(frame)
+    lp = X @ sm.Logit(y, X).fit(disp=0).params
+    for g in groups:
+        m = (complete.followup_call == g["group"]).to_numpy()
+        assert g["rows"] == m.sum()
+        large = sm.GLM(y[m], np.ones((m.sum(), 1)), family=sm.families.Binomial(), offset=lp[m]).fit()
+        assert g["calibration_intercept"] == pytest.approx(large.params[0], abs=1e-5)
+    code, out, _ = run(capsys, main, "fit", READMIT, "--outcome", OUTCOME, "--predictor", *PREDICTORS,
+                       "--subgroups", "followup_call")
+    assert code == 0 and "Performance within groups" in out
+
+
+@pytest.mark.parametrize("column, fragment", [("nope", "no column 'nope'"), ("admission_id", "different values")])
+def test_fit_subgroups_refusals_are_one_line(capsys, column, fragment):
+    code, out, err = run(capsys, main, "fit", READMIT, "--outcome", OUTCOME, "--predictor", "age",
+                         "--subgroups", column)
+    assert code == 2 and out == "" and err.count("\n") == 1 and fragment in err

@@ -52,6 +52,9 @@ class AnalysisSpec:
     net_benefit : list of float, optional
         ``[LOW, HIGH, STEP]``: threshold risks of a decision curve (net
         benefit), added as ``net_benefit`` to the record (None: none).
+    subgroups : str, optional
+        A column whose groups the model's performance is shown in, added as
+        ``subgroups`` to the record (None: none).
     """
 
     data: str
@@ -71,6 +74,7 @@ class AnalysisSpec:
     seed: int | None = None
     rows_complete_in: list = field(default_factory=list)
     net_benefit: list | None = None
+    subgroups: str | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -244,6 +248,15 @@ def add_decision_curve(record: dict, y, p, thresholds, optimism=None):
     return curve
 
 
+def add_subgroups(record: dict, frame, column: str, rows, y, p, lp) -> None:
+    """Add ``subgroups`` (performance within the groups of ``column`` on ``rows`` of ``frame``) and its note."""
+    from twofold.core.assessing.subgroups import SUBGROUP_NOTE, subgroup_performance
+
+    groups = frame[column].iloc[rows].to_numpy(dtype=object)
+    record["subgroups"] = subgroup_performance(groups, y, p, lp, column)
+    record["subgroups_note"] = SUBGROUP_NOTE
+
+
 def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> AnalysisResult:
     """Fit, test and assess the model a spec describes.
 
@@ -326,6 +339,9 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
     if thresholds is not None:
         add_decision_curve(record, fit.design.y, fit.fitted, thresholds,
                            None if validation is None else validation.net_benefit_optimism)
+    if spec.subgroups is not None:
+        add_subgroups(record, study.frame, study.column(str(spec.subgroups)), fit.design.rows, fit.design.y,
+                      fit.fitted, fit.linear_predictor)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
     return result

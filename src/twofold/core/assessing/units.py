@@ -21,7 +21,6 @@ Garwood F (1936). Fiducial limits for the Poisson distribution. Biometrika
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -185,6 +184,35 @@ def _verdict(ratio: float, bounds: dict) -> str:
     return VERDICTS["within"]
 
 
+def factorize_groups(values, column: str, role: str, most: int, what: str):
+    """(has, codes, labels): which records have a group, the code of each of those, and the sorted groups.
+
+    Numbers and text mixed in one column (as a workbook can hold them) are
+    compared as text when they cannot be sorted together.
+
+    Raises
+    ------
+    ColumnError
+        No record with a group, or more than ``most`` groups; the message
+        names the ``role`` of the column ("unit", "subgroup") and ``what``
+        a fitting column holds.
+    """
+    import pandas as pd
+
+    series = pd.Series(values, dtype=object).reset_index(drop=True)
+    has = series.notna().to_numpy()
+    try:
+        codes, labels = pd.factorize(series[has], sort=True)
+    except TypeError:
+        codes, labels = pd.factorize(series[has].astype(str), sort=True)
+    if not has.any():
+        raise ColumnError(f"The {role} column '{column}' is empty in every row used; choose a column of {what}.")
+    if len(labels) > most:
+        raise ColumnError(f"The {role} column '{column}' has {len(labels):,} different values, more than the "
+                          f"{most:,} groups Twofold compares; choose a column of {what}, not a record number.")
+    return has, codes, labels
+
+
 def compare_units(unit_values, y, p, unit_column: str, points: int = LIMIT_POINTS) -> UnitComparison:
     """Risk-adjusted comparison of the units named by ``unit_values`` (one per record; None/NaN: no unit).
 
@@ -202,23 +230,9 @@ def compare_units(unit_values, y, p, unit_column: str, points: int = LIMIT_POINT
     ModelError
         No record with a unit, a single unit, or more than :data:`MAX_UNITS` units.
     """
-    import pandas as pd
-
     y = np.asarray(y, dtype=float)
     p = np.asarray(p, dtype=float)
-    units = pd.Series(unit_values).reset_index(drop=True)
-    has = units.notna().to_numpy()
-    if not has.any():
-        raise ColumnError(f"The unit column '{unit_column}' is empty in every usable row; choose a column that "
-                          "names each record's ward, hospital or team.")
-    try:
-        codes, labels = pd.factorize(units[has], sort=True)
-    except TypeError:  # numbers and text mixed in one column (a workbook): compared as text
-        codes, labels = pd.factorize(units[has].astype(str), sort=True)
-    if len(labels) > MAX_UNITS:
-        raise ColumnError(f"The unit column '{unit_column}' has {len(labels):,} different values, more than the "
-                          f"{MAX_UNITS:,} units Twofold compares; choose a column that groups records into units "
-                          "(a ward or hospital, not a record number).")
+    has, codes, labels = factorize_groups(unit_values, unit_column, "unit", MAX_UNITS, "wards, hospitals or teams")
     if len(labels) < 2:
         raise ModelError(f"The unit column '{unit_column}' holds a single unit, so there is nothing to compare; "
                          "choose a column with two or more units.")

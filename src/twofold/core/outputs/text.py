@@ -218,6 +218,7 @@ def describe(record: dict, source: str = "") -> str:
         out.extend(describe_assessment(record["assessment"], record))
     out.extend(_validation_lines(record))
     out.extend(decision_lines(record))
+    out.extend(subgroup_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -467,5 +468,31 @@ def adaptation_lines(record: dict) -> list[str]:
     out.append("  " + a["reading"])
     out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
                                                      for c in a["coefficients"]) + ".")
+    return out
+
+
+def subgroup_lines(record: dict) -> list[str]:
+    """``subgroups``: AUC and calibration within each group, with 95% intervals; [] when none."""
+    groups = record.get("subgroups")
+    if not groups:
+        return []
+
+    def ci(pair, digits):
+        return "n/a" if pair[0] is None else f"{fmt_num(pair[0], digits)} to {fmt_num(pair[1], digits)}"
+
+    out = ["", "Performance within groups (95% intervals)"]
+    for g in groups:
+        rows = "suppressed" if g["rows"] is None else f"{g['rows']:,} rows"
+        if g["auc"] is None:
+            out.append(f"  {g['group']} ({rows}): {g['note']}")
+            continue
+        line = f"  {g['group']} ({rows}): AUC {fmt_num(g['auc'], 3)} ({ci(g['auc_ci'], 3)})"
+        if g["calibration_slope"] is not None:
+            line += (f"; calibration-in-the-large {fmt_num(g['calibration_intercept'], 3)} "
+                     f"({ci(g['calibration_intercept_ci'], 3)}); slope {fmt_num(g['calibration_slope'], 3)} "
+                     f"({ci(g['calibration_slope_ci'], 3)})")
+        out.append(line + ".")
+    if record.get("subgroups_note"):
+        out.append("  " + record["subgroups_note"])
     return out
 
