@@ -98,6 +98,7 @@ def test_threshold_grid_includes_both_ends_as_written():
     ("a:b:c", "not a number"),
     ("0.1:0.5:nan", "ordinary numbers"),
     ("0.0001:0.9999:0.00001", "more than"),
+    ("0.1:0.5:5e-324", "more than"),
 ])
 def test_bad_ranges_are_refused_in_one_sentence(text, fragment):
     with pytest.raises(ModelError) as err:

@@ -123,6 +123,8 @@ def test_unusable_unit_columns_are_refused():
         compare_units(["a", "a", "a", "a"], y, p, "ward")
     with pytest.raises(TwofoldError, match="empty"):
         compare_units([None] * 4, y, p, "ward")
+    with pytest.raises(TwofoldError, match="no finite risk"):
+        compare_units(["a", "b", "a", "b"], y, np.array([0.5, np.nan, 0.5, 0.5]), "ward")
     many = np.arange(3000)
     with pytest.raises(TwofoldError, match="different values"):
         compare_units(many, np.tile([0, 1], 1500), np.full(3000, 0.5), "admission_id")

@@ -8,6 +8,7 @@ import statsmodels.api as sm
 from scipy.special import expit
 from scipy.stats import chi2
 
+from twofold.core.errors import ModelError
 from twofold.core.models.updating import adapt_model
 from twofold.core.outputs.predict import EncodedTerm, FrozenModel, predict
 
@@ -90,3 +91,10 @@ def test_new_intercept_adds_its_variance_to_a_prediction():
     # var(x'b + a) = x'Vx + var(a).
     assert pred.se ** 2 == pytest.approx(x @ saved_model().covariance @ x + var_a, rel=1e-6)
     assert pred.probability == pytest.approx(expit(x @ got.model.coefficients), rel=1e-12)
+
+
+def test_a_column_never_seen_in_the_extract_is_named():
+    X, y = new_rows(3, B)
+    X[:, 2] = 0.0  # as an indicator of a group that does not occur in the new extract
+    with pytest.raises(ModelError, match="x2 is 0 in every row of later.csv"):
+        adapt_model(saved_model(), X, y, source="later.csv")

@@ -66,10 +66,11 @@ def threshold_grid(low: float, high: float, step: float) -> np.ndarray:
                          "at most HIGH, for example 0.05:0.5:0.01.")
     if not step > 0:
         raise ModelError(f"The step {step:g} between thresholds should be above 0; give for example 0.05:0.5:0.01.")
-    count = int(math.floor((high - low) / step + 1e-9)) + 1
-    if count > MAX_THRESHOLDS:
-        raise ModelError(f"The range gives {count:,} thresholds, more than the {MAX_THRESHOLDS:,} allowed; "
-                         "take a larger step.")
+    steps = (high - low) / step + 1e-9
+    if not steps < MAX_THRESHOLDS:  # also a step so small that the count overflows
+        raise ModelError(f"The range {low:g} to {high:g} in steps of {step:g} gives more than the "
+                         f"{MAX_THRESHOLDS:,} thresholds allowed; take a larger step.")
+    count = int(math.floor(steps)) + 1
     return np.round(low + step * np.arange(count), 12)
 
 

@@ -232,6 +232,9 @@ def compare_units(unit_values, y, p, unit_column: str, points: int = LIMIT_POINT
     """
     y = np.asarray(y, dtype=float)
     p = np.asarray(p, dtype=float)
+    if not np.all(np.isfinite(p)):
+        raise ModelError("The model gives no finite risk for some records (a coefficient without a finite estimate), "
+                         "so expected events cannot be counted; refit the model (a Firth fit keeps estimates finite).")
     has, codes, labels = factorize_groups(unit_values, unit_column, "unit", MAX_UNITS, "wards, hospitals or teams")
     if len(labels) < 2:
         raise ModelError(f"The unit column '{unit_column}' holds a single unit, so there is nothing to compare; "

@@ -164,6 +164,11 @@ def adapt_model(model, X: np.ndarray, y: np.ndarray, alpha: float = ALPHA, sourc
                          "refit it (a Firth fit keeps estimates finite).")
     lp = X @ b
     k = X.shape[1]
+    absent = [name for name, col in zip(model.names[1:], X[:, 1:].T) if not np.any(col)]
+    if absent:
+        raise ModelError(f"The model's column {absent[0]} is 0 in every row of {source} (a group that does not occur "
+                         "there), so its coefficient cannot be re-estimated and the ways of adapting the model cannot "
+                         "be compared; use an extract in which every group of the model occurs.")
     ll = {"none": log_likelihood(y, lp)}
     where = f"the rows of {source}" if source != "these records" else source
     large = _logit(y, np.ones((len(y), 1)), offset=lp, source=where)
