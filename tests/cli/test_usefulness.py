@@ -332,3 +332,12 @@ def test_fit_subgroups_refusals_are_one_line(capsys, column, fragment):
     code, out, err = run(capsys, main, "fit", READMIT, "--outcome", OUTCOME, "--predictor", "age",
                          "--subgroups", column)
     assert code == 2 and out == "" and err.count("\n") == 1 and fragment in err
+
+
+def test_the_smaller_model_gets_its_own_net_benefit(capsys):
+    rec = fit_json(capsys, "--smaller", "age", "--net-benefit", "0.1:0.3:0.1")
+    # The smaller model (age alone) fitted by statsmodels on the same rows, counted by hand.
+    y, X = design(pd.read_csv(READMIT))
+    p = sm.Logit(y, X[:, :2]).fit(disp=0).predict(X[:, :2])
+    for e in rec["net_benefit"]:
+        assert e["smaller_model"] == pytest.approx(nb_by_hand(y, p, e["threshold"]), abs=1e-12)

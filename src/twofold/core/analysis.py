@@ -238,12 +238,20 @@ def count_rows_left_out(study, fit, columns) -> None:
     fit.notices = notices
 
 
-def add_decision_curve(record: dict, y, p, thresholds, optimism=None):
-    """Add ``net_benefit`` (and its ``net_benefit_summary``) to a record; returns the curve."""
-    from twofold.core.assessing.decision import decision_curve
+def add_decision_curve(record: dict, y, p, thresholds, optimism=None, smaller=None):
+    """Add ``net_benefit`` (and its ``net_benefit_summary``) to a record; returns the curve.
+
+    ``smaller``: the smaller model's risks on the same rows, whose net benefit
+    joins each entry as ``smaller_model``.
+    """
+    from twofold.core.assessing.decision import decision_curve, net_benefit_values
+    from twofold.core.outputs.summary import clean_number
 
     curve = decision_curve(y, p, thresholds, optimism)
     record["net_benefit"] = curve.as_records()
+    if smaller is not None:
+        for entry, nb in zip(record["net_benefit"], net_benefit_values(y, smaller, curve.thresholds)):
+            entry["smaller_model"] = clean_number(nb)
     record["net_benefit_summary"] = curve.summary()
     return curve
 
@@ -338,7 +346,8 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         record["validation"] = validation_record(validation, fit)
     if thresholds is not None:
         add_decision_curve(record, fit.design.y, fit.fitted, thresholds,
-                           None if validation is None else validation.net_benefit_optimism)
+                           None if validation is None else validation.net_benefit_optimism,
+                           None if smaller_fit is None else smaller_fit.fitted)
     if spec.subgroups is not None:
         add_subgroups(record, study.frame, study.column(str(spec.subgroups)), fit.design.rows, fit.design.y,
                       fit.fitted, fit.linear_predictor)

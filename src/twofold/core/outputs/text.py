@@ -388,10 +388,12 @@ def decision_lines(record: dict) -> list[str]:
         return []
     summary = record.get("net_benefit_summary") or {}
     corrected = "model_corrected" in curve[0]
+    smaller = "smaller_model" in curve[0]
     out = ["", "Decision curve (net benefit per person; treating no one is 0)"]
     if summary.get("reading"):
         out.append("  " + summary["reading"])
-    head = f"    {'threshold':>9}  {'model':>8}" + (f"  {'corrected':>9}" if corrected else "") + f"  {'treat all':>9}"
+    head = (f"    {'threshold':>9}  {'model':>8}" + (f"  {'corrected':>9}" if corrected else "")
+            + (f"  {'smaller':>8}" if smaller else "") + f"  {'treat all':>9}")
     out.append(head)
     step = max(1, -(-len(curve) // DECISION_ROWS_SHOWN))
     shown = curve[::step] if curve[-1] in curve[::step] else curve[::step] + [curve[-1]]
@@ -400,6 +402,8 @@ def decision_lines(record: dict) -> list[str]:
         row = f"    {threshold:>9}  {fmt_num(e['model'], 4):>8}"
         if corrected:
             row += f"  {fmt_num(e['model_corrected'], 4):>9}"
+        if smaller:
+            row += f"  {fmt_num(e['smaller_model'], 4):>8}"
         out.append(row + f"  {fmt_num(e['treat_all'], 4):>9}")
     if len(shown) < len(curve):
         out.append(f"    ({len(shown)} of {len(curve)} thresholds shown; every one is in the JSON)")
