@@ -134,6 +134,8 @@ def _add_adapt_options(p: argparse.ArgumentParser) -> None:
                         "a new intercept and slope, or re-estimating every coefficient) by a closed sequence of "
                         "likelihood-ratio tests")
     p.add_argument("--session-out", metavar="PATH", help="with --adapt: save the adapted model as a new session")
+    p.add_argument("--subgroups", metavar="COLUMN",
+                   help="show AUC and calibration within the groups of a column (default: the session's own, if any)")
 
 
 def _emit_json(record: dict, target: str) -> None:
@@ -174,10 +176,11 @@ def _frozen_text(record: dict, source: str) -> str:
         lines.append("  Risk groups (people, mean predicted risk, observed share):")
         for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
             lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
-    from twofold.core.outputs.text import adaptation_lines, decision_lines, external_lines
+    from twofold.core.outputs.text import adaptation_lines, decision_lines, external_lines, subgroup_lines
 
     lines.extend(external_lines(record))
     lines.extend(adaptation_lines(record))
+    lines.extend(subgroup_lines(record))
     lines.extend(decision_lines(record))
     if record["warnings"]:
         lines.append("Warnings")
@@ -254,7 +257,7 @@ def _rerun(args):
         from twofold.core.outputs.predict import evaluate_frozen
 
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
-                                 threshold=session["threshold"])
+                                 threshold=session["threshold"], subgroups=args.subgroups or session["subgroups"])
         _frozen_decision_curve(result, args.net_benefit if args.net_benefit is not None else session["net_benefit"])
         if args.adapt:
             _adapt(result, session, data, args)
@@ -271,6 +274,8 @@ def _rerun(args):
     spec = ses.spec_from_session(session, data)
     if args.net_benefit is not None:
         spec.net_benefit = args.net_benefit
+    if args.subgroups is not None:
+        spec.subgroups = args.subgroups
     present = {str(c) for c in table.frame.columns}
     # A column missing from this extract no longer limits the rows (noted above); "A:B" stands for two columns.
     spec.rows_complete_in = [c for c in spec.rows_complete_in

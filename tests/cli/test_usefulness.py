@@ -341,3 +341,21 @@ def test_the_smaller_model_gets_its_own_net_benefit(capsys):
     p = sm.Logit(y, X[:, :2]).fit(disp=0).predict(X[:, :2])
     for e in rec["net_benefit"]:
         assert e["smaller_model"] == pytest.approx(nb_by_hand(y, p, e["threshold"]), abs=1e-12)
+
+
+def test_frozen_rerun_subgroups_on_a_new_extract(saved, tmp_path, capsys):
+    new, frame = shifted(tmp_path)
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--frozen",
+                         "--subgroups", "sex", "--json", "-")
+    assert code == 0, err
+    groups = {g["group"]: g for g in json.loads(out)["subgroups"]}
+    y, p = saved_risks(json.loads((saved / "s.json").read_text()), frame)
+    complete = frame.loc[frame[PREDICTORS + [OUTCOME]].dropna().index]
+    from sklearn.metrics import roc_auc_score
+
+    for sex in ("F", "M"):
+        m = (complete.sex == sex).to_numpy()
+        assert groups[sex]["rows"] == m.sum()
+        assert groups[sex]["auc"] == pytest.approx(roc_auc_score(y[m], np.round(p[m], 12)), abs=1e-10)
+    code, out, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--frozen", "--subgroups", "sx")
+    assert code == 2 and "'sx'" in err and err.count("\n") == 1

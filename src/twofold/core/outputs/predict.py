@@ -597,14 +597,15 @@ def score_file(model: FrozenModel, path, sheet: str | None = None) -> ScoredRows
 
 
 def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshold: float | None = None,
-                    groups: int = 10) -> FrozenResult:
+                    groups: int = 10, subgroups: str | None = None) -> FrozenResult:
     """Apply a saved model, unchanged, to the rows of a data file and assess it there.
 
     The design is rebuilt with the saved encoding (same reference levels and
     indicator columns); rows missing the outcome or a predictor are left out
     and counted.  Discrimination (AUC with DeLong CI), calibration slope and
     calibration-in-the-large (now informative), Brier score, Hosmer-Lemeshow
-    test and calibration groups are computed on those rows.
+    test and calibration groups are computed on those rows; with
+    ``subgroups`` (a column), the performance within its groups too.
 
     Raises
     ------
@@ -672,5 +673,11 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "warnings": [n.as_dict() for n in notices],
         "caution": CAUTION,
     }
+    if subgroups is not None:
+        from twofold.core.analysis import add_subgroups
+        from twofold.core.data.checks import require_column
+
+        add_subgroups(record, frame, require_column(frame.columns, str(subgroups), study.source), rows, y,
+                      fit.fitted, fit.linear_predictor)
     return FrozenResult(model, study.source, str(path), int(len(frame)), record["rows_missing_outcome"], missing_by,
                         y, np.asarray(fit.fitted), a, record, notices, X=X)
