@@ -87,7 +87,7 @@ def test_no_curve_gives_no_index():
 
 
 def test_sample_size_matches_the_worked_example_of_riley_et_al():
-    # Worked example published with Riley et al.'s method (Stat Med 2021; BMJ 2024): event proportion 0.018,
+    # Reference figures from the tests that Riley et al. published with their method's code: event proportion 0.018,
     # C-statistic 0.8, linear predictor ~ Normal(-5, 2.5); an O/E interval of width 1 needs 905 (searched there in
     # steps of 0.0001 of the SE, so one more or less here), a C-statistic interval of width 0.1 needs 4,252, and a
     # calibration-slope interval of width 0.2 about 4,500 (from 1,000 simulated linear predictors there, hence
