@@ -15,11 +15,12 @@ import sys
 from pathlib import Path
 
 from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
-    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, report_texts,
+    EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_net_benefit_option, add_report_options,
+    report_options_need_a_place, report_texts,
     suppress_limit,
 )
 
-SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict")
+SUBCOMMANDS = ("fit", "snapshot", "rerun", "predict", "units")
 
 
 def _fit_parser() -> argparse.ArgumentParser:
@@ -52,6 +53,9 @@ def _fit_parser() -> argparse.ArgumentParser:
                    help="add the interaction of two predictors")
     p.add_argument("--validate", type=_repetitions, metavar="B", help="bootstrap optimism correction with B resamples")
     p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
+    add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
+    p.add_argument("--subgroups", metavar="COLUMN", help="show AUC and calibration within the groups of a column "
+                                                         "(sex, age band, site)")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -147,6 +151,7 @@ def _spec(args):
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
         missing=parse_missing(getattr(args, "missing", [])),
+        net_benefit=args.net_benefit, subgroups=args.subgroups,
     )
 
 
@@ -176,7 +181,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if argv and argv[0] == "fit":
             return run_fit(argv[1:])
-        if argv and argv[0] in ("rerun", "predict"):
+        if argv and argv[0] in ("rerun", "predict", "units"):
             from twofold import commands as outputs
 
             return getattr(outputs, f"run_{argv[0]}")(argv[1:])
@@ -186,7 +191,8 @@ def main(argv: list[str] | None = None) -> int:
             return run_snapshot(argv[1:])
         if argv and argv[0] in ("-h", "--help"):
             print("usage: twofold [DATA] | twofold fit DATA --outcome COLUMN --predictor COLUMN ... | "
-                  "twofold snapshot DATA ... --out PNG")
+                  "twofold snapshot DATA ... --out PNG | twofold rerun SESSION ... | twofold predict SESSION ... | "
+                  "twofold units SESSION --unit COLUMN ...")
             return 0
         return run_gui(argv)
     except KeyboardInterrupt:

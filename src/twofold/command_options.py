@@ -95,3 +95,21 @@ def suppress_limit(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text} is out of range; give a whole number from 1 to {MAX_THRESHOLD}, "
                                          "e.g. 10")
     return value
+
+
+def net_benefit_range(text: str) -> list:
+    """The value of ``--net-benefit LOW:HIGH:STEP``: [low, high, step], threshold risks checked in the core."""
+    from twofold.core.assessing.decision import parse_range
+    from twofold.core.errors import TwofoldError
+
+    try:
+        return list(parse_range(text))
+    except TwofoldError as exc:
+        raise argparse.ArgumentTypeError(str(exc).rstrip(".")) from None
+
+
+def add_net_benefit_option(p: argparse.ArgumentParser, where: str) -> None:
+    """``--net-benefit LOW:HIGH:STEP``, shared by ``fit`` and ``rerun``."""
+    p.add_argument("--net-benefit", type=net_benefit_range, metavar="LOW:HIGH:STEP", default=None,
+                   help=f"decision curve: net benefit of acting on the model's risks at thresholds LOW to HIGH in "
+                        f"steps of STEP (risks, e.g. 0.05:0.5:0.01), beside treating everyone and no one, {where}")

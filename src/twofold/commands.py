@@ -16,8 +16,10 @@ import os
 import sys
 from pathlib import Path
 
-from twofold.command_options import (EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place,
-                                     report_texts)
+from twofold.command_options import (
+    EXIT_USAGE, CommandParser, add_net_benefit_option, add_report_options, report_options_need_a_place,
+    report_texts,
+)
 
 def _same_file(a, b) -> bool:
     try:
@@ -132,7 +134,19 @@ def _rerun_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "default for a re-run: the session's own")
     p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    add_net_benefit_option(p, "on the new rows (default: the session's own thresholds, if it has any)")
+    _add_adapt_options(p)
     return p
+
+
+def _add_adapt_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--adapt", action="store_true",
+                   help="apply the saved model to the new rows and choose how to adapt it (none, a new intercept, "
+                        "a new intercept and slope, or re-estimating every coefficient) by a closed sequence of "
+                        "likelihood-ratio tests")
+    p.add_argument("--session-out", metavar="PATH", help="with --adapt: save the adapted model as a new session")
+    p.add_argument("--subgroups", metavar="COLUMN",
+                   help="show AUC and calibration within the groups of a column (default: the session's own, if any)")
 
 
 def _emit_json(record: dict, target: str) -> None:
@@ -173,6 +187,12 @@ def _frozen_text(record: dict, source: str) -> str:
         lines.append("  Risk groups (people, mean predicted risk, observed share):")
         for n, p, o in zip(groups["n"], groups["mean_predicted"], groups["observed"]):
             lines.append(f"    {n:>7,}  {fmt_num(p, 3):>6}  {fmt_num(o, 3):>6}")
+    from twofold.core.outputs.text import adaptation_lines, decision_lines, external_lines, subgroup_lines
+
+    lines.extend(external_lines(record))
+    lines.extend(adaptation_lines(record))
+    lines.extend(subgroup_lines(record))
+    lines.extend(decision_lines(record))
     if record["warnings"]:
         lines.append("Warnings")
         lines.extend(f"  - {w['message']}" for w in record["warnings"])
@@ -190,6 +210,9 @@ def run_rerun(argv: list[str]) -> int:
     parser = _rerun_parser()
     args = parser.parse_args(argv)
     report_options_need_a_place(parser, args, {"--report": args.report})
+    if args.session_out and not args.adapt:
+        parser.error("--session-out saves an adapted model, so it needs --adapt; add --adapt or leave it out")
+    args.frozen = args.frozen or args.adapt  # adapting starts from the saved model applied unchanged
     from twofold.core.errors import TwofoldError
 
     try:
@@ -245,7 +268,10 @@ def _rerun(args):
         from twofold.core.outputs.predict import evaluate_frozen
 
         result = evaluate_frozen(ses.frozen_from_session(session), data, sheet=session["sheet"],
-                                 threshold=session["threshold"])
+                                 threshold=session["threshold"], subgroups=args.subgroups or session["subgroups"])
+        _frozen_decision_curve(result, args.net_benefit if args.net_benefit is not None else session["net_benefit"])
+        if args.adapt:
+            _adapt(result, session, data, args)
         if args.report:
             from twofold.render.report_writer import write_report
 
@@ -257,6 +283,10 @@ def _rerun(args):
     from twofold.core.models.study import Study
 
     spec = ses.spec_from_session(session, data)
+    if args.net_benefit is not None:
+        spec.net_benefit = args.net_benefit
+    if args.subgroups is not None:
+        spec.subgroups = args.subgroups
     present = {str(c) for c in table.frame.columns}
     # A column missing from this extract no longer limits the rows (noted above); "A:B" stands for two columns.
     spec.rows_complete_in = [c for c in spec.rows_complete_in
@@ -273,6 +303,30 @@ def _rerun(args):
         write_report(result, args.report, ladder=ladder, suppress_below=options["suppress_up_to"],
                      include_records=options["list_records"], details=options)
     return result.record, result.study.source
+
+
+def _adapt(result, session, data, args) -> None:
+    """Add ``adaptation`` to a frozen result's record and, with ``--session-out``, save the adapted model."""
+    from twofold.core.models.updating import adapt_model
+
+    adaptation = adapt_model(result.model, result.X, result.y, source=result.source)
+    result.record["adaptation"] = adaptation.as_dict()
+    if args.session_out:
+        from twofold.core.outputs.session import adapted_session
+        from twofold.core.outputs.storage import save_session
+
+        _refuse_data_targets([args.session_out], data, session_file=args.session)
+        save_session(adapted_session(session, adaptation.model, data, result.rows_read), args.session_out)
+
+
+def _frozen_decision_curve(result, setting) -> None:
+    """Add the decision curve of a saved model on the new rows to its record, when thresholds are set."""
+    if setting is None:
+        return
+    from twofold.core.analysis import add_decision_curve
+    from twofold.core.assessing.decision import grid_from_setting
+
+    add_decision_curve(result.record, result.y, result.predicted, grid_from_setting(setting))
 
 
 # ---------------------------------------------------------------------------
@@ -336,3 +390,69 @@ def run_predict(argv: list[str]) -> int:
         f"(95% interval {fmt_num(100 * pred.ci_low, 1)}% to {fmt_num(100 * pred.ci_high, 1)}%).\n"
         f"Caution: {PATIENT_CAUTION}\n")
     return 0
+
+
+# ---------------------------------------------------------------------------
+# twofold units
+# ---------------------------------------------------------------------------
+
+
+def _units_parser() -> argparse.ArgumentParser:
+    p = CommandParser(prog="twofold units",
+                      description="Compare wards, hospitals or teams: events observed against those the saved "
+                                  "model expects from each unit's patients, with funnel limits.")
+    p.add_argument("session", metavar="SESSION", help="a session file saved by Twofold")
+    p.add_argument("--unit", required=True, metavar="COLUMN",
+                   help="the column naming each record's unit (ward, hospital, team); not a predictor of the model")
+    p.add_argument("--data", metavar="NEW", help="the extract to compare units in (default: the session's own data)")
+    p.add_argument("--json", metavar="PATH|-", help="write the results as JSON to PATH, or to standard output with -")
+    return p
+
+
+def run_units(argv: list[str]) -> int:
+    """``twofold units SESSION --unit COLUMN [--data NEW] [--json PATH|-]``: returns the exit code."""
+    args = _units_parser().parse_args(argv)
+    from twofold.core.errors import TwofoldError
+
+    from twofold.core.outputs.text import describe_units
+
+    try:
+        record = units_record(args.session, args.unit, args.data, json_target=args.json)
+        if args.json:
+            _emit_json(record, args.json)
+        else:
+            sys.stdout.write(describe_units(record))
+    except TwofoldError as exc:
+        print(f"twofold: {exc}", file=sys.stderr)
+        return EXIT_USAGE
+    return 0
+
+
+def units_record(session_file, unit: str, data=None, json_target=None) -> dict:
+    """The JSON of ``twofold units``: the saved model's expected events by unit, with funnel limits."""
+    from twofold.core.assessing.units import compare_units
+    from twofold.core.data.checks import require_column
+    from twofold.core.errors import ColumnError
+    from twofold.core.outputs import session as ses
+    from twofold.core.outputs.predict import score_file
+
+    session = ses.load_session(session_file)
+    path = Path(session["data"] if data is None else data)
+    ses.require_data_file(path)
+    _refuse_data_targets([json_target], path, session_file=session_file)
+    model = ses.frozen_from_session(session)
+    scored = score_file(model, path, sheet=session["sheet"])
+    frame, source = scored.study.frame, scored.study.source
+    column = require_column(frame.columns, unit, source)
+    if column == model.outcome:
+        raise ColumnError(f"'{column}' is the outcome of the model, not a unit; give --unit the column naming each "
+                          "record's ward, hospital or team.")
+    if column in model.columns:
+        raise ColumnError(f"'{column}' is a predictor of the model, so differences between its groups are already "
+                          "adjusted away; give --unit a column that is not a predictor (a ward, hospital or team).")
+    values = frame[column].iloc[scored.rows].to_numpy(dtype=object)
+    comparison = compare_units(values, scored.y, scored.predicted, column)
+    from twofold.core.outputs.summary import plain_value
+
+    return {**comparison.as_record(), "outcome": model.outcome, "event": plain_value(scored.event),
+            "data": source, "rows_read": int(len(frame))}

@@ -51,6 +51,12 @@ class AnalysisSpec:
         (the window saves the columns of every model of its ladder here, so
         a re-run fits on the ladder's common rows).  Empty: the rows complete
         for the model alone.
+    net_benefit : list of float, optional
+        ``[LOW, HIGH, STEP]``: threshold risks of a decision curve (net
+        benefit), added as ``net_benefit`` to the record (None: none).
+    subgroups : str, optional
+        A column whose groups the model's performance is shown in, added as
+        ``subgroups`` to the record (None: none).
     """
 
     data: str
@@ -71,6 +77,8 @@ class AnalysisSpec:
     rows_complete_in: list = field(default_factory=list)
     #: Values that mean "missing", per column ("unknown", 999), applied before anything else.
     missing: dict = field(default_factory=dict)
+    net_benefit: list | None = None
+    subgroups: str | None = None
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -248,6 +256,33 @@ def count_rows_left_out(study, fit, columns) -> None:
     fit.notices = notices
 
 
+def add_decision_curve(record: dict, y, p, thresholds, optimism=None, smaller=None):
+    """Add ``net_benefit`` (and its ``net_benefit_summary``) to a record; returns the curve.
+
+    ``smaller``: the smaller model's risks on the same rows, whose net benefit
+    joins each entry as ``smaller_model``.
+    """
+    from twofold.core.assessing.decision import decision_curve, net_benefit_values
+    from twofold.core.outputs.summary import clean_number
+
+    curve = decision_curve(y, p, thresholds, optimism)
+    record["net_benefit"] = curve.as_records()
+    if smaller is not None:
+        for entry, nb in zip(record["net_benefit"], net_benefit_values(y, smaller, curve.thresholds)):
+            entry["smaller_model"] = clean_number(nb)
+    record["net_benefit_summary"] = curve.summary()
+    return curve
+
+
+def add_subgroups(record: dict, frame, column: str, rows, y, p, lp) -> None:
+    """Add ``subgroups`` (performance within the groups of ``column`` on ``rows`` of ``frame``) and its note."""
+    from twofold.core.assessing.subgroups import SUBGROUP_NOTE, subgroup_performance
+
+    groups = frame[column].iloc[rows].to_numpy(dtype=object)
+    record["subgroups"] = subgroup_performance(groups, y, p, lp, column)
+    record["subgroups_note"] = SUBGROUP_NOTE
+
+
 def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> AnalysisResult:
     """Fit, test and assess the model a spec describes.
 
@@ -318,11 +353,23 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
             {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
             for t in interaction_tests(study, fit)]
     validation = None
+    thresholds = None
+    if spec.net_benefit is not None:
+        from twofold.core.assessing.decision import grid_from_setting
+
+        thresholds = grid_from_setting(spec.net_benefit)
     if spec.validate:
-        validation = bootstrap_validation(fit, spec.validate, seed=spec.seed)
+        validation = bootstrap_validation(fit, spec.validate, seed=spec.seed, thresholds=thresholds)
         from twofold.core.outputs.summary import validation_record
 
         record["validation"] = validation_record(validation, fit)
+    if thresholds is not None:
+        add_decision_curve(record, fit.design.y, fit.fitted, thresholds,
+                           None if validation is None else validation.net_benefit_optimism,
+                           None if smaller_fit is None else smaller_fit.fitted)
+    if spec.subgroups is not None:
+        add_subgroups(record, study.frame, study.column(str(spec.subgroups)), fit.design.rows, fit.design.y,
+                      fit.fitted, fit.linear_predictor)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
     return result

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from twofold.core.assessing.decision import net_benefit_values
 from twofold.core.errors import ModelError, TwofoldError
 from twofold.core.models.fit import Z95, LogisticFit, nested_test
 
@@ -279,6 +280,9 @@ class Validation:
     #: Cox-Snell R-squared of the model's own risks, and its optimism (NaN in validations saved before).
     r2cs_apparent: float = float("nan")
     r2cs_optimism: float = float("nan")
+    #: With ``thresholds``: the thresholds and the optimism of the net benefit at each (not saved in sessions).
+    net_benefit_thresholds: tuple | None = None
+    net_benefit_optimism: tuple | None = None
 
     @property
     def cox_snell_r2_corrected(self) -> float:
@@ -360,7 +364,7 @@ def _performance(y, lp):
 
 
 def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | None = None,
-                         progress=None, cancelled=None, workers: int = 2) -> Validation:
+                         progress=None, cancelled=None, workers: int = 2, thresholds=None) -> Validation:
     """Harrell's bootstrap estimate of optimism for AUC, calibration slope and Brier score.
 
     In each of B resamples of the rows (with replacement) the whole model is
@@ -382,6 +386,11 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
     workers : int
         Threads (the linear algebra releases the interpreter lock, so two
         threads use both cores).
+    thresholds : array, optional
+        Threshold risks at which the optimism of the net benefit (decision
+        curve) is also estimated, from the same resamples and refits: net
+        benefit on the resample minus net benefit on the original rows,
+        averaged.  The other figures are the same with or without it.
     """
     from concurrent.futures import ThreadPoolExecutor
 
@@ -428,14 +437,21 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
             if not np.all(np.isfinite(b)):
                 return "failed"
             try:
-                boot = _performance(yb, Xb @ b)
-                test = _performance(y, X @ b)
+                lp_boot, lp_test = Xb @ b, X @ b
+                boot = _performance(yb, lp_boot)
+                test = _performance(y, lp_test)
             except np.linalg.LinAlgError:
                 # A separated resample: its linear predictor is degenerate.
                 return "failed"
         if not np.all(np.isfinite(boot + test)):
             return "failed"
-        return tuple(bb - tt for bb, tt in zip(boot, test))
+        diffs = tuple(bb - tt for bb, tt in zip(boot, test))
+        if thresholds is None:
+            return diffs
+        from scipy.special import expit
+
+        nb = (net_benefit_values(yb, expit(lp_boot), thresholds) - net_benefit_values(y, expit(lp_test), thresholds))
+        return diffs, nb
 
     results = []
     done = 0
@@ -448,11 +464,17 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
             done += 1
             if progress is not None:
                 progress(done, repetitions)
-    ok = [r for r in results if r != "failed"]
+    ok = [r for r in results if not isinstance(r, str)]
     if not ok:
         raise ModelError("No bootstrap resample could be fitted (each had only one outcome value or failed); "
                          "the data are too small or separated for this check.")
+    nb_thresholds = nb_optimism = None
+    if thresholds is not None:
+        nb_thresholds = tuple(float(t) for t in thresholds)
+        nb_optimism = tuple(float(v) for v in np.mean(np.array([r[1] for r in ok]), axis=0))
+        ok = [r[0] for r in ok]
     opt = np.mean(np.array(ok), axis=0)
     return Validation(repetitions, len(ok), len(results) - len(ok), seed, app[0], float(opt[0]),
                       app[1], float(opt[1]), app[2], float(opt[2]),
-                      REFIT_METHODS[1] if penalised else REFIT_METHODS[0], app[3], float(opt[3]))
+                      REFIT_METHODS[1] if penalised else REFIT_METHODS[0], app[3], float(opt[3]),
+                      nb_thresholds, nb_optimism)

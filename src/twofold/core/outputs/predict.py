@@ -510,6 +510,8 @@ class FrozenResult:
     record: dict
     notices: list
     frozen: bool = True
+    #: The saved model's design on the rows used (kept columns, intercept first).
+    X: np.ndarray | None = None
 
     @property
     def rows_used(self) -> int:
@@ -546,27 +548,45 @@ def _pseudo_fit(model: FrozenModel, X: np.ndarray, y: np.ndarray, rows: np.ndarr
     return LogisticFit(design, model.coefficients, model.covariance, llf, True, 0, kept, dropped, [])
 
 
-def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshold: float | None = None,
-                    groups: int = 10) -> FrozenResult:
-    """Apply a saved model, unchanged, to the rows of a data file and assess it there.
+def coefficients_applied(model: FrozenModel) -> list[dict]:
+    """``coefficients_applied``: each saved coefficient as applied, {name, estimate}, intercept first."""
+    from twofold.core.outputs.summary import clean_number
 
-    The design is rebuilt with the saved encoding (same reference levels and
-    indicator columns); rows missing the outcome or a predictor are left out
-    and counted.  Discrimination (AUC with DeLong CI), calibration slope and
-    calibration-in-the-large (now informative), Brier score, Hosmer-Lemeshow
-    test and calibration groups are computed on those rows.
+    return [{"name": name, "estimate": clean_number(b)} for name, b in zip(model.names, model.coefficients)]
+
+
+@dataclass(eq=False)
+class ScoredRows:
+    """A saved model's design on the rows of a data file: the usable rows (0-based), their outcome and design."""
+
+    study: object
+    event: object
+    has_outcome: np.ndarray
+    rows: np.ndarray
+    y: np.ndarray
+    X: np.ndarray
+    coefficients: np.ndarray
+
+    @property
+    def predicted(self) -> np.ndarray:
+        """The saved model's risks on the usable rows."""
+        from scipy.special import expit
+
+        return expit(self.X @ self.coefficients)
+
+
+def score_file(model: FrozenModel, path, sheet: str | None = None) -> ScoredRows:
+    """Read a data file and build the saved model's design on its rows (outcome and every predictor present).
 
     Raises
     ------
     TwofoldError
-        Missing columns, an outcome whose event value does not occur, text in
-        a numeric predictor, or groups the saved model never saw.
+        The outcome column missing, its event value absent, no usable row,
+        usable rows of one outcome only, or a column the model cannot read
+        (see :func:`design_matrix`).
     """
-    from twofold.core.assessing.assessment import assess
-    from twofold.core.errors import Notice
-    from twofold.core.models.study import Study
-    from twofold.core.outputs.summary import CAUTION, clean_number, plain_value
     from twofold.core.data.checks import outcome_vector
+    from twofold.core.models.study import Study
 
     study = Study.from_file(path, sheet=sheet)
     frame = study.frame
@@ -588,7 +608,34 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         raise ModelError(f"The {len(rows):,} usable rows of {study.source} hold only "
                          f"{'events' if y.min() == 1 else 'non-events'}, so the model's performance cannot be "
                          "measured; use an extract with both outcomes.")
-    X = X_all[rows]
+    return ScoredRows(study, event, has_outcome, rows, y, X_all[rows], model.coefficients)
+
+
+def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshold: float | None = None,
+                    groups: int = 10, subgroups: str | None = None) -> FrozenResult:
+    """Apply a saved model, unchanged, to the rows of a data file and assess it there.
+
+    The design is rebuilt with the saved encoding (same reference levels and
+    indicator columns); rows missing the outcome or a predictor are left out
+    and counted.  Discrimination (AUC with DeLong CI), calibration slope and
+    calibration-in-the-large (now informative), Brier score, Hosmer-Lemeshow
+    test and calibration groups are computed on those rows; with
+    ``subgroups`` (a column), the performance within its groups too.
+
+    Raises
+    ------
+    TwofoldError
+        Missing columns, an outcome whose event value does not occur, text in
+        a numeric predictor, or groups the saved model never saw.
+    """
+    from twofold.core.assessing.assessment import assess
+    from twofold.core.assessing.external import external_record
+    from twofold.core.errors import Notice
+    from twofold.core.outputs.summary import CAUTION, clean_number, plain_value
+
+    scored = score_file(model, path, sheet)
+    study, frame, event = scored.study, scored.study.frame, scored.event
+    has_outcome, rows, y, X = scored.has_outcome, scored.rows, scored.y, scored.X
     fit = _pseudo_fit(model, X, y, rows)
     notices = list(study.table.notices)
     missing_by = {c: int((frame[c].isna().to_numpy() & has_outcome).sum()) for c in model.columns}
@@ -621,6 +668,7 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "influential": [],
         "sample_size": None,
     })
+    rec.update(external_record(y, fit.fitted, fit.linear_predictor, a.auc.auc, a.smooth))
     record = {
         "frozen": True,
         "method": model.method,
@@ -636,8 +684,15 @@ def evaluate_frozen(model: FrozenModel, path, sheet: str | None = None, threshol
         "log_likelihood": clean_number(fit.llf),
         "null_log_likelihood": clean_number(fit.null_llf),
         "assessment": rec,
+        "coefficients_applied": coefficients_applied(model),
         "warnings": [n.as_dict() for n in notices],
         "caution": CAUTION,
     }
+    if subgroups is not None:
+        from twofold.core.analysis import add_subgroups
+        from twofold.core.data.checks import require_column
+
+        add_subgroups(record, frame, require_column(frame.columns, str(subgroups), study.source), rows, y,
+                      fit.fitted, fit.linear_predictor)
     return FrozenResult(model, study.source, str(path), int(len(frame)), record["rows_missing_outcome"], missing_by,
-                        y, np.asarray(fit.fitted), a, record, notices)
+                        y, np.asarray(fit.fitted), a, record, notices, X=X)

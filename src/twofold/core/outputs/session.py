@@ -754,3 +754,32 @@ def __getattr__(name: str):
     else:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
     return getattr(module, name)
+
+
+def adapted_session(session: dict, model, data, rows_read: int) -> dict:
+    """A session for a saved model adapted to a new extract: the same analysis, the adapted coefficients.
+
+    The data file becomes the new extract (with its checksum and row count);
+    a bootstrap validation kept in the old session described the old model
+    and is dropped.  ``predict`` and ``rerun --frozen`` then use the adapted
+    coefficients; a plain ``rerun`` refits the analysis as before.
+    """
+    import datetime as _dt
+
+    from twofold import __version__
+    from twofold.core.outputs.storage import file_sha256
+
+    data = Path(os.fspath(data)).resolve()
+    out = dict(session)
+    out.update({
+        "saved_by": f"twofold {__version__}",
+        "saved_at": _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
+        "data": str(data),
+        "data_sha256": file_sha256(data, reuse=True),
+        "data_rows": int(rows_read),
+        "model": model.as_dict(),
+        "validation_result": None,
+    })
+    validate_session(out)
+    return out
+

@@ -217,6 +217,8 @@ def describe(record: dict, source: str = "") -> str:
     if record.get("assessment"):
         out.extend(describe_assessment(record["assessment"], record))
     out.extend(_validation_lines(record))
+    out.extend(decision_lines(record))
+    out.extend(subgroup_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -405,3 +407,128 @@ def reading_not_nested(first: int, second: int, aic_difference, auc_test=None) -
         else:
             out += (" Their ability to tell patients apart (area under the ROC curve) does not clearly differ.")
     return out + " This compares fit, not causes."
+
+
+#: At most this many thresholds of a decision curve are printed in the plain-text account.
+DECISION_ROWS_SHOWN = 11
+
+
+def decision_lines(record: dict) -> list[str]:
+    """The decision curve of a record (``net_benefit``), its reading and a short table; [] when none."""
+    curve = record.get("net_benefit")
+    if not curve:
+        return []
+    summary = record.get("net_benefit_summary") or {}
+    corrected = "model_corrected" in curve[0]
+    smaller = "smaller_model" in curve[0]
+    out = ["", "Decision curve (net benefit per person; treating no one is 0)"]
+    if summary.get("reading"):
+        out.append("  " + summary["reading"])
+    head = (f"    {'threshold':>9}  {'model':>8}" + (f"  {'corrected':>9}" if corrected else "")
+            + (f"  {'smaller':>8}" if smaller else "") + f"  {'treat all':>9}")
+    out.append(head)
+    step = max(1, -(-len(curve) // DECISION_ROWS_SHOWN))
+    shown = curve[::step] if curve[-1] in curve[::step] else curve[::step] + [curve[-1]]
+    for e in shown:
+        threshold = f"{100 * e['threshold']:.4g}%"
+        row = f"    {threshold:>9}  {fmt_num(e['model'], 4):>8}"
+        if corrected:
+            row += f"  {fmt_num(e['model_corrected'], 4):>9}"
+        if smaller:
+            row += f"  {fmt_num(e['smaller_model'], 4):>8}"
+        out.append(row + f"  {fmt_num(e['treat_all'], 4):>9}")
+    if len(shown) < len(curve):
+        out.append(f"    ({len(shown)} of {len(curve)} thresholds shown; every one is in the JSON)")
+    if summary.get("note"):
+        out.append("  " + summary["note"])
+    return out
+
+
+def external_lines(record: dict) -> list[str]:
+    """A frozen validation's O/E, calibration index, sample-size check and the coefficients applied."""
+    a = record.get("assessment") or {}
+    out = []
+    oe = a.get("observed_expected")
+    if oe:
+        out.append(f"  Observed/expected events {fmt_num(oe['ratio'], 3)} (95% interval {fmt_num(oe['ci_low'], 3)} to "
+                   f"{fmt_num(oe['ci_high'], 3)}): {oe['observed']:,} events observed, {fmt_num(oe['expected'], 1)} "
+                   "expected from the model (above 1: more events than predicted).")
+    if a.get("ici") is not None:
+        out.append(f"  Distance between predicted risks and the smoothed calibration curve: mean (ICI) "
+                   f"{fmt_num(a['ici'], 4)}, median (E50) {fmt_num(a['e50'], 4)}, 90th centile (E90) "
+                   f"{fmt_num(a['e90'], 4)} (0 is perfect).")
+    size = a.get("validation_sample_size")
+    if size and size.get("n_required") is not None:
+        verdict = "enough" if size["met"] else "fewer than needed, so read the intervals as wide"
+        out.append(f"  Rows needed for a precise validation (Riley et al. 2024): {size['n_required']:,}; this extract "
+                   f"has {size['n_available']:,}, {verdict}.")
+    applied = record.get("coefficients_applied")
+    if applied:
+        out.append("  Coefficients applied: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}" for c in applied)
+                   + ".")
+    return out
+
+
+def describe_units(record: dict) -> str:
+    """The plain-text account of a comparison of units."""
+    lines = [f"Events by '{record['unit_column']}' against those the model expects from each unit's patients "
+             f"({record['rows_used']:,} rows)"]
+    width = max(len(str(u["unit"])) for u in record["units"])
+    lines.append(f"  {'unit':<{width}}  {'rows':>7}  {'observed':>8}  {'expected':>8}  {'O/E':>6}  {'95% interval':>15}")
+    for u in record["units"]:
+        ci = f"{fmt_num(u['ci_low'], 2)} to {fmt_num(u['ci_high'], 2)}"
+        lines.append(f"  {str(u['unit']):<{width}}  {u['rows']:>7,}  {u['observed']:>8,}  {fmt_num(u['expected'], 1):>8}  "
+                     f"{fmt_num(u['ratio'], 2):>6}  {ci:>15}  {u['verdict']}")
+    d = record["overdispersion"]
+    if d["df"]:
+        lines.append(f"  Spread between units beyond chance (overdispersion): {fmt_num(d['statistic'], 2)} on "
+                     f"{d['df']} degrees of freedom, p-value {fmt_p(d['p_value'])}; "
+                     + (f"the limits are widened by a factor of {fmt_num(d['factor'], 2)}." if d["present"]
+                        else "no more than chance, so the limits are the exact Poisson ones."))
+    if record["rows_without_unit"]:
+        lines.append(f"  {record['rows_without_unit']:,} rows without a unit were left out.")
+    lines.append("")
+    lines.append("Caution: " + record["caution"])
+    return "\n".join(lines) + "\n"
+
+
+def adaptation_lines(record: dict) -> list[str]:
+    """``rerun --adapt``: the closed sequence of tests, each with its reading, and the choice."""
+    a = record.get("adaptation")
+    if not a:
+        return []
+    out = ["", "Adapting the saved model to these records (closed testing, each step at the 5% level)"]
+    for t in a["tests"]:
+        out.append(f"  {t['step']}: G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. "
+                   f"{t['reading']}")
+    out.append("  " + a["reading"])
+    out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
+                                                     for c in a["coefficients"]) + ".")
+    return out
+
+
+def subgroup_lines(record: dict) -> list[str]:
+    """``subgroups``: AUC and calibration within each group, with 95% intervals; [] when none."""
+    groups = record.get("subgroups")
+    if not groups:
+        return []
+
+    def ci(pair, digits):
+        return "n/a" if pair[0] is None else f"{fmt_num(pair[0], digits)} to {fmt_num(pair[1], digits)}"
+
+    out = ["", "Performance within groups (95% intervals)"]
+    for g in groups:
+        rows = "suppressed" if g["rows"] is None else f"{g['rows']:,} rows"
+        if g["auc"] is None:
+            out.append(f"  {g['group']} ({rows}): {g['note']}")
+            continue
+        line = f"  {g['group']} ({rows}): AUC {fmt_num(g['auc'], 3)} ({ci(g['auc_ci'], 3)})"
+        if g["calibration_slope"] is not None:
+            line += (f"; calibration-in-the-large {fmt_num(g['calibration_intercept'], 3)} "
+                     f"({ci(g['calibration_intercept_ci'], 3)}); slope {fmt_num(g['calibration_slope'], 3)} "
+                     f"({ci(g['calibration_slope_ci'], 3)})")
+        out.append(line + ".")
+    if record.get("subgroups_note"):
+        out.append("  " + record["subgroups_note"])
+    return out
+
