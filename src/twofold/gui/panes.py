@@ -232,7 +232,7 @@ class DataPane(QWidget):
         self.missing_button.setToolTip("Mark values such as 'unknown', 'not recorded', 999 or -1 as missing: "
                                        "those records are then left out where the column is used, and counted.")
         self.missing_button.clicked.connect(lambda _=False: self._ask_missing())
-        form.addRow("", self.missing_button)
+        form.addRow(self.missing_button)  # across both columns: it must not widen the pane
         b.addLayout(form)
         self.reason = _wrapped("", "Why the column has this role")
         self.reason.setTextFormat(Qt.TextFormat.PlainText)  # names and values come from the data file
