@@ -343,12 +343,25 @@ class MainWindow(QMainWindow):
             return self.sessions.save_now()
         return True
 
-    def open_path(self, path) -> int | None:
+    def open_path(self, path, sheet: str | None = None) -> int | None:
+        """Open a data file; a workbook of several sheets first asks which one (preselecting a table's)."""
+        from twofold.core.data.sheets import is_workbook, likely_sheet, workbook_sheets
+        from twofold.core.errors import TwofoldError
+
         if not self.confirm_leave("opening another file"):
             return None
+        if sheet is None and is_workbook(path):
+            try:
+                sheets = workbook_sheets(path)
+            except TwofoldError:
+                sheets = []  # reading it will say what is wrong, in its own words
+            if len(sheets) > 1:
+                sheet = choose_sheet(self, Path(path).name, sheets, likely_sheet(sheets))
+                if sheet is None:
+                    return None
         self.message.hide()
         self.statusBar().showMessage(f"Opening {Path(path).name}\u2026")
-        return self.session.open_file(str(path))
+        return self.session.open_file(str(path), sheet=sheet)
 
     def _sample_menu_popup(self) -> None:
         self.sample_menu.popup(self.data_pane.sample_button.mapToGlobal(
@@ -533,6 +546,16 @@ class MainWindow(QMainWindow):
 
 #: Below this screen size the window opens maximised (hospital laptops are often 1366 by 768 or 1280 by 720).
 SMALL_SCREEN = (1600, 900)
+
+
+def choose_sheet(parent, file_name: str, sheets, preselected: int) -> str | None:
+    """Ask which sheet of a workbook to open; None if cancelled (tests replace this function)."""
+    from PySide6.QtWidgets import QInputDialog
+
+    items = [s.describe() for s in sheets]
+    chosen, ok = QInputDialog.getItem(parent, "Which sheet?", f"{file_name} has {len(sheets)} sheets. Open:",
+                                      items, preselected, False)
+    return sheets[items.index(chosen)].name if ok else None
 
 
 def default_size(window: QMainWindow) -> None:
