@@ -22,6 +22,7 @@ reading is unchanged.  openpyxl is still used for writing exports.
 from __future__ import annotations
 
 import datetime as dt
+import itertools
 import math
 import re
 import threading
@@ -444,7 +445,8 @@ def frame_from_rows(rows, merges, where: str, hint: str):
             for c in range(c0 - 1, min(c1, width)):
                 if filled[r][c] is None or filled[r][c] == "":
                     filled[r][c] = value
-    nonempty = [i for i, r in enumerate(filled) if any(not blank(v) for v in r)]
+    # The first non-empty rows are all the header search looks at (titles, a gap, the names, a row below).
+    nonempty = list(itertools.islice((i for i, r in enumerate(filled) if any(not blank(v) for v in r)), 40))
     if not nonempty:
         raise DataFileError(f"The {where} is empty; {hint}.")
     # The rows down to the header are few: give their cells openpyxl's types one by one.
