@@ -270,7 +270,7 @@ class _Tags:
         self.cell_start = re.compile(rb"<" + p + rb"c[\s>]")
         self.cell_end = re.compile(rb"</" + p + rb"c>|<" + p + rb"c[\s>]")
         self.value = re.compile(rb"<" + p + rb"v>([^<]+)</" + p + rb"v>")
-        self.error_cell = re.compile(rb"<" + p + rb"""c\b[^>]*? t=["']e["'][^>]*>""")
+        self.error_cell = re.compile(rb"<" + p + rb"""c\b[^>]*? t="e"[^>]*>""")
         self.merge = re.compile(rb"<" + p + rb"mergeCell\s+ref=\"\$?([A-Z]+)\$?(\d+)(?::\$?([A-Z]+)\$?(\d+))?\"")
 
 
@@ -300,7 +300,7 @@ def scan_sheet(path: Path, part: str, progress) -> SheetScan:
                     # Work on whole rows: the rest waits for the next block.
                     cut = data.rfind(tags.row_end)
                     cut = cut + len(tags.row_end) if cut >= 0 else 0
-                    rows_counted += _scan_chunk(data[:cut], tags, scan, merges)
+                    rows_counted += _scan_chunk(data[:cut], tags, scan, None)
                     tail = data[cut:]
                     report_progress(progress, 0.25 * min(read / max(info.file_size, 1), 1.0), path)
             if tags is not None:
@@ -321,8 +321,9 @@ def _too_big(path: Path) -> DataFileError:
     )
 
 
-def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set) -> int:
-    """Scan whole rows of XML into ``scan``; returns how many row elements without a number they hold."""
+def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set | None) -> int:
+    """Scan whole rows of XML into ``scan`` (merged ranges into ``merges``, given with the part after the
+    rows, where a sheet keeps them); returns how many row elements without a number the chunk holds."""
     if not chunk:
         return 0
     refs = tags.row_ref.findall(chunk)
@@ -346,7 +347,7 @@ def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set) -> int:
                 if ref:
                     text = (m.group(1) or b"").decode("utf-8", "replace")
                     scan.formulas.append((int(ref.group(2)), _column_number(ref.group(1)), text))
-    if b"\"e\"" in chunk or b"'e'" in chunk:
+    if b't="e"' in chunk:
         for m in tags.error_cell.finditer(chunk):
             end = tags.cell_end.search(chunk, m.end())
             value = tags.value.search(chunk, m.end(), end.start() if end is not None else len(chunk))
@@ -354,7 +355,7 @@ def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set) -> int:
             if value and ref:
                 scan.errors.append((int(ref.group(2)), _column_number(ref.group(1)),
                                     value.group(1).decode("utf-8", "replace")))
-    for m in tags.merge.finditer(chunk):
+    for m in tags.merge.finditer(chunk) if merges is not None else ():  # merged ranges follow the rows
         c0, r0, c1, r1 = m.groups()
         merges.add((_column_number(c0), int(r0), _column_number(c1 or c0), int(r1 or r0)))
     return 0 if refs else len(tags.row_tag.findall(chunk))
@@ -403,8 +404,8 @@ def _as_openpyxl_gave(v):
     return v
 
 
-def _column_values(values):
-    """A column of cells (object array) as openpyxl gave them, worked on the whole column at once."""
+def _column_values(values) -> None:
+    """Give a column of cells (an object array, changed in place) the types openpyxl gave, the whole column at once."""
     import numpy as np
     import pandas as pd
 
@@ -420,7 +421,6 @@ def _column_values(values):
         values[:] = [dt.datetime(v.year, v.month, v.day) if type(v) is date else v for v in values]
     elif kind not in ("empty", "string", "boolean", "datetime", "time"):  # numbers, text and dates mixed
         values[:] = [_as_openpyxl_gave(v) for v in values]
-    return values
 
 
 def frame_from_rows(rows, merges, where: str, hint: str):
@@ -507,10 +507,10 @@ def frame_from_rows(rows, merges, where: str, hint: str):
     notices.extend(name_notices)
     if not data:
         raise DataFileError(f"The {where} has column names but no data rows; {hint}.")
-    columns = {}
-    for j, name in zip(range(first, last + 1), names):
-        columns[name] = pd.Series(_column_values(grid[:, j].copy()), dtype=object, name=name)
-    return pd.DataFrame(columns), generated, notices
+    block = grid[:, first:last + 1]
+    for j in range(block.shape[1]):
+        _column_values(block[:, j])
+    return pd.DataFrame(block, columns=names, dtype=object, copy=False), generated, notices
 
 
 def _any_filled(values) -> bool:
