@@ -45,8 +45,14 @@ if str(SRC) not in sys.path:
 
 def write_csv(path: Path, rows: int, cols: int, seed: int = 20240601) -> None:
     """A synthetic extract: column kinds cycle so any ``cols`` mixes numbers and text."""
-    import numpy as np
     import pandas as pd
+
+    pd.DataFrame(synthetic_columns(rows, cols, seed)).to_csv(path, index=False)
+
+
+def synthetic_columns(rows: int, cols: int, seed: int = 20240601) -> dict:
+    """The columns of the synthetic extract, by name (dates as ISO text, missing yes/no cells as 'NA')."""
+    import numpy as np
 
     rng = np.random.default_rng(seed)
     kinds = ["decimal", "whole", "yesno", "group", "decimal", "date", "decimal", "sex", "whole", "code"]
@@ -69,7 +75,7 @@ def write_csv(path: Path, rows: int, cols: int, seed: int = 20240601) -> None:
             data[name] = (np.datetime64("2020-01-01") + days).astype(str)
         else:  # a free-text code, different in almost every row
             data[name] = np.char.add("C", rng.integers(0, 10 * rows, rows).astype(str))
-    pd.DataFrame(data).to_csv(path, index=False)
+    return data
 
 
 def time_twofold(path: Path) -> float:

@@ -1,6 +1,6 @@
 """How long a tick takes to show in the window, paced like a user and in a burst, and whether the window stalls.
 
-    python benchmarks/tick_latency.py [--rows N] [--ticks K] [--launch] [--data-dir DIR]
+    python benchmarks/tick_latency.py [--rows N] [--ticks K] [--launch] [--app FOLDER] [--data-dir DIR]
 
 Drives the real window off screen (``ask_before_leaving`` off, its own
 settings file) on synthetic data: a seeded CSV of N rows (default 20,000) with
@@ -52,7 +52,10 @@ spins.
 
 The launch time is measured in a fresh process (median of three): from
 starting Python to the window's first paint, and whether pandas and
-statsmodels were loaded by then (they should not be).
+statsmodels were loaded by then (they should not be).  ``--launch --app
+FOLDER`` measures the application folder's ``twofold`` instead (built by
+``scripts/build_app.py``; ``TWOFOLD_LAUNCH_PROBE=1`` makes its first paint
+print the same line), from starting the program to that paint.
 
 The last line printed is one JSON object with rows, ticks, tests_ms_p50,
 tests_ms_p95, tests_superseded, assessment_ms_p50, assessment_ms_p95,
@@ -115,15 +118,18 @@ app.exec()
 """
 
 
-def measure_launch(repeats: int = 3) -> dict:
-    """Median time from starting the process to the first paint of the window."""
+def measure_launch(repeats: int = 3, app: Path | None = None) -> dict:
+    """Median time from starting the process to the first paint of the window (of the folder ``app``, if given)."""
     times, last = [], {}
     env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
     env.setdefault("TWOFOLD_HOME", tempfile.mkdtemp(prefix="twofold-bench-home-"))
+    command = [sys.executable, "-c", _LAUNCH_CHILD]
+    if app is not None:
+        command = [str(app / "twofold")]
+        env["TWOFOLD_LAUNCH_PROBE"] = "1"
     for _ in range(repeats):
         start = time.time()
-        out = subprocess.run([sys.executable, "-c", _LAUNCH_CHILD], capture_output=True, text=True, env=env,
-                             timeout=60, check=False)
+        out = subprocess.run(command, capture_output=True, text=True, env=env, timeout=60, check=False)
         line = [ln for ln in out.stdout.splitlines() if ln.startswith("{")]
         if not line:
             raise RuntimeError(f"the launch probe printed nothing: {out.stderr.strip()[-500:]}")
@@ -522,12 +528,13 @@ def main(argv=None) -> int:
     p.add_argument("--rows", type=int, default=20_000)
     p.add_argument("--ticks", type=int, default=12, help="paced ticks (default 12)")
     p.add_argument("--launch", action="store_true", help="measure the launch time only")
+    p.add_argument("--app", type=Path, metavar="FOLDER", help="with --launch: the application folder's twofold")
     p.add_argument("--data-dir", default=tempfile.gettempdir(), help="where the synthetic CSV is kept")
     args = p.parse_args(argv)
     if args.ticks < 1:
         p.error("--ticks must be at least 1")
     os.environ.setdefault("TWOFOLD_HOME", tempfile.mkdtemp(prefix="twofold-bench-home-"))
-    launch = measure_launch()
+    launch = measure_launch(5 if args.app else 3, args.app)
     print(f"launch: first paint {launch['launch_ms']} ms after start (runs {launch['launch_runs_ms']}); "
           f"pandas loaded then: {launch['pandas_loaded_at_first_paint']}, "
           f"statsmodels loaded then: {launch['statsmodels_loaded_at_first_paint']}")

@@ -1,6 +1,6 @@
 """Reading data files: CSV, TSV and XLSX, read-only.
 
-Only pandas (and openpyxl, for workbooks) is imported here, lazily, so opening
+Only pandas (and python-calamine, for workbooks) is imported here, lazily, so opening
 a file never waits for the model-fitting libraries.  Nothing in this module
 writes to the data file: it is opened for reading only.
 
@@ -45,7 +45,7 @@ import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from twofold.core.errors import DataFileError, TwofoldError
+from twofold.core.errors import DataFileError, Notice, TwofoldError
 
 #: Cell texts read as missing (compared after stripping white space).
 MISSING_MARKERS = ("", "NA", "N/A", "n/a", "na", "NaN", "nan", "NAN", "null", "NULL",
@@ -102,8 +102,9 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
     Parameters
     ----------
     path : str or os.PathLike
-        The data file.  Workbooks (``.xlsx``/``.xlsm``, or any zip-packaged
-        file) are read with openpyxl, anything else as delimited text.
+        The data file.  Workbooks (any zip-packaged file, whatever its name)
+        are read by :mod:`twofold.core.data.read_workbook`, anything else as
+        delimited text (also a text file named ``.xlsx``, with a notice).
     sheet : str, optional
         For workbooks, the sheet to read (default: the first).
     progress : callable, optional
@@ -119,12 +120,13 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
     Raises
     ------
     DataFileError
-        Missing, empty or unreadable file, or a sheet that does not exist.
+        Missing, empty or unreadable file (damaged, or protected by a password), a
+        sheet that does not exist, or one larger than a workbook may be.
     ReadCancelled
         The progress callback asked to stop.
     """
     from twofold.core.data.read_text import read_text
-    from twofold.core.data.read_workbook import read_workbook
+    from twofold.core.data.read_workbook import locked_workbook, read_workbook
 
     path = Path(os.fspath(path))
     _check_path(path)
@@ -134,11 +136,14 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
         frame, sheet_used, notices = read_workbook(path, sheet, progress)
         return LoadedTable(frame, path, notices, sheet=sheet_used)
     if magic.startswith(b"\xd0\xcf\x11\xe0"):
+        if is_encrypted_workbook(path):
+            raise locked_workbook(path)
         raise DataFileError(
             f"{path.name} is an old-style Excel 97-2003 workbook (.xls), which Twofold cannot read; "
             "open it in Excel and save it as .xlsx or CSV."
         )
-    if path.suffix.lower() in (".xlsx", ".xlsm"):
+    renamed = path.suffix.lower() in (".xlsx", ".xlsm")
+    if renamed and not _looks_like_text(path):
         raise DataFileError(
             f"{path.name} is named like an Excel workbook but is not one (it may be damaged or a renamed file); "
             "open it in Excel and save it again as .xlsx, or export it as CSV."
@@ -147,7 +152,35 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
         raise DataFileError(
             f"{path.name} is a text file, so it has no sheet '{sheet}'; leave out the sheet name."
         )
-    return read_text(path, progress)
+    table = read_text(path, progress)
+    if renamed:  # a CSV saved under a workbook's name: read as what it is
+        table.notices.insert(0, Notice("renamed", f"{path.name} is named like an Excel workbook but holds "
+                                                  "text (a CSV file), so it was read as text."))
+    return table
+
+
+def _looks_like_text(path: Path) -> bool:
+    """Whether a file's start is text (no NUL bytes, decodes as UTF-8, UTF-16 with its mark, or Latin-1)."""
+    with open_for_reading(path) as fh:
+        head = fh.read(65536)
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return True
+    if b"\x00" in head:
+        return False
+    controls = sum(1 for b in head if b < 32 and b not in (9, 10, 13))
+    return controls <= len(head) // 1000
+
+
+def is_encrypted_workbook(path: Path) -> bool:
+    """Whether a compound file holds a password-encrypted Office document (its 'EncryptedPackage' stream)."""
+    name = "EncryptedPackage".encode("utf-16-le")
+    tail = b""
+    with open_for_reading(path) as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            if name in tail + block:
+                return True
+            tail = block[-len(name):]
+    return False
 
 
 def _check_path(path: Path) -> None:

@@ -1,30 +1,82 @@
 """Reading XLSX workbooks for :func:`twofold.core.data.io.read_table`.
 
-The sheet is read with openpyxl (values only, as last saved).  Its XML is
-scanned for formulas and merged cells: formulas without a saved result get a
-notice, and a merged block's value is copied into every cell it covers.
+The cells are read by python-calamine, a compiled reader (the one behind
+pandas' ``calamine`` engine), on a helper thread, so that progress reports
+and cancelling go on while it parses.  It is called directly rather than
+through ``pandas.read_excel`` because reading needs the raw rows (titles,
+merged cells, the header found later) and progress between rows.
+
+Before it parses, the sheet's XML is streamed once with :mod:`zipfile` to
+find what the compiled reader does not say: how far the sheet's cells reach,
+its merged ranges, formula cells without a saved result, and cells showing
+an Excel error.  A sheet whose cells reach further than :data:`MAX_CELLS`
+is refused with one sentence before it is parsed: the reader builds the
+whole rectangle in memory, and one stray cell far down and to the right (or a
+crafted file) would exhaust memory and end the program.
+
+Values are given the types openpyxl gave them (whole numbers as ``int``,
+empty cells as ``None``, error cells as their text), so everything after the
+reading is unchanged.  openpyxl is still used for writing exports.
 """
 
 from __future__ import annotations
 
+import datetime as dt
+import itertools
+import math
 import re
-import warnings
-from pathlib import Path
+import threading
+import time
+import zipfile
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
 
 from twofold.core.errors import DataFileError, Notice
-from twofold.core.data.io import report_progress
+from twofold.core.data.io import ReadCancelled, report_progress
 from twofold.core.data.read_text import filled_count, header_after_gap, looks_like_names
 from twofold.core.data.tidy import cell_text, plural, shorten, tidy_frame, unique_names
 
-_FORMULA_TAG = re.compile(rb"<(?:\w+:)?f[\s>/]")
-_MERGE_TAG = re.compile(rb"<(?:\w+:)?mergeCell\s+ref=\"\$?([A-Z]+)\$?(\d+)(?::\$?([A-Z]+)\$?(\d+))?\"")
+#: The most cells (last row x last column reached) a sheet may span: about 1,000,000 rows of 30 columns.
+MAX_CELLS = 30_000_000
+#: The most bytes a sheet's XML, or the workbook's shared text, may unpack to.
+MAX_XML_BYTES = 3_000_000_000
+
+_PREFIX = re.compile(rb"<(\w+:)?worksheet\b")
+_REF = re.compile(rb"""\sr=["']([A-Z]+)(\d+)["']""")
+_NS = {"m": "http://schemas.openxmlformats.org/spreadsheetml/2006/main",
+       "r": "http://schemas.openxmlformats.org/officeDocument/2006/relationships",
+       "p": "http://schemas.openxmlformats.org/package/2006/relationships"}
+
+
+@dataclass
+class SheetScan:
+    """What a sheet's XML says beyond its cell values.
+
+    ``rows`` and ``columns`` are how far its cells reach (1-based, counting
+    formatted empty cells); ``merges`` its merged ranges as (col0, row0, col1,
+    row1); ``formulas`` (row, column, formula text) of formula cells with no
+    saved result; ``errors`` (row, column, text) of cells showing an error.
+    """
+
+    rows: int = 0
+    columns: int = 0
+    merges: list = field(default_factory=list)
+    formulas: list = field(default_factory=list)
+    errors: list = field(default_factory=list)
+
+    @property
+    def cells(self) -> int:
+        return self.rows * self.columns
 
 
 def read_workbook(path: Path, sheet: str | None, progress):
     """Read one sheet of a workbook; returns (frame, sheet name, notices)."""
-    book = _open_book(path, data_only=True)
+    book = _open_book(path)
     try:
-        names = book.sheetnames
+        names = list(book.sheet_names)
+        kinds = {m.name: str(m.typ) for m in book.sheets_metadata}
+        if not names:
+            raise _damaged(path)
         if sheet is None:
             sheet = names[0]
         elif sheet not in names:
@@ -34,35 +86,35 @@ def read_workbook(path: Path, sheet: str | None, progress):
                     f"{path.name} has no sheet named '{sheet}'; its sheets are: {', '.join(names)}."
                 )
             sheet = folded[sheet.casefold().strip()]
-        ws = book[sheet]
-        if not hasattr(ws, "iter_rows"):
+        if "Chart" in kinds.get(sheet, ""):
             raise DataFileError(f"The sheet '{sheet}' of {path.name} is a chart, not a table; choose another sheet.")
-        expected = ws.max_row or 0
-        ws.reset_dimensions()  # the stored size may be wrong: read every row there is
-        rows = []
-        for i, row in enumerate(ws.iter_rows(min_row=1, min_col=1, values_only=True)):
-            rows.append(row)
-            if progress is not None and i % 2000 == 1999:
-                report_progress(progress, 0.8 * min(i / max(expected, 1), 1.0), path)
-        part = getattr(ws, "_worksheet_path", None)
-    except DataFileError:
-        raise
-    except Exception as exc:  # a damaged sheet
-        raise DataFileError(
-            f"The sheet '{sheet}' of {path.name} could not be read ({type(exc).__name__}); "
-            "save the workbook again in Excel, or export the sheet as CSV."
-        ) from None
+        part = sheet_parts(path).get(sheet)
+        if part is None:
+            raise _damaged(path)
+        scan = scan_sheet(path, part, progress)
+        where = f"sheet '{sheet}' of {path.name}"
+        if scan.cells > MAX_CELLS:
+            raise DataFileError(
+                f"The {where} reaches row {scan.rows:,} and column {column_letters(scan.columns)} "
+                f"({scan.cells:,} cells), more than the {MAX_CELLS:,} Twofold reads from a workbook; delete the "
+                "empty or unused rows and columns beyond the records, or save the sheet as CSV."
+            )
+        rows = _parse_rows(book, sheet, path, progress, scan)
     finally:
-        book.close()
-    has_formulas, merges = _scan_sheet_xml(path, part)
+        try:
+            book.close()
+        except RuntimeError:  # a cancelled parse still holds it: the book closes when that thread is done
+            pass
+    for r, c, text in scan.errors:  # as openpyxl showed them: the error's text, read as missing later
+        if r <= len(rows) and c <= len(rows[r - 1]):
+            rows[r - 1][c - 1] = text
     notices: list[Notice] = []
-    if has_formulas:
-        notices.extend(_formulas_without_values(path, sheet, rows))
-    where = f"sheet '{sheet}' of {path.name}"
+    if scan.formulas:
+        notices.append(_formulas_notice(path, sheet, scan.formulas))
     others = [n for n in names if n != sheet]
     hint = ("choose the sheet that holds the records (the others are: " + ", ".join(others) + ")") if others \
         else "put the records in it with a row of column names above them"
-    frame, generated, shape_notices = _frame_from_rows(rows, merges, where, hint)
+    frame, generated, shape_notices = frame_from_rows(rows, scan.merges, where, hint)
     notices.extend(shape_notices)
     frame, tidy_notices = tidy_frame(frame, where, "xlsx", generated)
     notices.extend(tidy_notices)
@@ -70,93 +122,320 @@ def read_workbook(path: Path, sheet: str | None, progress):
     return frame, sheet, notices
 
 
-def _open_book(path: Path, data_only: bool):
-    import openpyxl
+def _damaged(path: Path) -> DataFileError:
+    return DataFileError(
+        f"{path.name} could not be opened as an Excel workbook (it may be damaged or not a workbook); "
+        "open it in Excel and save it again as .xlsx, or export the sheet as CSV."
+    )
+
+
+def _open_book(path: Path):
+    import python_calamine
 
     try:
-        with warnings.catch_warnings():
-            # openpyxl warns about workbook features it ignores (data validation, styles).
-            warnings.simplefilter("ignore")
-            return openpyxl.load_workbook(path, read_only=True, data_only=data_only)
-    except Exception as exc:  # openpyxl raises many kinds for a damaged file
+        return python_calamine.CalamineWorkbook.from_path(str(path))
+    except python_calamine.PasswordError:
+        raise locked_workbook(path) from None
+    except Exception:  # the reader raises several kinds for a damaged file
+        raise _damaged(path) from None
+
+
+def locked_workbook(path: Path) -> DataFileError:
+    """The sentence for a workbook protected by a password to open (it is encrypted)."""
+    return DataFileError(
+        f"{path.name} is protected by a password, so Twofold cannot read it; open it in Excel, remove the "
+        "password (File, Info, Protect Workbook), save it as a copy, and open the copy here."
+    )
+
+
+def _parse_rows(book, sheet: str, path: Path, progress, scan: SheetScan) -> list:
+    """The sheet's rows from A1, as lists; parsed on a helper thread so progress and cancel keep working."""
+    done = threading.Event()
+    box: dict = {}
+
+    def parse():
+        try:
+            box["sheet"] = book.get_sheet_by_name(sheet)
+        except BaseException as exc:  # handed to the reading thread
+            box["error"] = exc
+        finally:
+            done.set()
+
+    threading.Thread(target=parse, name="twofold-workbook", daemon=True).start()
+    # Progress while it parses: a guess from the sheet's size (about 40 MB of XML a second).
+    expected = max(scan.cells * 40 / 40e6, 0.2)
+    started = time.monotonic()
+    while not done.wait(0.1):
+        elapsed = time.monotonic() - started
+        report_progress(progress, 0.25 + 0.25 * (1 - math.exp(-elapsed / expected)), path)
+    if "error" in box:
+        exc = box["error"]
+        if isinstance(exc, (KeyboardInterrupt, SystemExit, MemoryError)):
+            raise exc
         raise DataFileError(
-            f"{path.name} could not be opened as an Excel workbook ({type(exc).__name__}); "
-            "save it again as .xlsx or export it as CSV."
+            f"The sheet '{sheet}' of {path.name} could not be read ({type(exc).__name__}); "
+            "save the workbook again in Excel, or export the sheet as CSV."
         ) from None
+    ws = box["sheet"]
+    rows = []
+    if not ws.height or ws.start is None:
+        return rows
+    # The reader's rows start at the first column holding a cell: pad them so they start at column A,
+    # as merged ranges and cell references count from there.
+    top, left = ws.start
+    pad = [""] * left
+    total = top + ws.height
+    for i, row in enumerate(ws.iter_rows()):
+        rows.append(pad + row if left else row)
+        if progress is not None and i % 5000 == 4999:
+            report_progress(progress, 0.5 + 0.3 * min(i / total, 1.0), path)
+    if len(rows) < total:  # rows above the first one holding a cell
+        rows[:0] = [[] for _ in range(total - len(rows))]
+    return rows
 
 
-def _scan_sheet_xml(path: Path, part: str | None):
-    """Whether the sheet holds formulas, and its merged ranges as (col0, row0, col1, row1), 1-based."""
-    import zipfile
+def sheet_parts(path: Path) -> dict:
+    """Each sheet's name and the path of its XML inside the workbook's zip package."""
+    import xml.etree.ElementTree as ET
 
-    from openpyxl.utils import column_index_from_string
+    try:
+        with zipfile.ZipFile(path) as z:
+            listed = set(z.namelist())
 
-    if not part:
-        return False, []
-    formulas = False
+            def read(name):
+                return ET.fromstring(z.read(name)) if name in listed else None
+
+            def target(base: str, ref: str) -> str:
+                if ref.startswith("/"):
+                    return ref.lstrip("/")
+                parts = []
+                for piece in (PurePosixPath(base).parent / ref).parts:
+                    if piece == "..":
+                        if parts:
+                            parts.pop()
+                    elif piece != ".":
+                        parts.append(piece)
+                return "/".join(parts)
+
+            root_rels = read("_rels/.rels")
+            book_part = "xl/workbook.xml"
+            if root_rels is not None:
+                for rel in root_rels.findall("p:Relationship", _NS):
+                    if rel.get("Type", "").endswith("/officeDocument"):
+                        book_part = target("", rel.get("Target", ""))
+            book = read(book_part)
+            base = PurePosixPath(book_part)
+            rels = read(str(base.parent / "_rels" / (base.name + ".rels")))
+            if book is None or rels is None:
+                return {}
+            ids = {rel.get("Id"): target(book_part, rel.get("Target", "")) for rel in rels.findall("p:Relationship", _NS)}
+            out = {}
+            for node in book.iter(f"{{{_NS['m']}}}sheet"):
+                rid = node.get(f"{{{_NS['r']}}}id")
+                if node.get("name") is not None and ids.get(rid) in listed:
+                    out[node.get("name")] = ids[rid]
+            return out
+    except (OSError, KeyError, ValueError, zipfile.BadZipFile, ET.ParseError):
+        return {}
+
+
+def column_letters(n: int) -> str:
+    """The spreadsheet name of the n-th column (1 is A, 27 is AA)."""
+    letters = ""
+    while n > 0:
+        n, rest = divmod(n - 1, 26)
+        letters = chr(65 + rest) + letters
+    return letters or "A"
+
+
+def _column_number(letters: bytes) -> int:
+    n = 0
+    for ch in letters:
+        n = n * 26 + ch - 64
+    return n
+
+
+class _Tags:
+    """Patterns for one sheet's XML, with its namespace prefix written out (so each starts with a literal)."""
+
+    def __init__(self, prefix: bytes):
+        p = re.escape(prefix)
+        self.row_ref = re.compile(rb"<" + p + rb"""row\b[^>]*? r=["'](\d+)["']""")
+        self.row_tag = re.compile(rb"<" + p + rb"row[\s>/]")
+        self.row_end = b"</" + prefix + b"row>"
+        self.wide = re.compile(rb""" r=["']([A-Z]{2,3})[0-9]""")
+        self.narrow = re.compile(rb""" r=["']([A-Z])[0-9]""")
+        self.formula_start = b"<" + prefix + b"f"
+        self.formula = re.compile(rb"<" + p + rb"f\b[^>]*?(?:/>|>([^<]*)</" + p + rb"f>)")
+        self.cell_start = re.compile(rb"<" + p + rb"c[\s>]")
+        self.cell_end = re.compile(rb"</" + p + rb"c>|<" + p + rb"c[\s>]")
+        self.value = re.compile(rb"<" + p + rb"v>([^<]+)</" + p + rb"v>")
+        self.error_cell = re.compile(rb"<" + p + rb"""c\b[^>]*? t="e"[^>]*>""")
+        self.merge = re.compile(rb"<" + p + rb"mergeCell\s+ref=\"\$?([A-Z]+)\$?(\d+)(?::\$?([A-Z]+)\$?(\d+))?\"")
+
+
+def scan_sheet(path: Path, part: str, progress) -> SheetScan:
+    """Stream a sheet's XML once: its reach, merged ranges, formulas without results and error cells.
+
+    Raises a DataFileError when the XML unpacks to more than MAX_XML_BYTES or cannot be read.
+    """
+    scan = SheetScan()
     merges = set()
     try:
-        with zipfile.ZipFile(path) as z, z.open(part.lstrip("/")) as fh:
-            tail = b""
-            for block in iter(lambda: fh.read(1 << 22), b""):
-                data = tail + block
-                formulas = formulas or bool(_FORMULA_TAG.search(data))
-                for m in _MERGE_TAG.finditer(data):
-                    c0, r0, c1, r1 = m.groups()
-                    merges.add((column_index_from_string(c0.decode()), int(r0),
-                                column_index_from_string((c1 or c0).decode()), int(r1 or r0)))
-                # Keep the end of the block, so that a tag cut in two is still found.
-                tail = data[-200:]
-    except (KeyError, OSError, ValueError, zipfile.BadZipFile):
-        return False, []
-    return formulas, sorted(merges)
+        with zipfile.ZipFile(path) as z:
+            info = z.getinfo(part)
+            shared = next((i for i in z.infolist() if i.filename.endswith("sharedStrings.xml")), None)
+            if info.file_size > MAX_XML_BYTES or (shared is not None and shared.file_size > MAX_XML_BYTES):
+                raise _too_big(path)
+            rows_counted, read, tail, tags = 0, 0, b"", None
+            with z.open(info) as fh:
+                for block in iter(lambda: fh.read(1 << 22), b""):
+                    read += len(block)
+                    if read > MAX_XML_BYTES:
+                        raise _too_big(path)
+                    data = tail + block
+                    if tags is None:
+                        found = _PREFIX.search(data)
+                        tags = _Tags(found.group(1) or b"" if found else b"")
+                    # Work on whole rows: the rest waits for the next block.
+                    cut = data.rfind(tags.row_end)
+                    cut = cut + len(tags.row_end) if cut >= 0 else 0
+                    rows_counted += _scan_chunk(data[:cut], tags, scan, None)
+                    tail = data[cut:]
+                    report_progress(progress, 0.25 * min(read / max(info.file_size, 1), 1.0), path)
+            if tags is not None:
+                rows_counted += _scan_chunk(tail, tags, scan, merges)
+    except (DataFileError, ReadCancelled):
+        raise
+    except (KeyError, OSError, ValueError, EOFError, zipfile.BadZipFile, RuntimeError):
+        raise _damaged(path) from None
+    scan.rows = max(scan.rows, rows_counted)
+    scan.merges = sorted(merges)
+    return scan
 
 
-def _formulas_without_values(path: Path, sheet: str, rows) -> list:
+def _too_big(path: Path) -> DataFileError:
+    return DataFileError(
+        f"{path.name} unpacks to more than {MAX_XML_BYTES / 1e9:.3g} GB, more than Twofold reads from a "
+        "workbook; save the sheet as CSV, or split the records over several files."
+    )
+
+
+def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set | None) -> int:
+    """Scan whole rows of XML into ``scan`` (merged ranges into ``merges``, given with the part after the
+    rows, where a sheet keeps them); returns how many row elements without a number the chunk holds."""
+    if not chunk:
+        return 0
+    refs = tags.row_ref.findall(chunk)
+    if refs:
+        scan.rows = max(scan.rows, max(map(int, refs)))
+    # The furthest column.  Columns A to Z alone cannot pass the cap on a sheet of Excel's 1,048,576 rows,
+    # so one-letter references are looked at only on a sheet that claims more rows than that.
+    wide = set(tags.wide.findall(chunk))
+    if wide:
+        scan.columns = max(scan.columns, max(map(_column_number, wide)))
+    elif scan.columns < 26 and (refs or not scan.rows):
+        if scan.rows * 26 > MAX_CELLS:
+            scan.columns = max([scan.columns, *map(_column_number, set(tags.narrow.findall(chunk)))])
+        else:
+            scan.columns = 26  # at most Z: an upper bound is enough below the cap
+    if tags.formula_start in chunk:
+        for m in tags.formula.finditer(chunk):
+            cell = _cell_around(chunk, m.start(), tags)
+            if cell is not None and not _has_value(cell, tags):
+                ref = _REF.search(cell)
+                if ref:
+                    text = (m.group(1) or b"").decode("utf-8", "replace")
+                    scan.formulas.append((int(ref.group(2)), _column_number(ref.group(1)), text))
+    if b't="e"' in chunk:
+        for m in tags.error_cell.finditer(chunk):
+            end = tags.cell_end.search(chunk, m.end())
+            value = tags.value.search(chunk, m.end(), end.start() if end is not None else len(chunk))
+            ref = _REF.search(m.group(0))
+            if value and ref:
+                scan.errors.append((int(ref.group(2)), _column_number(ref.group(1)),
+                                    value.group(1).decode("utf-8", "replace")))
+    for m in tags.merge.finditer(chunk) if merges is not None else ():  # merged ranges follow the rows
+        c0, r0, c1, r1 = m.groups()
+        merges.add((_column_number(c0), int(r0), _column_number(c1 or c0), int(r1 or r0)))
+    return 0 if refs else len(tags.row_tag.findall(chunk))
+
+
+def _has_value(cell: bytes, tags: _Tags) -> bool:
+    """Whether a formula cell holds a saved result (an empty text result counts)."""
+    return bool(tags.value.search(cell)) or (b't="str"' in cell and b"v>" in cell)
+
+
+def _cell_around(chunk: bytes, at: int, tags: _Tags) -> bytes | None:
+    """The XML of the cell element holding position ``at``."""
+    start = None
+    for m in tags.cell_start.finditer(chunk, max(0, at - 400), at):
+        start = m.start()
+    if start is None:
+        return None
+    end = tags.cell_end.search(chunk, at)
+    return chunk[start:end.end()] if end is not None else chunk[start:]
+
+
+def _formulas_notice(path: Path, sheet: str, formulas: list) -> Notice:
     """A notice for formula cells with no saved result (files written by programs that do not calculate)."""
-    from openpyxl.utils import get_column_letter
-
-    book = _open_book(path, data_only=False)
-    missing, example = 0, None
-    try:
-        ws = book[sheet]
-        ws.reset_dimensions()
-        for i, row in enumerate(ws.iter_rows(min_row=1, min_col=1, values_only=True)):
-            shown = rows[i] if i < len(rows) else ()
-            for j, v in enumerate(row):
-                if v is None or (j < len(shown) and shown[j] is not None):
-                    continue
-                if (isinstance(v, str) and v.startswith("=")) or type(v).__name__ in ("ArrayFormula",
-                                                                                      "DataTableFormula"):
-                    missing += 1
-                    if example is None:
-                        text = v if isinstance(v, str) else getattr(v, "text", "") or ""
-                        example = f"{get_column_letter(j + 1)}{i + 1}, {shorten(text, 30)}"
-    finally:
-        book.close()
-    if not missing:
-        return []
+    missing = len(formulas)
+    r, c, text = formulas[0]
+    example = f"{column_letters(c)}{r}, {shorten('=' + text, 30)}"
     one = missing == 1
-    return [Notice("formulas", f"In sheet '{sheet}' of {path.name}, {plural(missing, 'cell')} "
-                   f"{'holds a formula' if one else 'hold formulas'} with no saved result "
-                   f"(for example {example}), so {'it was' if one else 'they were'} read as empty; "
-                   "open the file in Excel, save it, and open it here again.")]
+    return Notice("formulas", f"In sheet '{sheet}' of {path.name}, {plural(missing, 'cell')} "
+                  f"{'holds a formula' if one else 'hold formulas'} with no saved result "
+                  f"(for example {example}), so {'it was' if one else 'they were'} read as empty; "
+                  "open the file in Excel, save it, and open it here again.")
 
 
-def _frame_from_rows(rows, merges, where: str, hint: str):
+def _blank(v) -> bool:
+    return v is None or (isinstance(v, str) and not v.strip())
+
+
+def _as_openpyxl_gave(v):
+    """One cell as openpyxl gave it: empty as None, whole numbers as int, dates as datetimes."""
+    if isinstance(v, str) and v == "":
+        return None
+    if type(v) is float and v.is_integer() and abs(v) < 2**53:
+        return int(v)
+    if type(v) is dt.date:
+        return dt.datetime(v.year, v.month, v.day)
+    return v
+
+
+def _column_values(values) -> None:
+    """Give a column of cells (an object array, changed in place) the types openpyxl gave, the whole column at once."""
+    import numpy as np
+    import pandas as pd
+
+    values[values == ""] = None
+    kind = pd.api.types.infer_dtype(values, skipna=True)
+    if kind in ("floating", "integer", "mixed-integer-float"):
+        numbers = values.astype(float)
+        finite = np.isfinite(numbers)
+        if (numbers[finite] == np.trunc(numbers[finite])).all() and (np.abs(numbers[finite]) < 2**53).all():
+            values[finite] = numbers[finite].astype(np.int64).astype(object)
+    elif kind == "date":  # dates without a time come as dates; openpyxl gave datetimes
+        date = dt.date
+        values[:] = [dt.datetime(v.year, v.month, v.day) if type(v) is date else v for v in values]
+    elif kind not in ("empty", "string", "boolean", "datetime", "time"):  # numbers, text and dates mixed
+        values[:] = [_as_openpyxl_gave(v) for v in values]
+
+
+def frame_from_rows(rows, merges, where: str, hint: str):
     """The table in a sheet's rows: header at the first non-empty row, titles skipped, empty edges trimmed.
 
-    Returns (frame of object columns, names made up for blank names, notices).
+    ``rows`` are lists from A1 (they may be changed in place).  Returns
+    (frame of object columns, names made up for blank names, notices).
     """
     import numpy as np
     import pandas as pd
 
-    def blank(v):
-        return v is None or (isinstance(v, str) and not v.strip())
-
+    blank = _blank
     notices: list[Notice] = []
     width = max((len(r) for r in rows), default=0)
-    filled = [list(r) + [None] * (width - len(r)) for r in rows]
+    filled = [r if len(r) == width and isinstance(r, list) else list(r) + [None] * (width - len(r)) for r in rows]
     # A merged block shows its top-left value over the whole block.
     for c0, r0, c1, r1 in merges:
         if r0 > len(filled) or c0 > width:
@@ -164,11 +443,15 @@ def _frame_from_rows(rows, merges, where: str, hint: str):
         value = filled[r0 - 1][c0 - 1]
         for r in range(r0 - 1, min(r1, len(filled))):
             for c in range(c0 - 1, min(c1, width)):
-                if filled[r][c] is None:
+                if filled[r][c] is None or filled[r][c] == "":
                     filled[r][c] = value
-    nonempty = [i for i, r in enumerate(filled) if any(not blank(v) for v in r)]
+    # The first non-empty rows are all the header search looks at (titles, a gap, the names, a row below).
+    nonempty = list(itertools.islice((i for i, r in enumerate(filled) if any(not blank(v) for v in r)), 40))
     if not nonempty:
         raise DataFileError(f"The {where} is empty; {hint}.")
+    # The rows down to the header are few: give their cells openpyxl's types one by one.
+    for i in range(0, min(len(filled), nonempty[min(len(nonempty), 8) - 1] + 3)):
+        filled[i] = [_as_openpyxl_gave(v) for v in filled[i]]
     # Titles: one value, or one merged block across the top, above a row of names.
     merged_across = {r0 for c0, r0, c1, r1 in merges if c1 > c0}
 
@@ -182,7 +465,7 @@ def _frame_from_rows(rows, merges, where: str, hint: str):
         k += 1
     k = header_after_gap(filled, nonempty, k)
     if k:
-        title = " ".join(dict.fromkeys(str(v).strip() for v in filled[nonempty[k - 1]] if not blank(v)))
+        title = " ".join(dict.fromkeys(cell_text(v).strip() for v in filled[nonempty[k - 1]] if not blank(v)))
         notices.append(Notice("title_row", f"Row {nonempty[k - 1] + 1} of {where} ({shorten(str(title))!r}) looks "
                               f"like a title, so the column names were taken from row {nonempty[k] + 1}."))
     h = nonempty[k]
@@ -211,7 +494,10 @@ def _frame_from_rows(rows, merges, where: str, hint: str):
     # Trim empty edges: trailing rows, and columns empty in the header and below.
     while data and all(blank(v) for v in data[-1]):
         data.pop()
-    used = [j for j in range(width) if not blank(header[j]) or any(not blank(r[j]) for r in data)]
+    grid = np.empty((len(data), width), dtype=object)
+    if data:
+        grid[:] = data
+    used = [j for j in range(width) if not blank(header[j]) or _any_filled(grid[:, j])]
     if not used:
         raise DataFileError(f"The {where} has no columns; {hint}.")
     first, last = used[0], used[-1]
@@ -221,9 +507,12 @@ def _frame_from_rows(rows, merges, where: str, hint: str):
     notices.extend(name_notices)
     if not data:
         raise DataFileError(f"The {where} has column names but no data rows; {hint}.")
-    columns = {}
-    for j, name in zip(range(first, last + 1), names):
-        values = np.empty(len(data), dtype=object)
-        values[:] = [r[j] for r in data]
-        columns[name] = pd.Series(values, dtype=object, name=name)
-    return pd.DataFrame(columns), generated, notices
+    block = grid[:, first:last + 1]
+    for j in range(block.shape[1]):
+        _column_values(block[:, j])
+    return pd.DataFrame(block, columns=names, dtype=object, copy=False), generated, notices
+
+
+def _any_filled(values) -> bool:
+    """Whether a column of cells holds anything other than blanks."""
+    return any(not _blank(v) for v in values)
