@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QTimer, Signal
+from PySide6.QtCore import QObject, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QCheckBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QMessageBox,
                                QSpinBox, QVBoxLayout)
@@ -133,6 +133,8 @@ class SessionActions(QObject):
         self.restore_offered: Path | None = None
         self.autosave_enabled = False
         self.last_autosave: str | None = None
+        #: Why autosave is off, once said to the user (None while it is on or not yet asked for).
+        self.autosave_off: str | None = None
         from twofold.core.outputs.session import REPORT_DEFAULTS
 
         #: The report's options (small-count limit, records by row number): the defaults, a restored
@@ -433,8 +435,20 @@ class SessionActions(QObject):
 
         try:
             start_autosave()
-        except OSError:
+        except OSError as exc:
+            from twofold.paths import own_folder_problem
+
             self.autosave_enabled = False
+            why = own_folder_problem() or f"Twofold's own folder cannot be written ({exc.strerror or exc})"
+            self.autosave_off = (f"Autosave is off: {why}. Everything else works; save the analysis yourself "
+                                 "(File, Save the analysis) to keep it.")
+            # Said once in full; a short mark stays in the status bar, the reason on it as a tooltip.
+            self.window.statusBar().showMessage(self.autosave_off, 15000)
+            mark = QLabel("Autosave is off")
+            mark.setTextFormat(Qt.TextFormat.PlainText)
+            mark.setToolTip(self.autosave_off)
+            mark.setObjectName("autosave_off")
+            self.window.statusBar().addPermanentWidget(mark)
             return False
         self.autosave_enabled = True
         if self.session.last_results is not None:

@@ -720,7 +720,8 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
 #: Reading and writing files, in twofold.core.outputs.storage.
 _STORAGE_NAMES = ("atomic_write_text", "file_sha256", "load_session", "save_session")
 #: The autosave and recovery, in twofold.core.outputs.autosave.
-_AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "recoverable", "start_autosave")
+_AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "lock_path", "recoverable",
+                   "start_autosave")
 
 
 def __getattr__(name: str):
