@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-from pathlib import Path
 
 from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
     EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_report_options, report_options_need_a_place, suppress_limit,
@@ -165,6 +164,10 @@ def main(argv: list[str] | None = None) -> int:
         return run_gui(argv)
     except KeyboardInterrupt:
         return 130
+    except MemoryError:
+        print("twofold: this computer ran out of memory for this analysis; close other programs, or export only "
+              "the columns and rows you need.", file=sys.stderr)
+        return EXIT_USAGE
     except SystemExit:
         raise
     except Exception as exc:  # the last guard: a message, never a traceback

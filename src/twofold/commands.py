@@ -193,6 +193,8 @@ def _rerun(args):
     options = report_options(session["report"], args.suppress_up_to, args.report_records)
     own = args.data is None
     data = Path(session["data"] if own else args.data)
+    if own and ses.is_network_path(session["data"]):
+        raise ses.network_path_error(session["data"], args.session)
     # The session's own data file is refused as an output too when a new extract is read instead.
     _refuse_data_targets([args.report, args.json], [data, session["data"]], session_file=args.session)
     ses.require_data_file(data)

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import json
 import os
-import re
 import sys
 from pathlib import Path
 
@@ -354,3 +353,126 @@ def _a_session(tmp_path: Path) -> dict:
 
     data = _extreme_file(tmp_path / "s.csv", "0.5")
     return session_from_result(run_analysis(AnalysisSpec(data=str(data), outcome="y", predictors=["x"])))
+
+
+# ---------------------------------------------------------------- 14. too large for memory
+def test_running_out_of_memory_anywhere_in_reading_is_the_too_large_sentence(tmp_path, monkeypatch):
+    import twofold.core.data.read_text as read_text
+    from twofold.core.data.io import read_table
+
+    def no_memory(*args, **kwargs):
+        raise MemoryError
+
+    monkeypatch.setattr(read_text, "tidy_frame", no_memory)  # tidying a column that does not fit
+    with pytest.raises(DataFileError, match="too large for this computer's memory"):
+        read_table(_extreme_file(tmp_path / "d.csv", "0.5"))
+
+
+# ---------------------------------------------------------------- 15 and 16. sessions
+def _group_file(path: Path) -> Path:
+    x, z, y = _rows(300, seed=5)
+    wards = np.array(["east", "west", "north"])[(np.abs(z) * 10).astype(int) % 3]
+    return _write(path, "y,x,ward\n" + "".join(f"{a},{float(b)!r},{c}\n" for a, b, c in zip(y, x, wards)))
+
+
+def _tampered(tmp_path: Path, env: dict) -> dict:
+    """Sessions a fit could not have written, and one pointing at a network share; name -> path."""
+    data = _group_file(tmp_path / "groups.csv")
+    good = tmp_path / "good.json"
+    res = run_cli("fit", data, "--outcome", "y", "--predictor", "x", "ward", "--session-out", good, env=env)
+    assert res.returncode == 0, res.stderr
+    base = json.loads(good.read_text(encoding="utf-8"))
+    out = {}
+
+    def variant(name, change):
+        s = json.loads(json.dumps(base))
+        change(s)
+        out[name] = tmp_path / f"{name}.json"
+        out[name].write_text(json.dumps(s), encoding="utf-8")
+
+    variant("absurd_coefficient", lambda s: s["model"]["coefficients"].__setitem__(1, 1e300))
+    variant("absurd_intercept", lambda s: s["model"]["coefficients"].__setitem__(0, -1e200))
+    variant("duplicate_groups", lambda s: s["model"]["terms"][1]["levels"].__setitem__(
+        1, s["model"]["terms"][1]["levels"][0]))
+    variant("negative_variance", lambda s: s["model"]["covariance"][1].__setitem__(1, -1.0))
+    variant("unc_share", lambda s: s.__setitem__("data", "\\\\records-server\\share\\groups.csv"))
+    variant("slash_share", lambda s: s.__setitem__("data", "//records-server/share/groups.csv"))
+    return out
+
+
+def test_tampered_sessions_are_refused_in_one_sentence(tmp_path):
+    from twofold.core.outputs.session import load_session
+
+    env = _env(tmp_path / "home")
+    sessions = _tampered(tmp_path, env)
+    for name in ("absurd_coefficient", "absurd_intercept", "duplicate_groups", "negative_variance"):
+        with pytest.raises(TwofoldError, match="which no fit produces|far beyond what a fit produces|repeat a name"):
+            load_session(sessions[name])
+        line = _one_sentence(run_cli("predict", sessions[name], "--value", "x=1", "--value", "ward=east", env=env))
+        assert sessions[name].name in line
+    for name in ("unc_share", "slash_share"):
+        line = _one_sentence(run_cli("rerun", sessions[name], env=env))
+        assert "on another computer" in line and "--data" in line
+        # Chosen by the user, the data file is read (here the copy on this computer).
+        assert run_cli("rerun", sessions[name], "--data", tmp_path / "groups.csv", env=env).returncode == 0
+
+
+# ---------------------------------------------------------------- every case through the command line
+def _corpus(tmp_path: Path, env: dict) -> list:
+    """(argv, expected exit) for every hostile file, session and option above; None: either 0 or 2."""
+    cells = ["0.085" if i % 2 else "0.250" for i in range(200)]
+    cells[5] = "0,1"
+    mixed = _dose_file(tmp_path / "mixed.csv", ";", cells)
+    cases = [(["fit", mixed, "--outcome", "y", "--predictor", "dose"], 2)]
+    for value in ("1e155", "1e200", "-1e300", "1e99", "inf", "nan"):
+        data = _extreme_file(tmp_path / f"x{value}.csv", value)
+        for extra in ([], ["--spline", "x:3"], ["--interaction", "x:z"], ["--firth"], ["--profile-ci"],
+                      ["--validate", "5", "--seed", "1"]):
+            cases.append((["fit", data, "--outcome", "y", "--predictor", "x", "z", *extra],
+                          2 if value in ("1e155", "1e200", "-1e300") else None))
+    wards = _ward_file(tmp_path / "wards.csv", 150)
+    cases.append((["fit", wards, "--outcome", "y", "--predictor", "ward_code", "--role", "ward_code=categorical"], 0))
+    cases.append((["fit", _ward_file(tmp_path / "many.csv", 400), "--outcome", "y", "--predictor", "ward_code",
+                   "--role", "ward_code=categorical", "--json", "-"], 2))
+    plain = _extreme_file(tmp_path / "plain.csv", "0.5")
+    blocker = tmp_path / "a-file"
+    blocker.write_text("not a folder\n")
+    for option in (["--json", plain], ["--table-out", plain], ["--report", plain], ["--session-out", plain],
+                   ["--table-out", tmp_path / "t.ods"], ["--report", tmp_path / "r.docx"],
+                   ["--json", blocker / "out.json"], ["--table-out", blocker / "t.xlsx"],
+                   ["--report", blocker / "r.html"], ["--session-out", blocker / "s.json"]):
+        cases.append((["fit", plain, "--outcome", "y", "--predictor", "x", *option], 2))
+    sessions = _tampered(tmp_path, env)
+    for name, path in sessions.items():
+        cases.append((["rerun", path], 2))
+        cases.append((["rerun", path, "--frozen", "--json", "-"], 2))
+        cases.append((["predict", path, "--value", "x=1", "--value", "ward=east"], 2 if "share" not in name else 0))
+    good = tmp_path / "good.json"
+    cases += [(["rerun", good, "--data", plain, "--json", tmp_path / "groups.csv"], 2),
+              (["rerun", good, "--json", good], 2),
+              (["predict", good, "--value", "x=1e300", "--value", "ward=east"], None),
+              (["predict", good, "--value", "x=nan", "--value", "ward=<img src=x>"], None)]
+    return cases
+
+
+def test_no_hostile_file_session_or_option_ends_in_an_internal_error(tmp_path):
+    from concurrent.futures import ThreadPoolExecutor
+
+    env = _env(tmp_path / "home")
+    cases = _corpus(tmp_path, env)
+
+    def one(case):
+        return case, run_cli(*case[0], env=env)
+
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        results = list(pool.map(one, cases))
+    for (argv, expected), res in results:
+        where = " ".join(map(str, argv))[-160:]
+        assert res.returncode != 3, (where, res.stderr)
+        assert "Traceback" not in res.stderr + res.stdout, (where, res.stderr)
+        assert res.returncode in (0, 2), (where, res.returncode, res.stderr)
+        if expected is not None:
+            assert res.returncode == expected, (where, res.stderr)
+        if res.returncode == 2:
+            lines = res.stderr.strip().splitlines()
+            assert len(lines) == 1 and lines[0].startswith("twofold: "), (where, res.stderr)

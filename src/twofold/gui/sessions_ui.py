@@ -272,9 +272,13 @@ class SessionActions(QObject):
             from twofold.core.data.io import read_table
             from twofold.core.outputs.session import check_data, load_session, require_data_file
 
+            from twofold.core.outputs.session import is_network_path
+
             session = load_session(path)
             where = Path(data if data is not None else session["data"])
             out = {"session": session, "path": str(path), "data": str(where), "recovered": recovered}
+            if data is None and is_network_path(session["data"]):
+                return {**out, "kind": "network"}  # followed only once the user chooses it in the dialog
             if not where.exists():
                 return {**out, "kind": "no_data"}
             require_data_file(where)
@@ -289,10 +293,12 @@ class SessionActions(QObject):
 
         session, path, data = payload["session"], payload["path"], payload["data"]
         recovered = payload["recovered"]
-        if payload["kind"] == "no_data":
-            if ask_user(self.window, "Twofold: where is the data file?",
-                        f"The data file of this analysis, {Path(data).name}, is no longer at {Path(data).parent}. "
-                        "Choose where it is now?"):
+        if payload["kind"] in ("no_data", "network"):
+            question = (f"The data file of this analysis, {Path(data).name}, is no longer at {Path(data).parent}. "
+                        "Choose where it is now?") if payload["kind"] == "no_data" else (
+                        f"The data file of this analysis is on another computer ({data}); Twofold opens files "
+                        "there only when you choose them yourself. Choose the data file now?")
+            if ask_user(self.window, "Twofold: where is the data file?", question):
                 new = choose_data_file(self.window, self._start())
                 if new:
                     self.open_from(path, data=new, recovered=recovered)

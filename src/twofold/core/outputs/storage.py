@@ -26,6 +26,7 @@ from twofold.core.outputs.session import (
     MAX_FILE_BYTES,
     MAX_INTEGER_DIGITS,
     SessionFileError,
+    is_network_path,
     session_file_error,
     validate_session,
 )
@@ -143,7 +144,12 @@ def _resolved(path) -> Path | None:
 
 
 def same_file(a, b) -> bool:
-    """Whether two paths name one file: equal once resolved (links followed), or the same file on disk."""
+    """Whether two paths name one file: equal once resolved (links followed), or the same file on disk.
+
+    A network path is compared as text only (looking it up would reach the other computer).
+    """
+    if is_network_path(a) or is_network_path(b):
+        return os.path.normcase(os.fspath(a)) == os.path.normcase(os.fspath(b))
     ra, rb = _resolved(a), _resolved(b)
     if ra is None or rb is None:
         return False
@@ -290,6 +296,6 @@ def load_session(path) -> dict:
         raise session_file_error(path, f"it is not valid JSON{where}") from None
     validate_session(session, path)
     data = Path(session["data"])
-    if not data.is_absolute():
+    if not data.is_absolute() and not is_network_path(session["data"]):
         session["data"] = str((path.parent / data).resolve())
     return session
