@@ -118,7 +118,7 @@ class DataPane(QWidget):
         _compact_table(self.table)
         self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         self.table.setVerticalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
-        self._measured = set()
+        self.measured_columns = set()
         self.table.horizontalScrollBar().valueChanged.connect(self._measure_columns_in_view)
         self.table.setHorizontalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
         split.addWidget(self.table)
@@ -191,7 +191,7 @@ class DataPane(QWidget):
         """Column widths from the header and the first rows only (never every row), measured lazily: the
         columns in view now, the others as they are scrolled into view (a file of 50,000 columns would
         otherwise hold the window while every one is measured)."""
-        self._measured: set = set()
+        self.measured_columns: set = set()
         self.table.horizontalHeader().setDefaultSectionSize(self.table.fontMetrics().horizontalAdvance("x") * 12)
         self._measure_columns_in_view()
 
@@ -207,9 +207,9 @@ class DataPane(QWidget):
         pad = 24
         shown = min(self.cells.rowCount(), 60)
         for c in range(first, last + 1):
-            if c in self._measured:
+            if c in self.measured_columns:
                 continue
-            self._measured.add(c)
+            self.measured_columns.add(c)
             texts = [self.cells.headerData(c, Qt.Orientation.Horizontal)]
             texts += [self.cells.data(self.cells.index(r, c)) for r in range(shown)]
             width = max(fm.horizontalAdvance(str(t)) for t in texts) + pad

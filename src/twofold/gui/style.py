@@ -79,6 +79,10 @@ def plain_tip(text: str) -> str:
     """A tooltip showing ``text`` as it is (Qt would otherwise read a tooltip holding a tag as rich text)."""
     from html import escape
 
+    from PySide6 import QtGui  # Qt's rich-text guess lives in its GUI module's Qt namespace
+
+    if not QtGui.Qt.mightBeRichText(text):
+        return text  # Qt shows it as it is
     return f"<p style='white-space:pre-wrap'>{escape(text)}</p>"
 
 
