@@ -9,10 +9,7 @@ traceback reaches the user.
 from __future__ import annotations
 
 import argparse
-import json
-import os
 import sys
-from pathlib import Path
 
 from twofold.command_options import (  # noqa: F401  (EXIT_* and suppress_limit are read by tests)
     EXIT_INTERNAL, EXIT_USAGE, CommandParser, add_net_benefit_option, add_report_options,
@@ -83,13 +80,6 @@ def _probability(text: str) -> float:
     return value
 
 
-def _same_file(a: Path, b: Path) -> bool:
-    try:
-        return a.exists() and b.exists() and os.path.samefile(a, b)
-    except OSError:
-        return False
-
-
 def run_fit(argv: list[str]) -> int:
     """``twofold fit``: returns the exit code."""
     parser = _fit_parser()
@@ -98,35 +88,25 @@ def run_fit(argv: list[str]) -> int:
     from twofold.core.errors import TwofoldError
 
     try:
+        from twofold.core.outputs.storage import refuse_writing_over
+
+        refuse_writing_over([args.session_out, args.report, args.table_out, args.json], [args.data])
         result = _fit(args)
         record, source = result.record, result.study.source
-        for out in (args.session_out, args.report, args.table_out, None if args.json in (None, "-") else args.json):
-            if out and _same_file(Path(out), Path(args.data)):
-                print(f"twofold: {out} is the data file itself; Twofold never writes to the data, "
-                      "so choose another file name.", file=sys.stderr)
-                return EXIT_USAGE
         if args.session_out or args.report or args.table_out:
             from twofold.commands import write_fit_outputs
 
             write_fit_outputs(result, session=args.session_out, report=args.report, table=args.table_out,
                               suppress_up_to=args.suppress_up_to, report_records=args.report_records,
                               report_texts=report_texts(args))
+        if args.json:
+            from twofold.commands import emit_json
+
+            emit_json(record, args.json)
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
         return EXIT_USAGE
-    if args.json:
-        text = json.dumps(record, indent=2, ensure_ascii=False, allow_nan=False)
-        if args.json == "-":
-            sys.stdout.write(text + "\n")
-        else:
-            out = Path(args.json)
-            try:
-                out.write_text(text + "\n", encoding="utf-8")
-            except OSError as exc:
-                print(f"twofold: could not write {out} ({exc.strerror}); choose a folder you can write to.",
-                      file=sys.stderr)
-                return EXIT_USAGE
-    else:
+    if not args.json:
         from twofold.core.outputs.text import describe
 
         sys.stdout.write(describe(record, source))
@@ -197,29 +177,35 @@ def main(argv: list[str] | None = None) -> int:
         return run_gui(argv)
     except KeyboardInterrupt:
         return 130
+    except MemoryError:
+        print("twofold: this computer ran out of memory for this analysis; close other programs, or export only "
+              "the columns and rows you need.", file=sys.stderr)
+        return EXIT_USAGE
     except SystemExit:
         raise
     except Exception as exc:  # the last guard: a message, never a traceback
-        log = _log_exception()
         print(f"twofold: an unexpected problem stopped the command ({type(exc).__name__}: {exc}); "
-              f"details were written to {log}. Please report it with that file.", file=sys.stderr)
+              f"{_log_exception()}", file=sys.stderr)
         return EXIT_INTERNAL
 
 
 def _log_exception() -> str:
-    import tempfile
+    """Append the traceback to Twofold's own error log; where that folder cannot be written, say so.
+
+    Never a shared folder such as the system's temporary one, where others could read it.
+    """
     import traceback
 
     from twofold.paths import log_dir
 
     try:
-        folder = log_dir()
-    except OSError:
-        folder = Path(tempfile.gettempdir())
-    path = folder / "twofold-error.log"
-    with open(path, "a", encoding="utf-8") as fh:
-        traceback.print_exc(file=fh)
-    return str(path)
+        path = log_dir() / "twofold-error.log"
+        with open(path, "a", encoding="utf-8") as fh:
+            traceback.print_exc(file=fh)
+        return f"details were written to {path}. Please report it with that file."
+    except OSError as exc:
+        return (f"the details could not be kept, because Twofold's own folder cannot be written "
+                f"({exc.strerror or type(exc).__name__}). Please report the message above.")
 
 
 if __name__ == "__main__":

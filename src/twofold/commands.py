@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 from pathlib import Path
 
@@ -21,26 +20,10 @@ from twofold.command_options import (
     report_texts,
 )
 
-def _same_file(a, b) -> bool:
-    try:
-        a, b = Path(a), Path(b)
-        return a.exists() and b.exists() and os.path.samefile(a, b)
-    except (OSError, TypeError):
-        return False
+def _refuse_data_targets(outputs, data_files, session_file=None) -> None:
+    from twofold.core.outputs.storage import refuse_writing_over
 
-
-def _refuse_data_targets(outputs, data, session_file=None) -> None:
-    """Refuse any output path that is the data file (or the session file being read)."""
-    from twofold.core.errors import DataFileError
-
-    for out in outputs:
-        if not out or out == "-":
-            continue
-        if _same_file(out, data) or Path(out).resolve() == Path(data).resolve():
-            raise DataFileError(f"{out} is the data file itself; Twofold never writes to the data, "
-                                "so choose another file name.")
-        if session_file is not None and _same_file(out, session_file):
-            raise DataFileError(f"{out} is the session file being read; choose another file name for the output.")
+    refuse_writing_over(outputs, data_files, session_file=session_file)
 
 
 def write_fit_outputs(result, session=None, report=None, table=None, ladder=None, suppress_up_to=None,
@@ -77,7 +60,7 @@ def write_fit_outputs(result, session=None, report=None, table=None, ladder=None
     """
     from twofold.core.errors import DataFileError
 
-    _refuse_data_targets([session, report, table], result.spec.data)
+    _refuse_data_targets([session, report, table], [result.spec.data])
     # Suffixes are checked before anything is written, so a wrong one leaves no half set of files.
     if report and Path(report).suffix.lower() not in (".html", ".htm", ".pdf"):
         raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{Path(report).suffix or report}'; "
@@ -149,17 +132,18 @@ def _add_adapt_options(p: argparse.ArgumentParser) -> None:
                    help="show AUC and calibration within the groups of a column (default: the session's own, if any)")
 
 
-def _emit_json(record: dict, target: str) -> None:
-    from twofold.core.errors import DataFileError
+def emit_json(record: dict, target: str) -> None:
+    """The record as JSON on standard output (``-``) or in the file ``target``, written atomically."""
+    from twofold.core.outputs.storage import atomic_write_text, write_failure
 
     text = json.dumps(record, indent=2, ensure_ascii=False, allow_nan=False)
     if target == "-":
         sys.stdout.write(text + "\n")
         return
     try:
-        Path(target).write_text(text + "\n", encoding="utf-8")
+        atomic_write_text(Path(target), text + "\n")
     except OSError as exc:
-        raise DataFileError(f"Could not write {target} ({exc.strerror}); choose a folder you can write to.") from None
+        raise write_failure(target, exc) from None
 
 
 def _frozen_text(record: dict, source: str) -> str:
@@ -222,7 +206,7 @@ def run_rerun(argv: list[str]) -> int:
         return EXIT_USAGE
     if args.json:
         try:
-            _emit_json(record, args.json)
+            emit_json(record, args.json)
         except TwofoldError as exc:
             print(f"twofold: {exc}", file=sys.stderr)
             return EXIT_USAGE
@@ -243,8 +227,11 @@ def _rerun(args):
     options = report_options(session["report"], args.suppress_up_to, args.report_records, report_texts(args))
     own = args.data is None
     data = Path(session["data"] if own else args.data)
+    if own and ses.is_network_path(session["data"]):
+        raise ses.network_path_error(session["data"], args.session)
+    # The session's own data file is refused as an output too when a new extract is read instead.
+    _refuse_data_targets([args.report, args.json], [data, session["data"]], session_file=args.session)
     ses.require_data_file(data)
-    _refuse_data_targets([args.report, args.json], data, session_file=args.session)
     table = read_table(data, sheet=session["sheet"])
     notices = ses.check_data(session, data, frame=table.frame)
     needed = set([session["outcome"], *session["predictors"], *(session["smaller"] or [])])
@@ -315,7 +302,7 @@ def _adapt(result, session, data, args) -> None:
         from twofold.core.outputs.session import adapted_session
         from twofold.core.outputs.storage import save_session
 
-        _refuse_data_targets([args.session_out], data, session_file=args.session)
+        _refuse_data_targets([args.session_out], [data], session_file=args.session)
         save_session(adapted_session(session, adaptation.model, data, result.rows_read), args.session_out)
 
 
@@ -370,14 +357,14 @@ def run_predict(argv: list[str]) -> int:
         from twofold.core.outputs.summary import PATIENT_CAUTION, plain_value
 
         session = load_session(args.session)
-        _refuse_data_targets([args.json], session["data"], session_file=args.session)
+        _refuse_data_targets([args.json], [session["data"]], session_file=args.session)
         model = frozen_from_session(session)
         values = _values(args.value)
         pred = predict(model, values)
         record = {**pred.as_dict(), "outcome": model.outcome, "event": plain_value(model.event),
                   "values": values, "caution": PATIENT_CAUTION}
         if args.json:
-            _emit_json(record, args.json)
+            emit_json(record, args.json)
             return 0
     except TwofoldError as exc:
         print(f"twofold: {exc}", file=sys.stderr)
@@ -419,7 +406,7 @@ def run_units(argv: list[str]) -> int:
     try:
         record = units_record(args.session, args.unit, args.data, json_target=args.json)
         if args.json:
-            _emit_json(record, args.json)
+            emit_json(record, args.json)
         else:
             sys.stdout.write(describe_units(record))
     except TwofoldError as exc:
@@ -439,7 +426,7 @@ def units_record(session_file, unit: str, data=None, json_target=None) -> dict:
     session = ses.load_session(session_file)
     path = Path(session["data"] if data is None else data)
     ses.require_data_file(path)
-    _refuse_data_targets([json_target], path, session_file=session_file)
+    _refuse_data_targets([json_target], [path], session_file=session_file)
     model = ses.frozen_from_session(session)
     scored = score_file(model, path, sheet=session["sheet"])
     frame, source = scored.study.frame, scored.study.source

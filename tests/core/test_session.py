@@ -252,7 +252,7 @@ def test_autosave_and_recovery(home, saved):
     ses.discard_autosave(left)
     assert ses.recoverable() is None and not left.exists()
     ses.clean_exit()
-    assert not path.exists() and not (home / "autosave" / f"running-{os.getpid()}.lock").exists()
+    assert not path.exists() and not ses.lock_path().exists()
 
 
 def test_digest_is_reused_only_for_an_unchanged_file(tmp_path, monkeypatch):

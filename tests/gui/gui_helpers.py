@@ -49,3 +49,14 @@ def new_window(qtbot, settings_file):
     w.show()
     qtbot.waitUntil(lambda: w.session.core_ready, timeout=WAIT_MS)
     return w
+
+
+def press_tick(qtbot, window, name):
+    """Tick or untick a predictor as a keyboard user does: select it, press the space bar."""
+    from PySide6.QtCore import Qt
+
+    lst = window.model_pane.list
+    row = next(i for i in range(lst.count()) if lst.item(i).data(Qt.ItemDataRole.UserRole) == name)
+    lst.setFocus()
+    lst.setCurrentRow(row)
+    qtbot.keyClick(lst, Qt.Key.Key_Space)

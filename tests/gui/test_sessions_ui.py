@@ -16,6 +16,7 @@ import pytest
 
 from gui_helpers import READMISSION, WAIT_MS, WOUND, choose_outcome, idle, load, new_window, tick
 from references import wound_top_influential_rows
+from twofold.core.outputs.autosave import autosave_path, lock_path
 
 OUTCOME = "readmitted_30d"
 MODEL = ["age", "sex", "discharge_destination", "lives_alone"]
@@ -379,10 +380,11 @@ def test_autosave_written_after_a_tick_and_removed_on_a_clean_close(qtbot, windo
     done = Finished(window)
     _fit_in(qtbot, window, READMISSION, [["age"]])
     qtbot.waitUntil(lambda: "autosaved" in done.tags(), timeout=WAIT_MS)
-    path = home / "autosave" / f"session-{os.getpid()}.json"
+    path = autosave_path()
+    assert path.parent == home / "autosave" and path.name.startswith(f"session-{os.getpid()}-")
     assert done.payload("autosaved") == str(path) and path.exists()
     assert load_session(path)["predictors"] == ["age"]
-    assert (home / "autosave" / f"running-{os.getpid()}.lock").exists()
+    assert lock_path().exists()
     tick(qtbot, window, ["age", "sex"])
     qtbot.waitUntil(lambda: idle(window) and load_session(path)["predictors"] == ["age", "sex"], timeout=WAIT_MS)
     assert len(load_session(path)["ladder"]) == 2
@@ -404,8 +406,8 @@ def _leave_an_unclean_autosave(qtbot, window, home, rungs):
     qtbot.waitUntil(lambda: idle(window) and done.tags().count("autosaved") >= len(rungs), timeout=WAIT_MS)
     pid = _dead_pid()
     folder = home / "autosave"
-    os.replace(folder / f"session-{os.getpid()}.json", folder / f"session-{pid}.json")
-    os.replace(folder / f"running-{os.getpid()}.lock", folder / f"running-{pid}.lock")
+    os.replace(autosave_path(), folder / f"session-{pid}.json")
+    os.replace(lock_path(), folder / f"running-{pid}.lock")
     return folder / f"session-{pid}.json", _numbers(window)
 
 
@@ -553,7 +555,7 @@ def test_report_options_are_asked_used_and_saved(qtbot, window, second, home, tm
     table = next(t for t in re.findall(r"<table>.*?</table>", html, re.S) if "row of the data file" in t)
     assert [int(r) for r in re.findall(r"<tr><td>(\d+)</td>", table)] == wound_top_influential_rows()[0]
     # Kept with the analysis: in the autosave at once, and in a saved session.
-    autosaved = home / "autosave" / f"session-{os.getpid()}.json"
+    autosaved = autosave_path()
     qtbot.waitUntil(lambda: idle(window) and load_session(autosaved)["report"] == answer, timeout=WAIT_MS)
     window.sessions.save_to(tmp_path / "wound.json")
     wait_for(qtbot, window, done, "saved")

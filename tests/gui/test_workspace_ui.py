@@ -11,18 +11,9 @@ import sys
 import pytest
 from PySide6.QtCore import Qt
 
-from gui_helpers import READMISSION, WAIT_MS, choose_outcome, idle, load
+from gui_helpers import READMISSION, WAIT_MS, choose_outcome, idle, load, press_tick
 
 OUTCOME = "readmitted_30d"
-
-
-def press_tick(qtbot, window, name):
-    """Tick or untick a predictor as a keyboard user does: select it, press the space bar."""
-    lst = window.model_pane.list
-    row = next(i for i in range(lst.count()) if lst.item(i).data(Qt.ItemDataRole.UserRole) == name)
-    lst.setFocus()
-    lst.setCurrentRow(row)
-    qtbot.keyClick(lst, Qt.Key.Key_Space)
 
 
 def wait_results(qtbot, window, predictors):

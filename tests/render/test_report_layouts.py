@@ -44,12 +44,12 @@ def test_a_failed_pdf_leaves_the_earlier_file_and_no_scraps(result, tmp_path, mo
     path = tmp_path / "r.pdf"
     path.write_bytes(b"earlier report")
 
-    def broken(rep, target):
-        Path(target).write_bytes(b"half a page")
+    def broken(rep, target):  # the PDF is laid out in memory, then written
+        target.write(b"half a page")
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(report_writer, "render_pdf", broken)
-    with pytest.raises(DataFileError, match="No space left on device"):
+    with pytest.raises(DataFileError, match="the disk is full"):
         write_report(result, path)
     assert path.read_bytes() == b"earlier report"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["r.pdf"]

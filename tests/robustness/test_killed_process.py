@@ -121,16 +121,20 @@ def test_killed_window_offers_its_work_back(tmp_path):
     home.mkdir()
     first_out = tmp_path / "first.txt"
     first = _start("work", home, first_out)
-    autosave = home / "autosave" / f"session-{first.pid}.json"
+    def autosave():  # named by the process id and the process's own random token
+        return next((home / "autosave").glob(f"session-{first.pid}-*.json"), home / "absent.json")
+
     try:
-        _wait_for(lambda: _autosave_holds(autosave, STAGES[-1]), first, "the autosave of the last model", first_out)
+        _wait_for(lambda: _autosave_holds(autosave(), STAGES[-1]), first, "the autosave of the last model", first_out)
     finally:
         first.send_signal(signal.SIGKILL)  # no clean-up of any kind
         first.wait(30)
     assert first.returncode == -signal.SIGKILL
-    left = load_session(autosave)
+    left_path = autosave()
+    left = load_session(left_path)
     assert len(left["ladder"]) == len(STAGES)
-    assert (home / "autosave" / f"running-{first.pid}.lock").exists()  # it never closed cleanly
+    lock = left_path.name.replace("session-", "running-").replace(".json", ".lock")
+    assert (home / "autosave" / lock).exists()  # it never closed cleanly
 
     second_out = tmp_path / "second.txt"
     second = _start("recover", home, second_out)
@@ -144,7 +148,7 @@ def test_killed_window_offers_its_work_back(tmp_path):
     assert second.returncode == 0, text
     shown = json.loads([line for line in text.splitlines() if line.startswith("{")][-1])
     assert len(shown["asked"]) == 1 and "did not close normally" in shown["asked"][0]
-    assert shown["offered"] == str(autosave)
+    assert shown["offered"] == str(left_path)
     assert set(shown["predictors"]) == set(STAGES[-1]) and shown["source"] == str(READMISSION)
     # The same model: the restored window's own autosave holds the killed one's ladder and numbers.
     again = shown["autosave"]

@@ -16,7 +16,7 @@ EXIT_USAGE = 2
 
 def _report_unexpected(exc_type, exc, tb) -> None:
     """Log an uncaught exception and say so in a message box; never crash."""
-    from twofold.gui.worker import log_exception
+    from twofold.gui.worker import log_exception, where_logged
 
     if exc is None:
         exc = exc_type()
@@ -36,8 +36,7 @@ def _report_unexpected(exc_type, exc, tb) -> None:
         else:
             QTimer.singleShot(0, window, lambda: window.show_unexpected(message, path))
     else:
-        print(f"twofold: an unexpected problem occurred ({message}); details were written to {path}.",
-              file=sys.stderr)
+        print(f"twofold: an unexpected problem occurred ({message}). {where_logged(path)}", file=sys.stderr)
 
 
 def install_exception_hooks() -> None:

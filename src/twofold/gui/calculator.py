@@ -106,7 +106,7 @@ class RiskCalculator(QDialog):
         title = QLabel("Risk for one patient")
         title.setFont(style.scaled_font(self, 1.15, bold=True))
         layout.addWidget(title)
-        self.about = QLabel("")
+        self.about = style.plain(QLabel(""))
         self.about.setWordWrap(True)
         self.about.setAccessibleName("Model used")
         layout.addWidget(self.about)
@@ -132,14 +132,14 @@ class RiskCalculator(QDialog):
         answer.setAccessibleName("Predicted risk and caution")
         row = QHBoxLayout(answer)
         left = QVBoxLayout()
-        self.result = QLabel("")
+        self.result = style.plain(QLabel(""))
         self.result.setFont(style.scaled_font(self, 1.5, bold=True))
         self.result.setAccessibleName("Predicted risk")
         self.result.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.interval = QLabel("")
+        self.interval = style.plain(QLabel(""))
         self.interval.setWordWrap(True)
         self.interval.setAccessibleName("95% interval of the predicted risk")
-        self.problem = QLabel("")
+        self.problem = style.plain(QLabel(""))
         self.problem.setWordWrap(True)
         self.problem.setAccessibleName("Why no risk is shown")
         left.addWidget(self.result)
@@ -229,16 +229,19 @@ class RiskCalculator(QDialog):
         for term in model.terms:
             if term.kind == "interaction":
                 continue  # made from its two predictors
-            label = QLabel(term.column + ":")
+            label = style.plain(QLabel(term.column + ":"))
             if term.is_number:
                 box = QLineEdit()
                 box.setAccessibleName(f"Value of {term.column}")
+                tip = ""
                 if term.low is not None:
                     box.setPlaceholderText("a number")
-                    box.setToolTip(f"The model was fitted on values of {term.column} from {_num(term.low)} to "
-                                   f"{_num(term.high)}; it says nothing reliable outside that range.")
+                    tip = (f"The model was fitted on values of {term.column} from {_num(term.low)} to "
+                           f"{_num(term.high)}; it says nothing reliable outside that range.")
                 if term.kind == "spline":
-                    box.setToolTip(box.toolTip() + " Its effect is a curve (a spline), worked out from this value.")
+                    tip += " Its effect is a curve (a spline), worked out from this value."
+                if tip:
+                    box.setToolTip(style.plain_tip(tip.strip()))
                 was_number, old = keep.get(term.column, (False, None))
                 if was_number:
                     box.setText(old)
@@ -250,7 +253,7 @@ class RiskCalculator(QDialog):
                     line = QHBoxLayout(holder)
                     line.setContentsMargins(0, 0, 0, 0)
                     line.addWidget(box, 1)
-                    seen = QLabel(f"seen in the data: {_num(term.low)} to {_num(term.high)}")
+                    seen = style.plain(QLabel(f"seen in the data: {_num(term.low)} to {_num(term.high)}"))
                     seen.setAccessibleName(f"Range of {term.column} in the data")
                     line.addWidget(seen)
                     label.setBuddy(box)

@@ -18,6 +18,8 @@ from PySide6.QtWidgets import (
     QSpinBox, QTableWidget, QTableWidgetItem, QTabWidget, QVBoxLayout, QWidget,
 )
 
+from twofold.gui.style import plain
+
 #: Shapes offered for a numeric predictor: label and knots (None: straight line).
 SHAPES = (("Straight line", None), ("Spline with 3 knots", 3), ("Spline with 4 knots", 4),
           ("Spline with 5 knots", 5))
@@ -144,7 +146,7 @@ class ModelShapeDialog(QDialog):
         tabs.addTab(self._build_interaction(), "Interaction")
         tabs.addTab(self._build_bootstrap(), "Bootstrap validation")
         self.tabs = tabs
-        self.status = QLabel("")
+        self.status = plain(QLabel(""))
         self.status.setWordWrap(True)
         lay = QVBoxLayout(self)
         lay.addWidget(tabs)
@@ -171,7 +173,7 @@ class ModelShapeDialog(QDialog):
         self.apply_shape.clicked.connect(lambda _checked=False: self.apply_spline())
         form.addRow("Numeric predictor", self.spline_column)
         form.addRow("Shape", self.shape_combo)
-        self.nonlinear_label = QLabel("")
+        self.nonlinear_label = plain(QLabel(""))
         self.nonlinear_label.setWordWrap(True)
         self.effect_picture = QLabel()
         self.effect_picture.setAccessibleName("Effect plot")
@@ -197,12 +199,12 @@ class ModelShapeDialog(QDialog):
         form.addRow("Values (numeric only)", self.at_edit)
         self.apply_interaction = QPushButton("Add the interaction and refit")
         self.apply_interaction.clicked.connect(lambda _checked=False: self.add_interaction())
-        self.interaction_label = QLabel("")
+        self.interaction_label = plain(QLabel(""))
         self.interaction_label.setWordWrap(True)
         self.or_table = QTableWidget(0, 3)
         self.or_table.setHorizontalHeaderLabels(["At", "Odds ratio", "95% confidence interval"])
         self.or_table.setAccessibleName("Odds ratios at values of the second predictor")
-        self.note = QLabel("")
+        self.note = plain(QLabel(""))
         self.note.setWordWrap(True)
         lay = QVBoxLayout(w)
         lay.addLayout(form)

@@ -26,14 +26,16 @@ from twofold.gui.views import CAUTION, ROLE_LABELS
 
 
 def _heading(text: str, parent: QWidget) -> QLabel:
-    label = QLabel(text, parent)
+    label = style.plain(QLabel(text, parent))
     label.setFont(style.scaled_font(parent, 1.2, bold=True))
     label.setAccessibleName(text)
     return label
 
 
-def _wrapped(text: str = "", accessible: str = "") -> QLabel:
+def _wrapped(text: str = "", accessible: str = "", rich: bool = False) -> QLabel:
+    """A wrapped, selectable label: plain text, or with ``rich`` text whose parts from data are escaped."""
     label = QLabel(text)
+    label.setTextFormat(Qt.TextFormat.RichText if rich else Qt.TextFormat.PlainText)
     label.setWordWrap(True)
     label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse
                                   | Qt.TextInteractionFlag.TextSelectableByKeyboard)
@@ -193,6 +195,8 @@ class DataPane(QWidget):
         _compact_table(self.table)
         self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         self.table.setVerticalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
+        self.measured_columns = set()
+        self.table.horizontalScrollBar().valueChanged.connect(self._measure_columns_in_view)
         self.table.setHorizontalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)
         split.addWidget(self.table)
 
@@ -268,11 +272,28 @@ class DataPane(QWidget):
             self.columns.selectRow(0)
 
     def _fit_column_widths(self) -> None:
-        """Column widths from the header and the first rows only (never every row)."""
+        """Column widths from the header and the first rows only (never every row), measured lazily: the
+        columns in view now, the others as they are scrolled into view (a file of 50,000 columns would
+        otherwise hold the window while every one is measured)."""
+        self.measured_columns: set = set()
+        self.table.horizontalHeader().setDefaultSectionSize(self.table.fontMetrics().horizontalAdvance("x") * 12)
+        self._measure_columns_in_view()
+
+    def _measure_columns_in_view(self, *_args) -> None:
+        count = self.cells.columnCount()
+        if not count:
+            return
+        header = self.table.horizontalHeader()
+        first = max(header.logicalIndexAt(0), 0)
+        last = header.logicalIndexAt(max(self.table.viewport().width() - 1, 0))
+        last = min(count - 1, (last if last >= 0 else first + 40) + 2)
         fm = self.table.fontMetrics()
         pad = 24
         shown = min(self.cells.rowCount(), 60)
-        for c in range(self.cells.columnCount()):
+        for c in range(first, last + 1):
+            if c in self.measured_columns:
+                continue
+            self.measured_columns.add(c)
             texts = [self.cells.headerData(c, Qt.Orientation.Horizontal)]
             texts += [self.cells.data(self.cells.index(r, c)) for r in range(shown)]
             width = max(fm.horizontalAdvance(str(t)) for t in texts) + pad
@@ -605,7 +626,7 @@ class ModelPane(QWidget):
                 if shape:
                     tip += (f" Its effect is a curve (a spline with {c.spline_knots} knots); the Model shape menu "
                             "turns it back into a straight line.")
-                item.setToolTip(tip)
+                item.setToolTip(style.plain_tip(tip))
                 self.list.addItem(item)
         self._add_interaction_items(ticked)
 
@@ -626,8 +647,9 @@ class ModelPane(QWidget):
                 item.setData(PartsRole, parts)
                 item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
                 item.setCheckState(Qt.CheckState.Checked if name in ticked else Qt.CheckState.Unchecked)
-                item.setToolTip(f"{a} {TIMES} {b}: an interaction, so the effect of {a} may differ with {b}. "
-                                f"Ticking it ticks {a} and {b} too; unticking either of them removes it.")
+                item.setToolTip(style.plain_tip(f"{a} {TIMES} {b}: an interaction, so the effect of {a} may differ "
+                                                f"with {b}. Ticking it ticks {a} and {b} too; unticking either of "
+                                                "them removes it."))
                 self.list.addItem(item)
 
     def _on_outcome(self, view) -> None:
@@ -790,14 +812,14 @@ class ResultsPane(QWidget):
         tests_title = QLabel("Tests of the model")
         tests_title.setFont(style.scaled_font(self, 1.05, bold=True))
         t.addWidget(tests_title)
-        self.overall = _wrapped("", "Test of the model as a whole")
-        self.previous = _wrapped("", "Test against the model before")
+        self.overall = _wrapped("", "Test of the model as a whole", rich=True)
+        self.previous = _wrapped("", "Test against the model before", rich=True)
         for w, key in ((self.overall, "overall"), (self.previous, "nested"), (self.table, "odds_ratio"),
                        (self.counts, "events_per_coefficient")):
             _help(w, key)
         t.addWidget(self.overall)
         t.addWidget(self.previous)
-        self.shape = _wrapped("", "Tests of curved effects and interactions")
+        self.shape = _wrapped("", "Tests of curved effects and interactions", rich=True)
         self.shape.hide()
         t.addWidget(self.shape)
         self.stated = _wrapped("", "Odds ratios at stated values")
@@ -1261,7 +1283,7 @@ class LadderPane(QWidget):
         row.addWidget(self.compare_button)
         row.addStretch(1)
         layout.addLayout(row)
-        self.comparison = _wrapped("", "Comparison of two models")
+        self.comparison = _wrapped("", "Comparison of two models", rich=True)
         layout.addWidget(self.comparison)
         self._enable()
         self._compared = None  # (index, predictors) of the two models whose comparison is shown

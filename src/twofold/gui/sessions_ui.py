@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QTimer, Signal
+from PySide6.QtCore import QObject, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QCheckBox, QDialog, QDialogButtonBox, QFileDialog, QFormLayout, QLabel, QLineEdit,
                                QMessageBox, QSpinBox, QVBoxLayout)
@@ -148,6 +148,8 @@ class SessionActions(QObject):
         self.restore_offered: Path | None = None
         self.autosave_enabled = False
         self.last_autosave: str | None = None
+        #: Why autosave is off, once said to the user (None while it is on or not yet asked for).
+        self.autosave_off: str | None = None
         from twofold.core.outputs.session import REPORT_DEFAULTS
 
         #: The report's options (small-count limit, records by row number): the defaults, a restored
@@ -292,9 +294,13 @@ class SessionActions(QObject):
             from twofold.core.data.io import read_table
             from twofold.core.outputs.session import check_data, load_session, require_data_file
 
+            from twofold.core.outputs.session import is_network_path
+
             session = load_session(path)
             where = Path(data if data is not None else session["data"])
             out = {"session": session, "path": str(path), "data": str(where), "recovered": recovered}
+            if data is None and is_network_path(session["data"]):
+                return {**out, "kind": "network"}  # followed only once the user chooses it in the dialog
             if not where.exists():
                 return {**out, "kind": "no_data"}
             require_data_file(where)
@@ -309,10 +315,12 @@ class SessionActions(QObject):
 
         session, path, data = payload["session"], payload["path"], payload["data"]
         recovered = payload["recovered"]
-        if payload["kind"] == "no_data":
-            if ask_user(self.window, "Twofold: where is the data file?",
-                        f"The data file of this analysis, {Path(data).name}, is no longer at {Path(data).parent}. "
-                        "Choose where it is now?"):
+        if payload["kind"] in ("no_data", "network"):
+            question = (f"The data file of this analysis, {Path(data).name}, is no longer at {Path(data).parent}. "
+                        "Choose where it is now?") if payload["kind"] == "no_data" else (
+                        f"The data file of this analysis is on another computer ({data}); Twofold opens files "
+                        "there only when you choose them yourself. Choose the data file now?")
+            if ask_user(self.window, "Twofold: where is the data file?", question):
                 new = choose_data_file(self.window, self._start())
                 if new:
                     self.open_from(path, data=new, recovered=recovered)
@@ -462,8 +470,20 @@ class SessionActions(QObject):
 
         try:
             start_autosave()
-        except OSError:
+        except OSError as exc:
+            from twofold.paths import own_folder_problem
+
             self.autosave_enabled = False
+            why = own_folder_problem() or f"Twofold's own folder cannot be written ({exc.strerror or exc})"
+            self.autosave_off = (f"Autosave is off: {why}. Everything else works; save the analysis yourself "
+                                 "(File, Save the analysis) to keep it.")
+            # Said once in full; a short mark stays in the status bar, the reason on it as a tooltip.
+            self.window.statusBar().showMessage(self.autosave_off, 15000)
+            mark = QLabel("Autosave is off")
+            mark.setTextFormat(Qt.TextFormat.PlainText)
+            mark.setToolTip(self.autosave_off)
+            mark.setObjectName("autosave_off")
+            self.window.statusBar().addPermanentWidget(mark)
             return False
         self.autosave_enabled = True
         if self.session.last_results is not None:

@@ -68,6 +68,24 @@ def scaled_font(widget, factor: float = 1.0, bold: bool = False) -> QFont:
     return f
 
 
+def plain(label):
+    """A label that shows its text as it is: never read as rich text, whatever the data hold
+    (a column named like an HTML image tag must not make the window load an image)."""
+    label.setTextFormat(Qt.TextFormat.PlainText)
+    return label
+
+
+def plain_tip(text: str) -> str:
+    """A tooltip showing ``text`` as it is (Qt would otherwise read a tooltip holding a tag as rich text)."""
+    from html import escape
+
+    from PySide6 import QtGui  # Qt's rich-text guess lives in its GUI module's Qt namespace
+
+    if not QtGui.Qt.mightBeRichText(text):
+        return text  # Qt shows it as it is
+    return f"<p style='white-space:pre-wrap'>{escape(text)}</p>"
+
+
 class Banner(QFrame):
     """A strip with an icon and wrapped text on a light tint.
 
@@ -100,7 +118,7 @@ class Banner(QFrame):
         self.icon.setAlignment(Qt.AlignmentFlag.AlignTop)
         self.icon.setAccessibleName(f"{kind} icon")
         layout.addWidget(self.icon)
-        self.label = QLabel(text)
+        self.label = plain(QLabel(text))
         self.label.setWordWrap(True)
         self.label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse
                                            | Qt.TextInteractionFlag.TextSelectableByKeyboard)

@@ -160,7 +160,7 @@ class ColumnsModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.TextAlignmentRole:
             return RIGHT if col in (2, 3) else LEFT
         if role == Qt.ItemDataRole.ToolTipRole:
-            return f"{c.name}: {c.role_label} ({c.reason})"
+            return style.plain_tip(f"{c.name}: {c.role_label} ({c.reason})")
         if role == Qt.ItemDataRole.FontRole and c.name == self.outcome:
             f = QFont()
             f.setBold(True)
@@ -286,10 +286,11 @@ class CoefficientModel(QAbstractTableModel):
             return self._warn_icon
         if role == Qt.ItemDataRole.ToolTipRole:
             if line.warnings:
-                return "\n\n".join([("Warning: " + w) for w in line.warnings] + ([line.hint] if line.hint else []))
+                return style.plain_tip("\n\n".join([("Warning: " + w) for w in line.warnings]
+                                                     + ([line.hint] if line.hint else [])))
             if col == 0:
                 text = line.label + (f" ({line.texts['groups']})" if line.kind == "heading" else "")
-                return text + (f"\n\n{line.hint}" if line.hint else "")
+                return style.plain_tip(text + (f"\n\n{line.hint}" if line.hint else ""))
         if role == Qt.ItemDataRole.BackgroundRole and line.warnings:
             return QBrush(style.tint(style.ORANGE, 40))
         return None
@@ -362,7 +363,7 @@ class LadderModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.FontRole and r.current:
             return self._bold
         if role == Qt.ItemDataRole.ToolTipRole and col in (1, 2):
-            return r.predictors_text if col == 1 else r.change_text
+            return style.plain_tip(r.predictors_text if col == 1 else r.change_text)
         return None
 
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):

@@ -46,9 +46,13 @@ def sample_files() -> list[Path]:
 
 def open_settings() -> QSettings:
     """Settings kept in Twofold's own folder (``TWOFOLD_HOME`` in tests), as an INI file."""
-    from twofold.paths import app_dir
+    from twofold.paths import app_dir, app_dir_path
 
-    return QSettings(str(app_dir() / "settings.ini"), QSettings.Format.IniFormat)
+    try:
+        folder = app_dir()
+    except OSError:
+        folder = app_dir_path()  # not writable: settings are read if there, and simply not kept
+    return QSettings(str(folder / "settings.ini"), QSettings.Format.IniFormat)
 
 
 class MainWindow(QMainWindow):
@@ -431,8 +435,9 @@ class MainWindow(QMainWindow):
         self.statusBar().clearMessage()
 
     def show_unexpected(self, message: str, log_path: str) -> None:
-        text = (f"Something unexpected went wrong ({message}). Your data file was not changed. "
-                f"The details were written to {log_path}; please send that file with a report.")
+        from twofold.gui.worker import where_logged
+
+        text = f"Something unexpected went wrong ({message}). Your data file was not changed. {where_logged(log_path)}"
         self.message.setText(text)
         self.message.show()
         box = QMessageBox(QMessageBox.Icon.Critical, "Twofold: unexpected problem", text,

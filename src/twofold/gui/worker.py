@@ -52,20 +52,17 @@ class JobResult:
     followup: bool = False
 
 
-def log_exception(exc: BaseException | None = None) -> str:
-    """Append the current traceback to the log file and return its path."""
+def log_exception(exc: BaseException | None = None) -> str | None:
+    """Append the current traceback to the log file and return its path (None when it cannot be written).
+
+    The log lives only in Twofold's own folder, never in a shared one such as the temporary folder.
+    """
     import datetime
-    import tempfile
-    from pathlib import Path
 
     try:
         from twofold.paths import log_dir
 
-        folder = log_dir()
-    except OSError:
-        folder = Path(tempfile.gettempdir())
-    path = folder / "twofold-error.log"
-    try:
+        path = log_dir() / "twofold-error.log"
         with open(path, "a", encoding="utf-8") as fh:
             fh.write(f"--- {datetime.datetime.now().isoformat(timespec='seconds')}\n")
             if exc is not None:
@@ -73,8 +70,16 @@ def log_exception(exc: BaseException | None = None) -> str:
             else:
                 traceback.print_exc(file=fh)
     except OSError:
-        pass
+        return None
     return str(path)
+
+
+def where_logged(log_path: str | None) -> str:
+    """The sentence saying where the details of an unexpected problem are."""
+    if not log_path:
+        return ("The details could not be kept, because Twofold's own folder cannot be written; "
+                "please report the message above.")
+    return f"The details were written to {log_path}; please send that file with a report."
 
 
 class CoreWorker(QThread):

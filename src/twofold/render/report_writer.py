@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import io
 import os
 from pathlib import Path
 
 from twofold.core.errors import DataFileError
 from twofold.core.outputs.privacy import DEFAULT_THRESHOLD
 from twofold.core.outputs.report import build_report
-from twofold.core.outputs.storage import atomic_write_text
+from twofold.core.outputs.storage import atomic_write_bytes, atomic_write_text, refuse_writing_over, write_failure
 from twofold.render.report_html import render_html
 from twofold.render.report_pdf import render_pdf
 
@@ -41,14 +42,7 @@ def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESH
         cannot be written.
     """
     path = Path(os.fspath(path))
-    data = Path(os.fspath(_data_path(result)))
-    try:
-        same = path.exists() and data.exists() and os.path.samefile(path, data)
-    except OSError:
-        same = False
-    if same:
-        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
-                            "so choose another file name.")
+    refuse_writing_over([path], [_data_path(result)])
     suffix = path.suffix.lower()
     if suffix not in (".html", ".htm", ".pdf"):
         raise DataFileError(f"Twofold writes reports as .html or .pdf, not '{path.suffix or path.name}'; "
@@ -57,16 +51,11 @@ def write_report(result, path, ladder=None, suppress_below: int = DEFAULT_THRESH
                        details=details)
     try:
         if suffix == ".pdf":
-            tmp = path.with_name(f".{path.name}.tmp")
-            try:
-                render_pdf(rep, tmp)
-                os.replace(tmp, path)
-            finally:
-                if tmp.exists():
-                    tmp.unlink()
+            buffer = io.BytesIO()
+            render_pdf(rep, buffer)
+            atomic_write_bytes(path, buffer.getvalue())
         else:
             atomic_write_text(path, render_html(rep))
     except OSError as exc:
-        raise DataFileError(f"Could not write the report {path} ({exc.strerror}); "
-                            "choose a folder you can write to.") from None
+        raise write_failure(path, exc, "the report") from None
     return path

@@ -125,10 +125,26 @@ def read_table(path, sheet: str | None = None, progress=None) -> LoadedTable:
     ReadCancelled
         The progress callback asked to stop.
     """
+    path = Path(os.fspath(path))
+    try:
+        return _read(path, sheet, progress)
+    except MemoryError:
+        # Anywhere in reading or tidying: the file, or a copy of a column, did not fit.
+        raise too_large_error(path) from None
+
+
+def too_large_error(path: Path) -> DataFileError:
+    """The sentence for a file too large for this computer's memory."""
+    return DataFileError(
+        f"{path.name} is too large for this computer's memory; close other programs, "
+        "or export only the columns and rows you need."
+    )
+
+
+def _read(path: Path, sheet, progress) -> LoadedTable:
     from twofold.core.data.read_text import read_text
     from twofold.core.data.read_workbook import locked_workbook, read_workbook
 
-    path = Path(os.fspath(path))
     _check_path(path)
     with open_for_reading(path) as fh:
         magic = fh.read(8)

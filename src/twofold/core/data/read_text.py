@@ -23,6 +23,7 @@ from twofold.core.data.io import (
     ReadCancelled,
     open_for_reading,
     report_progress,
+    too_large_error,
 )
 from twofold.core.data.tidy import is_text_column, shorten, tidy_frame, unique_names
 
@@ -285,13 +286,6 @@ def _read_text_as(path: Path, encoding: str, progress) -> LoadedTable:
     return LoadedTable(frame, path, notices, delimiter=layout.delimiter, encoding=encoding)
 
 
-def _too_large(path: Path) -> DataFileError:
-    return DataFileError(
-        f"{path.name} is too large for this computer's memory; close other programs, "
-        "or export only the columns and rows you need."
-    )
-
-
 def _pandas_read(path: Path, options: dict, **more):
     """pandas.read_csv with Twofold's messages for its errors."""
     import pandas as pd
@@ -311,7 +305,7 @@ def _pandas_read(path: Path, options: dict, **more):
     except pd.errors.ParserError as exc:
         raise DataFileError(_parser_message(path, exc)) from None
     except MemoryError:
-        raise _too_large(path) from None
+        raise too_large_error(path) from None
     except OSError as exc:
         raise DataFileError(
             f"{path.name} could not be read ({exc.strerror or exc}); "
@@ -355,7 +349,7 @@ def _read_chunks(path: Path, options: dict, categorical: dict, size: int, per_li
         except pd.errors.ParserError as exc:
             raise DataFileError(_parser_message(path, exc)) from None
         except MemoryError:
-            raise _too_large(path) from None
+            raise too_large_error(path) from None
     if len(parts) == 1:
         return parts[0]
     columns = {}

@@ -20,9 +20,16 @@ _ERROR_SET = frozenset(EXCEL_ERRORS) - _MISSING_SET
 #: Case/space variants are merged only in columns with at most this many values.
 _MERGE_MAX_LEVELS = 100
 
-# Numbers as people write them.  Plain numbers are left to pandas.
-_US_THOUSANDS = re.compile(r"^[+-]?(?:\d{1,3}(?:,\d{3})+|\d+)(?:\.\d+)?$")
-_EU_DECIMAL = re.compile(r"^[+-]?(?:\d{1,3}(?:\.\d{3})+|\d+)(?:,\d+)?$")
+# Numbers as people write them.  Plain numbers are left to pandas.  A thousands group never
+# follows a lone 0 ("0.085" and "0,085" are decimals whichever the convention).
+_US_THOUSANDS = re.compile(r"^[+-]?(?:[1-9]\d{0,2}(?:,\d{3})+|\d+)(?:\.\d+)?$")
+_EU_DECIMAL = re.compile(r"^[+-]?(?:[1-9]\d{0,2}(?:\.\d{3})+|\d+)(?:,\d+)?$")
+# A number written only with digits, points and commas, and what marks its decimal separator beyond doubt:
+# a separator followed by other than three digits, one after a lone 0, or the last of two different ones.
+_DIGITS_AND_MARKS = re.compile(r"^[+-]?(?:\d[\d.,]*|[.,]\d+)$")
+_SURE_DECIMAL = {mark: re.compile(rf"(?:^[+-]?0?\{mark}\d+$|^[+-]?\d+\{mark}(?:\d{{1,2}}|\d{{4,}})$|"
+                                  rf"[{other}]\d{{3}}\{mark}\d+$)")
+                 for mark, other in ((",", "."), (".", ","))}
 
 
 def is_text_column(series) -> bool:
@@ -111,6 +118,8 @@ def tidy_frame(frame, source: str, flavour: str, generated: set):
             changed[name] = new
         if known is not None and is_text_column(new):
             factors[name] = known
+    if "mixed" in found:
+        raise mixed_decimals_error(*found["mixed"][0], source)
     for name, new in changed.items():
         # A Series is taken as it is; a bare array would be checked and copied again.
         frame[name] = new.set_axis(frame.index) if not new.index.equals(frame.index) else new
@@ -258,6 +267,9 @@ def _tidy_text(name, codes, uniques, flavour, found):
         found.setdefault("errors", []).append((name, int(per[is_error].sum()), str(stripped[is_error][0])))
     keep = ~gone
     kind, numbers = _as_numbers(stripped[keep], flavour)
+    if kind == "mixed":
+        found.setdefault("mixed", []).append((name, _mixed_example(codes, stripped, keep)))
+        kind = None
     if kind is not None:
         found.setdefault(kind, []).append(name)
         table = np.full(len(stripped) + 1, np.nan)  # the extra last slot serves code -1
@@ -321,7 +333,10 @@ def _as_numbers(texts, flavour):
     ``kind`` is ``"numbers_as_text"`` (plain, e.g. ``12.0``), ``"thousands"``
     (``1,234``) or ``"decimal_comma"`` (``1,5``, ``1.234,5``).  A column with
     any comma is judged as a whole in one comma format, so in a decimal-comma
-    column ``1.234`` is one thousand two hundred and thirty-four.
+    column ``1.234`` is one thousand two hundred and thirty-four; but a point
+    or comma after a lone 0 is always a decimal one.  ``("mixed", None)``: every
+    text is a number, some surely with a decimal comma and others surely with
+    a decimal point, so no one reading is right.
     """
     import numpy as np
     import pandas as pd
@@ -342,7 +357,47 @@ def _as_numbers(texts, flavour):
             numbers = pd.to_numeric(pd.Series(cleaned, dtype=object), errors="coerce").to_numpy(dtype=float)
             if np.isfinite(numbers).all():
                 return ("thousands" if fmt == "us" else "decimal_comma"), numbers
+    if _mixed_marks(texts) is not None:
+        return "mixed", None
     return None, None
+
+
+def _mixed_marks(texts):
+    """(index of a text surely with a decimal comma, of one surely with a decimal point), or None.
+
+    None unless every text is a number written with digits, points and commas only.
+    """
+    comma = point = None
+    for i, t in enumerate(texts):
+        if not _DIGITS_AND_MARKS.match(t):
+            return None
+        if comma is None and _SURE_DECIMAL[","].search(t):
+            comma = i
+        elif point is None and _SURE_DECIMAL["."].search(t):
+            point = i
+    return None if comma is None or point is None else (comma, point)
+
+
+def _mixed_example(codes, stripped, keep):
+    """'a' in data row i and 'b' in data row j: a cell of each decimal convention in a mixed column."""
+    import numpy as np
+
+    texts = stripped[keep]
+    which = np.flatnonzero(keep)
+    comma, point = _mixed_marks(list(texts))
+    rows = [int(np.flatnonzero(codes == which[k])[0]) + 1 for k in (comma, point)]
+    return (texts[comma], rows[0]), (texts[point], rows[1])
+
+
+def mixed_decimals_error(column: str, example, source: str) -> DataFileError:
+    """The sentence for a column whose numbers mix decimal commas and decimal points."""
+    (comma, row_c), (point, row_p) = example
+    return DataFileError(
+        f"The column '{column}' of {source} mixes decimal commas and decimal points ({comma!r} in data row "
+        f"{row_c:,}, {point!r} in data row {row_p:,}, counting from the row below the column names), so its "
+        "numbers cannot be read safely; write every number in that column with the same decimal mark and "
+        "open the file again."
+    )
 
 
 def _tidy_object(name, col, flavour, found):

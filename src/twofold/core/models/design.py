@@ -116,13 +116,21 @@ def encode(series, info: ColumnInfo, reference=None) -> TermBlock:
                 "use it as groups (categorical) instead."
             ) from None
         values = np.where(missing, 0.0, values).reshape(-1, 1, order="F")
+        _refuse_huge(values[:, 0], info.name)
         return TermBlock(info.name, "numeric", (), None, values, missing)
 
     levels = list(info.levels)
     if not levels:
         levels = series.dropna().value_counts().index.tolist()
+    if len(levels) - 1 > MAX_GROUP_COEFFICIENTS:
+        raise ColumnError(
+            f"The column '{info.name}' has {len(levels):,} different values; as groups it would need "
+            f"{len(levels) - 1:,} coefficients, more than the {MAX_GROUP_COEFFICIENTS:,} Twofold fits for one "
+            "column; use it as a number, or combine its values into fewer groups in the file."
+        )
     if reference is None:
-        reference = default_reference(info)
+        # A column forced to be groups past the levels a description keeps has none listed: the most frequent.
+        reference = default_reference(info) if info.levels else levels[0] if levels else None
     else:
         reference = _match_level(levels, reference, info.name)
     others = [lvl for lvl in levels if lvl != reference]
@@ -133,6 +141,30 @@ def encode(series, info: ColumnInfo, reference=None) -> TermBlock:
     rows = np.nonzero(codes > 0)[0]
     values[rows, codes[rows] - 1] = 1.0
     return TermBlock(info.name, "factor", tuple(others), reference, values, missing)
+
+
+#: The most indicator columns one column may become when used as groups: each costs a column of the
+#: design and a row and column of every matrix the fit inverts (1,000 groups took four minutes on 20,000 rows).
+MAX_GROUP_COEFFICIENTS = 200
+
+#: The largest size of a number a model takes.  A fit and its checks square a column's values and a
+#: curved effect cubes them; the cube of 1e100 (1e300) is still a double-precision number, and the
+#: reciprocal of its square (1e-200) too, while around 1e103 and 1e154 they are not.
+LARGEST_VALUE = 1e100
+
+
+def _refuse_huge(values: np.ndarray, column: str) -> None:
+    """A ColumnError naming the rows of any value beyond :data:`LARGEST_VALUE` in size."""
+    if not np.abs(values).max(initial=0.0) > LARGEST_VALUE:
+        return
+    rows = np.flatnonzero(np.abs(values) > LARGEST_VALUE)
+    shown = ", ".join(f"{values[r]:.3g} in data row {r + 1:,}" for r in rows[:3])
+    more = f" and {len(rows) - 3:,} more" if len(rows) > 3 else ""
+    raise ColumnError(
+        f"The column '{column}' holds {'a number' if len(rows) == 1 else 'numbers'} too large to fit a model "
+        f"with ({shown}{more}, counting from the row below the column names; a model takes sizes up to 1e100), "
+        "which is probably a typing or export error; correct or empty those cells and open the file again."
+    )
 
 
 def _match_level(levels, reference, column):
@@ -256,13 +288,36 @@ def aliased_columns(X: np.ndarray, tol: float = 1e-9) -> list[int]:
     n, p = X.shape
     if p <= 1:
         return []
+    with np.errstate(over="ignore", invalid="ignore"):
+        dropped = _aliased(X, tol)
+        if dropped is None:
+            # Squares beyond double precision (values past about 1e154, or curved terms of large values): the
+            # decision depends only on each column's spread relative to itself, so each column is taken in units
+            # of its largest size (a power of two, exact) and the sums stay finite.
+            dropped = _aliased(X / unit_sizes(X), tol)
+    return dropped
+
+
+def unit_sizes(X: np.ndarray) -> np.ndarray:
+    """Per column, the power of two at or above its largest size (1 for a column of zeros)."""
+    biggest = np.abs(X).max(axis=0, initial=0.0)
+    return np.where(biggest > 0, np.exp2(np.ceil(np.log2(np.where(biggest > 0, biggest, 1.0)))), 1.0)
+
+
+def _aliased(X: np.ndarray, tol: float):
+    """:func:`aliased_columns`, or None when its cross-products are not finite."""
+    n, p = X.shape
     # One cross-product of the raw columns serves whenever no column's mean dwarfs its spread; otherwise
     # E[x^2] - E[x]^2 would lose the variance to cancellation, and the centred pass is made instead.
     gram = X.T @ X / max(n, 1)
     mean = gram[0, 1:]
     cov = gram[1:, 1:] - np.outer(mean, mean)
+    if not np.isfinite(gram).all():
+        return None
     if np.any(np.diag(cov) <= 1e-6 * np.diag(gram)[1:]):
         cov = centred_gram(X)
+        if not np.isfinite(cov).all():
+            return None
     keep: list[int] = []   # indices into the centred columns (column j of X is j - 1 here)
     dropped: list[int] = []
     for c in range(p - 1):

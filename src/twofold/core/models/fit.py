@@ -22,7 +22,7 @@ from functools import cached_property
 
 import numpy as np
 
-from twofold.core.models.design import Design, aliased_columns
+from twofold.core.models.design import Design, aliased_columns, unit_sizes
 from twofold.core.errors import ModelError, Notice
 
 #: z for a two-sided 95% interval; NIST/SEMATECH e-Handbook normal table gives 1.960.
@@ -500,8 +500,10 @@ def working_scale(X: np.ndarray):
     # Judged on at most about 10,000 evenly spread rows: any centre and scale give the same estimates once
     # carried back, so they need only be of the right size, and a pass over every row is saved.
     sample = X[:: max(1, X.shape[0] // 10_000), 1:]
-    centre = sample.mean(axis=0)
-    spread = sample.std(axis=0)
+    # In units of each column's largest size, so squares of very large values stay finite.
+    unit = unit_sizes(sample)
+    centre = (sample / unit).mean(axis=0) * unit
+    spread = (sample / unit).std(axis=0) * unit
     spread = np.where(spread > 0, spread, 1.0)
     if np.all((spread >= SCALE_LOW) & (spread <= SCALE_HIGH) & (np.abs(centre) <= SCALE_HIGH * spread)):
         return None

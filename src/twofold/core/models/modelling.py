@@ -359,7 +359,9 @@ def _performance(y, lp):
     from twofold.core.models.fit import log_likelihood, null_log_likelihood
 
     n = len(y)
-    r2_cs = 1.0 - math.exp(-2.0 * (log_likelihood(y, lp) - null_log_likelihood(y)) / n)
+    # Risks far worse than the event rate (a refit's on the original rows) make the exponent huge: capped,
+    # so the figure stays a (very negative) number instead of overflowing.
+    r2_cs = 1.0 - math.exp(min(-2.0 * (log_likelihood(y, lp) - null_log_likelihood(y)) / n, 700.0))
     return float(auc), float(b[1]), brier, float(r2_cs)
 
 

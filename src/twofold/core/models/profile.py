@@ -112,7 +112,11 @@ def check_xy(X, y) -> tuple[np.ndarray, np.ndarray]:
 
 def check_full_rank(X: np.ndarray) -> None:
     """Refuse a design whose columns are linearly dependent."""
-    rank = np.linalg.matrix_rank(X)
+    from twofold.core.models.design import unit_sizes
+
+    # In units of each column's largest size: the rank of the columns, not of their units (a column of
+    # values near 1e50 beside 0/1 columns would otherwise sink them below the rank tolerance).
+    rank = np.linalg.matrix_rank(X / unit_sizes(X))
     if rank < X.shape[1]:
         raise ModelError(
             f"The design matrix has {X.shape[1]} columns but only {rank} are "

@@ -58,8 +58,9 @@ def rcs_basis(x: np.ndarray, knots: np.ndarray) -> np.ndarray:
 
     last, before = t[-1], t[-2]
     for j in range(k - 2):
-        out[:, j + 1] = (cube(x - t[j]) - cube(x - before) * (last - t[j]) / (last - before)
-                         + cube(x - last) * (before - t[j]) / (last - before)) / scale
+        # The knot ratios first: a cube of a value near the largest a model takes (1e100) stays finite.
+        out[:, j + 1] = (cube(x - t[j]) - cube(x - before) * ((last - t[j]) / (last - before))
+                         + cube(x - last) * ((before - t[j]) / (last - before))) / scale
     return out
 
 

@@ -11,12 +11,14 @@ anything; a negative *number* stays a number, only text is changed.
 from __future__ import annotations
 
 import csv
+import io
 import math
 import os
 import re
 from pathlib import Path
 
 from twofold.core.errors import DataFileError
+from twofold.core.outputs.storage import atomic_write, atomic_write_bytes, refuse_writing_over, write_failure
 
 #: Characters that make a spreadsheet treat a text cell as a formula (OWASP, CSV injection).
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
@@ -104,19 +106,7 @@ def ladder_table(ladder) -> tuple[list[str], list[list]]:
     return list(LADDER_HEADERS), rows
 
 
-def _refuse_data_file(path: Path, data) -> None:
-    if data is None:
-        return
-    try:
-        same = path.exists() and Path(data).exists() and os.path.samefile(path, data)
-    except OSError:
-        same = False
-    if same:
-        raise DataFileError(f"{path} is the data file itself; Twofold never writes to the data, "
-                            "so choose another file name.")
-
-
-def _write_csv(path: Path, headers, rows) -> None:
+def _write_csv(path, headers, rows) -> None:
     # utf-8-sig: the byte-order mark makes spreadsheet programs read the file as UTF-8.
     with open(path, "w", newline="", encoding="utf-8-sig") as fh:
         writer = csv.writer(fh, quoting=csv.QUOTE_MINIMAL)
@@ -173,24 +163,26 @@ def write_table(path, headers, rows, sheet: str = "coefficients", extra_sheets=(
         The data file, which is never overwritten.
     """
     path = Path(os.fspath(path))
-    _refuse_data_file(path, data)
+    refuse_writing_over([path], [data])
     suffix = path.suffix.lower()
+    if suffix not in (".csv", ".xlsx"):
+        raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{path.suffix or path.name}'; "
+                            "end the file name with .csv or .xlsx.")
     try:
         if suffix == ".csv":
-            _write_csv(path, headers, rows)
-        elif suffix == ".xlsx":
+            atomic_write(path, lambda tmp: _write_csv(tmp, headers, rows))
+        else:
             from openpyxl import Workbook
 
             book = Workbook()
             _sheet(book, sheet, headers, rows, first=True)
             for title, h, r in extra_sheets:
                 _sheet(book, title, h, r)
-            book.save(path)
-        else:
-            raise DataFileError(f"Twofold writes tables as .csv or .xlsx, not '{path.suffix or path.name}'; "
-                                "end the file name with .csv or .xlsx.")
+            buffer = io.BytesIO()  # built in memory: a failed write leaves no half-closed workbook behind
+            book.save(buffer)
+            atomic_write_bytes(path, buffer.getvalue())
     except OSError as exc:
-        raise DataFileError(f"Could not write {path} ({exc.strerror}); choose a folder you can write to.") from None
+        raise write_failure(path, exc) from None
     return path
 
 

@@ -359,8 +359,34 @@ def check_data(session: dict, path=None, frame=None) -> list[Notice]:
     return notices
 
 
-def require_data_file(path: Path) -> Path:
-    """Refuse a data path that is not an ordinary, existing data file (devices, folders, other types)."""
+def is_network_path(path) -> bool:
+    """Whether a path names a place on another computer: a network share (``\\\\host\\share\\...``,
+    ``//host/share/...``) or a Windows device path (``\\\\?\\UNC\\...``, ``\\\\.\\...``), judged on its text alone.
+
+    Nothing is looked up: on Windows even asking whether such a file exists opens a connection to the
+    host and may hand it the user's credentials.
+    """
+    text = os.fspath(path) if not isinstance(path, str) else path
+    return len(text) > 2 and text[0] in "\\/" and text[1] in "\\/"
+
+
+def network_path_error(path, where: str) -> DataFileError:
+    """The sentence refusing to follow a network path that a session file (not the user) names."""
+    return DataFileError(
+        f"The data file named in {where} is on another computer ({str(path)[:120]}); Twofold does not follow "
+        "network places written in a session file, so choose the data file yourself (File, Open a saved "
+        "analysis asks where it is; on the command line give it with --data), or copy it to this computer."
+    )
+
+
+def require_data_file(path: Path, chosen: bool = True) -> Path:
+    """Refuse a data path that is not an ordinary, existing data file (devices, folders, other types).
+
+    ``chosen=False`` for a path taken from a session file rather than given by the user: a network path
+    is then refused before anything is looked up.
+    """
+    if not chosen and is_network_path(path):
+        raise network_path_error(path, "the session")
     if path.suffix.lower() not in DATA_SUFFIXES:
         raise DataFileError(f"{path} is not a data file Twofold reads (CSV, TSV, TXT or XLSX); "
                             "choose the data file of the analysis.")
@@ -650,6 +676,8 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
         c.fail(f"the model's 'names' should list 1 to {MAX_PARAMETERS} coefficients")
     for n in names:
         c.text(n, "a coefficient name", 2 * MAX_NAME + 2)
+    if len(set(names)) != len(names):
+        c.fail("the model names a coefficient twice, which no fit does")
     if names[0] != "intercept":
         c.fail("the model's first coefficient is not the intercept")
     k = len(names)
@@ -666,6 +694,7 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
             c.fail("the model's 'covariance' is not a square table matching its coefficients")
         for v in row:
             c.number(v, "a covariance entry", allow_none=True)
+    _fit_could_make_covariance(c, cov)
     terms = model["terms"]
     if not isinstance(terms, list) or len(terms) > MAX_PREDICTORS:
         c.fail("the model's 'terms' should be a list of predictors")
@@ -684,6 +713,9 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
             c.fail(f"the levels of '{col[:60]}' should be a list of at most {MAX_LEVELS:,} groups")
         for v in levels:
             c.value(v, f"a level of '{col[:60]}'", allow_none=kind == "interaction")
+        if kind == "factor" and (len({repr(v) for v in levels}) != len(levels)
+                                 or repr(t["reference"]) in {repr(v) for v in levels}):
+            c.fail(f"the groups of '{col[:60]}' repeat a name, which no fit does")
         if kind in ("numeric", "spline"):
             if t["reference"] is not None or (kind == "numeric" and levels):
                 c.fail(f"the numeric term '{col[:60]}' has groups")
@@ -732,6 +764,65 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
     stray = [n for n in names if n not in made]
     if stray:
         c.fail(f"the model names a coefficient '{stray[0][:60]}' that its terms do not make")
+    _fit_could_make_coefficients(c, names, coef, terms)
+
+
+#: The largest change of log-odds one coefficient may make across the values a session saw.  A fit's
+#: risks are 0 or 1 to double precision once the log-odds pass about 37, and a fit that separates the
+#: outcome stops within 35 Newton steps, far below this; only an edited file holds more.
+MAX_LOG_ODDS_SPAN = 1e6
+
+
+def _fit_could_make_covariance(c: _Checker, cov) -> None:
+    """A covariance matrix a fit can produce: symmetric, no negative variance, correlations within -1 to 1."""
+    k = len(cov)
+    for i in range(k):
+        vi = cov[i][i]
+        if vi is not None and vi < 0:
+            c.fail("the model's covariance holds a negative variance, which no fit produces")
+        for j in range(i):
+            a, b, vj = cov[i][j], cov[j][i], cov[j][j]
+            if a is None or b is None:
+                continue
+            if abs(a - b) > 1e-6 * max(abs(a), abs(b), 1e-300):
+                c.fail("the model's covariance is not symmetric, which no fit produces")
+            if vi is not None and vj is not None and abs(a) > (1 + 1e-6) * math.sqrt(vi * vj) + 1e-300:
+                c.fail("the model's covariance implies a correlation beyond -1 to 1, which no fit produces")
+
+
+def _fit_could_make_coefficients(c: _Checker, names, coef, terms) -> None:
+    """No coefficient changes the log-odds by more than :data:`MAX_LOG_ODDS_SPAN` across the saved values.
+
+    Each coefficient is judged by the width of its column's saved range (1 for a group's indicator, the
+    product of the widths for an interaction of numbers); the intercept by the most the others can add.
+    """
+    kinds = {t["column"]: t["kind"] for t in terms}
+    span, size = {}, {}  # per numeric column: the width and the largest size of its saved range
+    scale = {}  # per coefficient name: (width, largest size) of the column it multiplies
+    for t in terms:
+        col, kind = t["column"], t["kind"]
+        if kind in ("numeric", "spline") and t["range"] is not None:
+            lo, hi = (float(v) for v in t["range"])
+            span[col], size[col] = hi - lo, max(abs(lo), abs(hi))
+            for name in [col] + ([f"{col}[{lvl}]" for lvl in t["levels"]] if kind == "spline" else []):
+                scale[name] = (span[col], size[col])
+        elif kind == "factor":
+            scale.update({f"{col}[{lvl}]": (1.0, 1.0) for lvl in t["levels"]})
+        elif kind == "interaction" and all(kinds.get(x) == "factor" or x in span for x in t["of"]):
+            width = math.prod(span.get(x, 1.0) for x in t["of"])
+            most = math.prod(size.get(x, 1.0) for x in t["of"])
+            scale.update({col if lvl is None else f"{col}[{lvl}]": (width, most) for lvl in t["levels"]})
+    reach = 0.0  # the most the coefficients other than the intercept add to the log-odds at saved values
+    for name, b in zip(names[1:], coef[1:]):
+        if b is None or name not in scale:
+            continue
+        width, most = scale[name]
+        if abs(b) * width > MAX_LOG_ODDS_SPAN:
+            c.fail(f"the coefficient of '{name[:60]}' ({b:.3g}) changes the log-odds by more than "
+                   f"{MAX_LOG_ODDS_SPAN:.0e} across the values seen, which no fit produces")
+        reach += abs(b) * most
+    if coef[0] is not None and len(scale) == len(names) - 1 and abs(coef[0]) > MAX_LOG_ODDS_SPAN + reach:
+        c.fail(f"the intercept ({coef[0]:.3g}) is far beyond what a fit produces")
 
 
 # ---------------------------------------------------------------------------
@@ -741,7 +832,8 @@ def _validate_model(c: _Checker, model, outcome, predictors) -> None:
 #: Reading and writing files, in twofold.core.outputs.storage.
 _STORAGE_NAMES = ("atomic_write_text", "file_sha256", "load_session", "save_session")
 #: The autosave and recovery, in twofold.core.outputs.autosave.
-_AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "recoverable", "start_autosave")
+_AUTOSAVE_NAMES = ("autosave", "autosave_path", "clean_exit", "discard_autosave", "lock_path", "recoverable",
+                   "start_autosave")
 
 
 def __getattr__(name: str):

@@ -26,6 +26,7 @@ from twofold.core.outputs.session import (
     MAX_FILE_BYTES,
     MAX_INTEGER_DIGITS,
     SessionFileError,
+    is_network_path,
     session_file_error,
     validate_session,
 )
@@ -70,19 +71,22 @@ def _umask() -> int:
     return 0o022
 
 
-def atomic_write_text(path, text: str, private: bool = False) -> None:
-    """Write through a temporary file in the same folder, then os.replace: never a half-written file.
+def atomic_write(path, fill, private: bool = False) -> None:
+    """Write a file through a temporary file in the same folder, then os.replace: never a half-written file.
 
-    The file gets ordinary permissions (0o666 less the umask), or owner-only
-    ones when ``private`` (autosaves).
+    ``fill(tmp)`` writes the whole content to the path ``tmp``.  Should
+    anything fail (a full disk, a file-size limit, a kill part-way), the
+    temporary file is removed and a file already at ``path`` is left as it
+    was.  The file gets ordinary permissions (0o666 less the umask), or
+    owner-only ones when ``private`` (autosaves).
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    os.close(fd)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
+        fill(tmp)
+        with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
         if not sys.platform.startswith("win"):
             os.chmod(tmp, 0o600 if private else 0o666 & ~_umask())
@@ -95,11 +99,85 @@ def atomic_write_text(path, text: str, private: bool = False) -> None:
         raise
 
 
-def _same_file(a: Path, b: Path) -> bool:
+def atomic_write_text(path, text: str, private: bool = False, encoding: str = "utf-8") -> None:
+    """:func:`atomic_write` of a text (newlines written as they are)."""
+    def fill(tmp):
+        with open(tmp, "w", encoding=encoding, newline="\n") as fh:
+            fh.write(text)
+
+    atomic_write(path, fill, private=private)
+
+
+def atomic_write_bytes(path, content: bytes, private: bool = False) -> None:
+    """:func:`atomic_write` of bytes made beforehand (a workbook or PDF built in memory, so a failed
+    write can leave no library's half-closed file behind)."""
+    def fill(tmp):
+        with open(tmp, "wb") as fh:
+            fh.write(content)
+
+    atomic_write(path, fill, private=private)
+
+
+def write_failure(path, exc: BaseException, what: str = "") -> DataFileError:
+    """The one sentence for a file that could not be written (the previous one, if any, is unchanged)."""
+    import errno
+
+    code = getattr(exc, "errno", None)
+    if code in (errno.ENOSPC, getattr(errno, "EDQUOT", -1)):
+        why = "the disk is full"
+        fix = "free some space or choose another folder"
+    elif code == errno.EFBIG:
+        why = "the file would be larger than this computer allows"
+        fix = "choose another folder or ask your IT staff about the file-size limit"
+    else:
+        why = getattr(exc, "strerror", None) or type(exc).__name__
+        fix = "choose a folder you can write to"
+    kept = " (the earlier file of that name is unchanged)" if Path(path).exists() else ""
+    return DataFileError(f"Could not write {what + ' ' if what else ''}{path} ({why}){kept}; {fix}.")
+
+
+def _resolved(path) -> Path | None:
     try:
-        return a.exists() and b.exists() and os.path.samefile(a, b)
+        return Path(os.fspath(path)).expanduser().resolve()
+    except (OSError, TypeError, ValueError, RuntimeError):
+        return None
+
+
+def same_file(a, b) -> bool:
+    """Whether two paths name one file: equal once resolved (links followed), or the same file on disk.
+
+    A network path is compared as text only (looking it up would reach the other computer).
+    """
+    if is_network_path(a) or is_network_path(b):
+        return os.path.normcase(os.fspath(a)) == os.path.normcase(os.fspath(b))
+    ra, rb = _resolved(a), _resolved(b)
+    if ra is None or rb is None:
+        return False
+    if ra == rb or os.path.normcase(str(ra)) == os.path.normcase(str(rb)):
+        return True
+    try:
+        return ra.exists() and rb.exists() and os.path.samefile(ra, rb)
     except OSError:
         return False
+
+
+def refuse_writing_over(outputs, data_files, session_file=None) -> None:
+    """Refuse any output that is one of the data files an analysis uses, or the session file being read.
+
+    ``outputs`` may hold None and ``-`` (standard output), which are passed
+    over; ``data_files`` holds every data file involved (a session's own, a
+    new extract).  Compared on resolved paths, so a relative path, a link or
+    a second name of the same file is caught before anything is written.
+    """
+    for out in outputs:
+        if not out or str(out) == "-":
+            continue
+        for data in data_files:
+            if data and same_file(out, data):
+                raise DataFileError(f"{out} is the data file itself ({Path(os.fspath(data)).name}); "
+                                    "Twofold never writes to the data, so choose another file name.")
+        if session_file is not None and same_file(out, session_file):
+            raise DataFileError(f"{out} is the session file being read; choose another file name for the output.")
 
 
 def save_session(session: dict, path) -> Path:
@@ -118,7 +196,7 @@ def save_session(session: dict, path) -> Path:
     path = Path(os.fspath(path))
     validate_session(session)
     data = Path(session["data"])
-    if _same_file(path, data) or (not data.is_absolute() and _same_file(path, path.parent / data)):
+    if same_file(path, data) or (not data.is_absolute() and same_file(path, path.parent / data)):
         raise SessionFileError(f"{path} is the data file itself; Twofold never writes to the data, "
                                "so choose another file name for the session.")
     out = dict(session)
@@ -131,8 +209,7 @@ def save_session(session: dict, path) -> Path:
     try:
         atomic_write_text(path, text + "\n")
     except OSError as exc:
-        raise DataFileError(f"Could not write the session file {path} ({exc.strerror}); "
-                            "choose a folder you can write to.") from None
+        raise write_failure(path, exc, "the session file") from None
     return path
 
 
@@ -219,6 +296,6 @@ def load_session(path) -> dict:
         raise session_file_error(path, f"it is not valid JSON{where}") from None
     validate_session(session, path)
     data = Path(session["data"])
-    if not data.is_absolute():
+    if not data.is_absolute() and not is_network_path(session["data"]):
         session["data"] = str((path.parent / data).resolve())
     return session
