@@ -13,7 +13,7 @@ import statsmodels.api as sm
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.errors import TwofoldError
-from twofold.core.outputs.export import COEFFICIENT_HEADERS, export_coefficients, export_ladder, neutralise
+from twofold.core.outputs.export import ABOUT_HEADERS, COEFFICIENT_HEADERS, export_coefficients, export_ladder, neutralise
 from twofold.core.outputs.session import ladder_from_lists
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -52,7 +52,10 @@ def test_csv_reads_back_with_numbers_and_no_formulas(hostile, tmp_path):
     out = export_coefficients(res, tmp_path / "table.csv")
     raw = out.read_text(encoding="utf-8-sig")
     rows = list(csv.reader(raw.splitlines()))
-    assert rows[0] == COEFFICIENT_HEADERS
+    assert rows[0] == COEFFICIENT_HEADERS + ABOUT_HEADERS
+    # Every row says what it describes: the outcome, the event and how the model was fitted.
+    assert {tuple(r[-3:]) for r in rows[1:]} == {(res.record["outcome"], str(res.record["event"]),
+                                                  res.record["method"])}
     body = rows[1:]
     assert body[0][0] == "'" + HOSTILE_COLUMN
     groups = {r[1] for r in body if r[0] == "grp"}
@@ -76,7 +79,7 @@ def test_xlsx_reads_back_with_numeric_cells(hostile, tmp_path):
     out = export_coefficients(res, tmp_path / "table.xlsx")
     ws = openpyxl.load_workbook(out).active
     cells = list(ws.iter_rows())
-    assert [c.value for c in cells[0]] == COEFFICIENT_HEADERS
+    assert [c.value for c in cells[0]] == COEFFICIENT_HEADERS + ABOUT_HEADERS
     assert not any(c.data_type == "f" for row in cells for c in row)  # nothing is a formula
     assert cells[1][0].value == "'" + HOSTILE_COLUMN and cells[1][0].data_type == "s"
     # Outside reference: statsmodels Logit with the same coding.

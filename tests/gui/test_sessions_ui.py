@@ -296,7 +296,7 @@ def test_report_and_tables_hold_the_fit_on_screen(qtbot, window, tmp_path):
     df = pd.read_csv(READMISSION)[["age", "lives_alone", OUTCOME]].dropna()
     res = sm.Logit(df[OUTCOME].astype(float), sm.add_constant(df[["age"]].astype(float))).fit(disp=0)
     age = [r for r in rows if r["predictor"] == "age"][0]
-    assert float(age["coefficient"]) == pytest.approx(res.params["age"], rel=1e-7)
+    assert float(age["coefficient (log odds)"]) == pytest.approx(res.params["age"], rel=1e-7)
     assert float(age["standard error"]) == pytest.approx(res.bse["age"], rel=1e-6)
     assert "4,834" in (tmp_path / "report.html").read_text(encoding="utf-8")
 

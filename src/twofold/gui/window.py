@@ -72,6 +72,7 @@ class MainWindow(QMainWindow):
         self.setWindowIcon(style.app_icon())
         self.setAcceptDrops(True)
         self.setAccessibleName("Twofold")
+        self.setStyleSheet(style.FOCUS_RULES)
 
         central = QWidget()
         layout = QVBoxLayout(central)

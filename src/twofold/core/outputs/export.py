@@ -23,9 +23,12 @@ from twofold.core.outputs.storage import atomic_write, atomic_write_bytes, refus
 #: Characters that make a spreadsheet treat a text cell as a formula (OWASP, CSV injection).
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
-COEFFICIENT_HEADERS = ["predictor", "group", "compared with", "odds ratio", "95% CI low", "95% CI high",
-                       "p-value", "Wald z", "coefficient", "standard error"]
-PROFILE_HEADERS = ["95% profile CI low", "95% profile CI high"]
+# The window's own words for the same figures.
+COEFFICIENT_HEADERS = ["predictor", "group", "compared with", "odds ratio", "95% interval (Wald) low",
+                       "95% interval (Wald) high", "p-value", "Wald z", "coefficient (log odds)", "standard error"]
+PROFILE_HEADERS = ["95% interval (profile) low", "95% interval (profile) high"]
+#: What the table describes, on every row, so a file read on its own says it.
+ABOUT_HEADERS = ["outcome", "event", "fitted by"]
 LADDER_HEADERS = ["model", "predictors", "chosen", "coefficients", "rows used", "log-likelihood", "AIC", "BIC",
                   "added", "removed", "likelihood-ratio G against the previous model", "degrees of freedom",
                   "p-value"]
@@ -34,9 +37,9 @@ LADDER_HEADERS = ["model", "predictors", "chosen", "coefficients", "rows used", 
 _ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f]")
 
 #: Display formats in the workbook (the stored values keep full precision).
-_XLSX_FORMATS = {"odds ratio": "0.000", "95% CI low": "0.000", "95% CI high": "0.000",
-                 "95% profile CI low": "0.000", "95% profile CI high": "0.000", "Wald z": "0.00",
-                 "coefficient": "0.0000", "standard error": "0.0000", "log-likelihood": "0.00",
+_XLSX_FORMATS = {"odds ratio": "0.000", "95% interval (Wald) low": "0.000", "95% interval (Wald) high": "0.000",
+                 "95% interval (profile) low": "0.000", "95% interval (profile) high": "0.000", "Wald z": "0.00",
+                 "coefficient (log odds)": "0.0000", "standard error": "0.0000", "log-likelihood": "0.00",
                  "AIC": "0.0", "BIC": "0.0", "likelihood-ratio G against the previous model": "0.00"}
 
 
@@ -75,20 +78,21 @@ def coefficient_table(record: dict) -> tuple[list[str], list[list]]:
     odds-ratio cells stay empty: it is the baseline log odds, not a ratio).
     """
     profile = any("or_pl_low" in t for t in record["terms"])
-    headers = COEFFICIENT_HEADERS + (PROFILE_HEADERS if profile else [])
+    headers = COEFFICIENT_HEADERS + (PROFILE_HEADERS if profile else []) + ABOUT_HEADERS
+    about = [record["outcome"], record["event"], record.get("method", "maximum likelihood")]
     rows = []
     for t in record["terms"]:
         row = [t["column"], t["level"], t["reference"], t["odds_ratio"], t["or_ci_low"], t["or_ci_high"],
                t["p_value"], t["z"], t["estimate"], t["std_error"]]
         if profile:
             row += [t.get("or_pl_low"), t.get("or_pl_high")]
-        rows.append(row)
+        rows.append(row + about)
     i = record["intercept"]
     row = ["intercept (baseline log odds)", None, None, None, None, None, i["p_value"], i["z"], i["estimate"],
            i["std_error"]]
     if profile:
         row += [None, None]
-    rows.append(row)
+    rows.append(row + about)
     return headers, rows
 
 
