@@ -263,3 +263,19 @@ def test_a_decimal_comma_typed_in_the_calculator_is_read_as_a_decimal(qtbot, fit
     qtbot.keyClick(box, Qt.Key.Key_Return)
     qtbot.waitUntil(lambda: "could mean 1250 or 1.250" in c.problem.text(), timeout=WAIT_MS)
     assert "=" not in c.problem.text()
+
+
+def test_an_unexpected_failure_never_says_details_are_in_none(monkeypatch):
+    # When Twofold's own folder cannot be written, the log cannot be kept: the sentence says so instead of
+    # naming a file that does not exist ("details in None").
+    from twofold.core.outputs import predict as predict_module
+    from twofold.gui import calculator, worker
+
+    def broken(model, values):
+        raise RuntimeError("something inside went wrong with 72.5")
+
+    monkeypatch.setattr(predict_module, "predict", broken)
+    monkeypatch.setattr(worker, "log_exception", lambda exc: None)
+    message = calculator._predict_job(object(), {"age": "72.5"})
+    assert "None" not in message and "could not be kept" in message
+    assert "72.5" not in message  # nothing typed by the user is repeated

@@ -58,12 +58,12 @@ def _predict_job(model, values):
     except TwofoldError as exc:
         return str(exc)
     except Exception as exc:  # log where it happened, but not the message: it could quote a typed value
-        from twofold.gui.worker import log_exception
+        from twofold.gui.worker import log_exception, where_logged
 
         clean = RuntimeError(f"{type(exc).__name__} in the risk calculator (its message is left out: it may hold "
                              "values typed by the user)").with_traceback(exc.__traceback__)
-        return (f"Something unexpected stopped the calculation ({type(exc).__name__}); details, without the values "
-                f"typed, are in {log_exception(clean)}.")
+        return (f"Something unexpected stopped the calculation ({type(exc).__name__}); the values typed are left "
+                f"out of the details. {where_logged(log_exception(clean))}")
 
 
 def _pct(p: float) -> str:

@@ -116,9 +116,9 @@ class BootstrapThread(QThread):
         except TwofoldError as exc:
             self.failed.emit(str(exc))
         except Exception as exc:  # never lose a failure silently
-            from twofold.gui.worker import log_exception
+            from twofold.gui.worker import log_exception, where_logged
 
-            self.failed.emit(f"{type(exc).__name__}: {exc} (details in {log_exception(exc)})")
+            self.failed.emit(f"{type(exc).__name__}: {exc}. {where_logged(log_exception(exc))}")
         else:
             self.done.emit(v)
 

@@ -29,7 +29,7 @@ from concurrent.futures import ThreadPoolExecutor
 from PySide6.QtCore import QObject, Signal
 
 from twofold.gui.views import Failure, HistoryView
-from twofold.gui.worker import CoreWorker, Job, log_exception
+from twofold.gui.worker import CoreWorker, Job, log_exception, where_logged
 
 #: The displays a job can update; each has its own "newest request" mark.
 FACETS = ("study", "columns", "outcome", "results", "comparison", "history")
@@ -611,7 +611,7 @@ class Session(QObject):
             from twofold.gui.views import ProfileView
 
             view = ProfileView(index, False, error=f"Something unexpected stopped the profile-likelihood intervals "
-                                                   f"({type(exc).__name__}); details in {log_exception(exc)}.")
+                                                   f"({type(exc).__name__}). {where_logged(log_exception(exc))}")
         self._emit(self._profileComputed, job_id, view)
 
     @staticmethod

@@ -154,8 +154,10 @@ def run_snapshot(argv: list[str]) -> int:
             if waiter.failure is not None:
                 message = waiter.failure.message
                 if waiter.failure.unexpected:
-                    print(f"twofold: an unexpected problem stopped the snapshot ({message}); details were "
-                          f"written to {waiter.failure.log_path}.", file=sys.stderr)
+                    from twofold.gui.worker import where_logged
+
+                    print(f"twofold: an unexpected problem stopped the snapshot ({message}). "
+                          f"{where_logged(waiter.failure.log_path)}", file=sys.stderr)
                     return EXIT_INTERNAL
                 print(f"twofold: {message}", file=sys.stderr)
                 return EXIT_USAGE
