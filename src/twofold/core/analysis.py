@@ -340,18 +340,11 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
                 "profile", f"The profile-likelihood interval could not be found for {', '.join(lost)} "
                 "(too few records for a clear maximum); read the Wald interval with care.", tuple(lost)))
     record = fit_record(fit, study.outcome, event, nested, smaller, profile=profile, assessment=assessment)
-    record["values_marked_missing"] = {k: list(v) for k, v in study.missing_values.items()}
     from twofold.core.models.modelling import bootstrap_validation, interaction_tests, nonlinearity_tests
-    from twofold.core.outputs.summary import clean_number
+    from twofold.core.outputs.summary import add_study_records
 
-    if spec.splines:
-        record["nonlinearity"] = [
-            {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
-             "p_value": clean_number(t.p_value)} for t in nonlinearity_tests(study, fit)]
-    if spec.interactions:
-        record["interaction_tests"] = [
-            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
-            for t in interaction_tests(study, fit)]
+    add_study_records(record, study, nonlinearity_tests(study, fit) if spec.splines else None,
+                      interaction_tests(study, fit) if spec.interactions else None)
     validation = None
     thresholds = None
     if spec.net_benefit is not None:

@@ -615,7 +615,7 @@ class Workspace:
         import copy
 
         from twofold.core.analysis import AnalysisResult, count_rows_left_out, extra_row_columns
-        from twofold.core.outputs.summary import clean_number, fit_record
+        from twofold.core.outputs.summary import add_study_records, fit_record
 
         spec = self.spec()
         study, shown = self.study, self.shown_fit()
@@ -641,16 +641,9 @@ class Workspace:
             return result
         profile = self.profile_intervals(shown) if spec.profile_ci else None
         record = fit_record(fit, study.outcome, study.event, profile=profile, assessment=assessment)
-        record["values_marked_missing"] = {k: list(v) for k, v in study.missing_values.items()}
         curves, crossings = self.shape_tests(shown)
-        if any(p in study.splines for p in fit.design.predictors):
-            record["nonlinearity"] = [
-                {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
-                 "p_value": clean_number(t.p_value)} for t in curves]
-        if any(":" in p for p in fit.design.predictors):
-            record["interaction_tests"] = [
-                {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
-                for t in crossings]
+        add_study_records(record, study, curves if any(p in study.splines for p in fit.design.predictors) else None,
+                          crossings if any(":" in p for p in fit.design.predictors) else None)
         if v is not None:
             from twofold.core.outputs.summary import validation_record
 

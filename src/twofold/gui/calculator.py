@@ -221,7 +221,9 @@ class RiskCalculator(QDialog):
             self.modelShown.emit(None)
             return
         kind = "fitted with the penalised (Firth) method" if about.get("penalised") else "fitted"
-        given = ", ".join(p.replace(":", " \u00d7 ") for p in model.predictors)
+        from twofold.core.models.terms import term_title
+
+        given = ", ".join(term_title(p) for p in model.predictors)
         self.about.setText(
             f"From model {about['rung'] + 1} of the ladder, {kind} on {about['rows']:,} rows of {about['source']}: "
             f"the risk that {model.outcome} = {model.event}, given {given}. "

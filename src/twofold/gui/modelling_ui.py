@@ -80,10 +80,6 @@ def current_fit_job(ws):
     return {"kind": "current", "fit": ws.shown_fit()}
 
 
-def _df(df: int) -> str:
-    return f"{df} degree{'' if df == 1 else 's'} of freedom"
-
-
 # ---- the bootstrap thread ---------------------------------------------------------
 class BootstrapThread(QThread):
     """Runs :func:`bootstrap_validation` on a read-only fit, off the GUI and core threads."""
@@ -361,7 +357,7 @@ class ModelShapeDialog(QDialog):
             self._boot_idle(failure.message)
 
     def _show_spline(self, payload) -> None:
-        from twofold.core.outputs.text import curve_reading, fmt_num, fmt_p
+        from twofold.core.outputs.text import curve_reading, degrees, fmt_num, fmt_p
 
         self.spline_result = payload
         col = payload["column"]
@@ -372,7 +368,7 @@ class ModelShapeDialog(QDialog):
             knots = ", ".join(f"{k:g}" for k in t.knots)
             self.nonlinear_label.setText(
                 f"Is the effect of {col} curved? Likelihood-ratio test of the curve against a straight "
-                f"line: G = {fmt_num(t.g, 2)} on {_df(t.df)}, p-value {fmt_p(t.p_value)}. "
+                f"line: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
                 f"Knots at {knots}.\n{curve_reading(col, t.p_value)}")
         pix = QPixmap()
         pix.loadFromData(payload["png"], "PNG")
@@ -384,7 +380,8 @@ class ModelShapeDialog(QDialog):
         self.status.setText("The model was refitted; the results pane shows it.")
 
     def _show_interaction(self, payload) -> None:
-        from twofold.core.outputs.text import fmt_num, fmt_or, fmt_p, interaction_reading
+        from twofold.core.models.terms import TIMES
+        from twofold.core.outputs.text import degrees, fmt_num, fmt_or, fmt_p, interaction_reading
 
         self.interaction_result = payload
         term = payload["term"]
@@ -393,7 +390,7 @@ class ModelShapeDialog(QDialog):
             a, _, b = term.partition(":")
             self.interaction_label.setText(
                 f"Does the effect of {a} differ with {b}? Likelihood-ratio test of the model with "
-                f"{a} \u00d7 {b} against the model without it: G = {fmt_num(t.g, 2)} on {_df(t.df)}, p-value "
+                f"{a} {TIMES} {b} against the model without it: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value "
                 f"{fmt_p(t.p_value)}.\n{interaction_reading(a, b, t.p_value)}")
         rows = payload["table"]
         self.or_table.setRowCount(len(rows))

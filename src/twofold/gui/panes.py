@@ -44,8 +44,6 @@ def _wrapped(text: str = "", accessible: str = "", rich: bool = False) -> QLabel
     return label
 
 
-#: The sign between the two predictors of an interaction, as the core's display records write it.
-TIMES = "\u00d7"
 
 #: Item data of the predictor list: the parts (a, b) of an interaction item, None for a column.
 PartsRole = Qt.ItemDataRole.UserRole + 1
@@ -632,6 +630,8 @@ class ModelPane(QWidget):
 
     def _add_interaction_items(self, ticked=()) -> None:
         """List the interactions met so far after the columns (only those whose two predictors are offered)."""
+        from twofold.core.models.terms import TIMES  # here, not at import: the window starts without numpy
+
         if self.study is None:
             return
         offered = set(self.study.candidates)

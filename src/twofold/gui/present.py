@@ -14,7 +14,7 @@ from twofold.core.data.checks import outcome_refusal
 from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.models.terms import TIMES, value_text
 from twofold.core.outputs.text import (
-    curve_reading, fmt_num, fmt_or, fmt_p, interaction_reading, or_cells, stated_line, reading_nested,
+    curve_reading, degrees, fmt_num, fmt_or, fmt_p, interaction_reading, or_cells, stated_line, reading_nested,
     reading_not_nested, reading_overall,
 )
 from twofold.gui.views import (
@@ -29,10 +29,6 @@ from twofold.core.workspace import is_penalised, profile_auto  # noqa: F401  (us
 def value_label(v) -> str:
     """An outcome or level value as text: 1.0 -> '1', numpy scalars as Python."""
     return value_text(v)
-
-
-def _degrees(df: int) -> str:
-    return f"{df} degree{'s' if df != 1 else ''} of freedom"
 
 
 def _role_choices(info) -> tuple:
@@ -165,7 +161,7 @@ INTERACTION_HINT = ("An interaction coefficient: how much the odds ratio of one 
 
 def _heading(col, block, t, first_row) -> tuple[str, str]:
     """The label of a multi-coefficient term's heading row and what its coefficients are."""
-    joint = f"all its coefficients together: chi-square {fmt_num(t.statistic, 2)} on {_degrees(t.df)}"
+    joint = f"all its coefficients together: chi-square {fmt_num(t.statistic, 2)} on {degrees(t.df)}"
     if t.includes:
         return (f"{t.label}\n{joint}",
                 f"{t.df} coefficients: its effect together with its interaction{'s' if len(t.includes) > 1 else ''}")
@@ -234,7 +230,7 @@ def overall_view(fit) -> TestView:
         return TestView("The model as a whole", "No predictors are ticked, so there is nothing to test yet.",
                         reading_overall(None), None, 0, None)
     text = (f"{_lr_name(fit)} (G) test against the constant-only model: G = {fmt_num(t.g, 2)} "
-            f"on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+            f"on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
     return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
 
 
@@ -258,7 +254,7 @@ def nested_view(ws, parent: int, index: int) -> TestView:
         lead = f"{kind} of the larger model (with {', '.join(which)}) against this one{rows}"
     else:
         lead = f"{kind} of this model against model {parent + 1}{rows}"
-    text = f"{lead}: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}."
+    text = f"{lead}: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}."
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return TestView(title, text, reading, t.g, t.df, t.p_value)
 
@@ -307,13 +303,13 @@ def shape_tests(ws, fit) -> tuple:
     curves, crossings = ws.shape_tests(fit)
     for t in curves:
         text = (f"{_lr_name(fit)} test of the curve ({len(t.knots)} knots) against a straight line, on the same "
-                f"rows: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+                f"rows: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
         reading = curve_reading(t.term, t.p_value)
         out.append(TestView(f"Is the effect of {t.term} curved?", text, reading, t.g, t.df, t.p_value))
     for t in crossings:
         a, b = interaction_parts(study, t.term) or (t.term, "")
         text = (f"{_lr_name(fit)} test of the model with {a} {TIMES} {b} against the model without it: "
-                f"G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+                f"G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
         reading = interaction_reading(a, b, t.p_value)
         out.append(TestView(f"Does the effect of {a} differ with {b}?", text, reading, t.g, t.df, t.p_value))
     return tuple(out)
@@ -428,7 +424,7 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
     else:
         small, large, which = b, a, list(t.removed)
     text = (f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). "
-            f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {_degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
+            f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
             + diffs)
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return ComparisonView(i, j, True, text, reading, c.note, t.g, t.df, t.p_value,
@@ -477,13 +473,13 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     else:
         values.update(hl_statistic=hl.statistic, hl_df=int(hl.df), hl_p_value=hl.p_value)
         hl_text = (f"Hosmer-Lemeshow test over {hl.groups_used} risk groups: chi-square {fmt_num(hl.statistic, 2)} "
-                   f"on {_degrees(int(hl.df))}, p-value {fmt_p(hl.p_value)}.")
+                   f"on {degrees(int(hl.df))}, p-value {fmt_p(hl.p_value)}.")
     r = result.pseudo_r2
     pseudo = (f"Pseudo-R-squared: McFadden {fmt_num(r.mcfadden, 3)}, Cox-Snell {fmt_num(r.cox_snell, 3)}, "
               f"Nagelkerke {fmt_num(r.nagelkerke, 3)}, Tjur {fmt_num(r.tjur, 3)} (each on its own scale; "
               "none is the share of variation explained).")
     drop = tuple(
-        (t.label, f"G = {fmt_num(t.g, 2)} on {_degrees(int(t.df))}, p-value {fmt_p(t.p_value)}",
+        (t.label, f"G = {fmt_num(t.g, 2)} on {degrees(int(t.df))}, p-value {fmt_p(t.p_value)}",
          f"Wald chi-square {fmt_num(t.wald, 2)}, p-value {fmt_p(t.wald_p_value)}", bool(t.prefer_lr))
         for t in result.drop_one)
     vif = ()

@@ -419,7 +419,7 @@ class DropOneTest:
         return out
 
 
-def _matches(series, values) -> "pd.Series":
+def _matches(series, values):
     """True where a cell equals one of ``values``: the same number, or the same text ignoring case and spaces."""
     import pandas as pd
 

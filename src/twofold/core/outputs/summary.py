@@ -156,3 +156,19 @@ def validation_record(validation, fit: LogisticFit) -> dict:
             return out
         out["sample_size_corrected"] = {"n_minimum": ss.n_minimum, "r2_cs": clean_number(r2)}
     return out
+
+
+def add_study_records(record: dict, study, curves=None, crossings=None) -> None:
+    """Add what the study adds to a fit record: values marked missing, and the curve and interaction tests.
+
+    ``curves`` and ``crossings`` are :class:`~twofold.core.models.modelling.TermLRTest` lists (None: not asked).
+    """
+    record["values_marked_missing"] = {k: list(v) for k, v in study.missing_values.items()}
+    if curves is not None:
+        record["nonlinearity"] = [
+            {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
+             "p_value": clean_number(t.p_value)} for t in curves]
+    if crossings is not None:
+        record["interaction_tests"] = [
+            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
+            for t in crossings]

@@ -318,6 +318,8 @@ def interaction_reading(a: str, b: str, p) -> str:
 
 
 def _shape_lines(record: dict, test_name: str) -> list[str]:
+    from twofold.core.models.terms import TIMES
+
     out = []
     for t in record.get("nonlinearity") or []:
         knots = ", ".join(f"{v:g}" for v in t["knots"])
@@ -328,7 +330,7 @@ def _shape_lines(record: dict, test_name: str) -> list[str]:
     for t in record.get("interaction_tests") or []:
         a, _, b = t["term"].partition(":")
         out += ["", f"Does the effect of {a} differ with {b}?",
-                f"  {test_name} test of the model with {a} \u00d7 {b} against the model without it: "
+                f"  {test_name} test of the model with {a} {TIMES} {b} against the model without it: "
                 f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
                 "  " + interaction_reading(a, b, t["p_value"])]
     return out
