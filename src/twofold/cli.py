@@ -53,6 +53,9 @@ def _fit_parser() -> argparse.ArgumentParser:
     add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
     p.add_argument("--subgroups", metavar="COLUMN", help="show AUC and calibration within the groups of a column "
                                                          "(sex, age band, site)")
+    p.add_argument("--shrink", action="store_true",
+                   help="with --validate: when the corrected calibration slope is below 1, shrink every coefficient "
+                        "by it and re-estimate the intercept (the shrunk model is saved and used by predict)")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -85,6 +88,9 @@ def run_fit(argv: list[str]) -> int:
     parser = _fit_parser()
     args = parser.parse_args(argv)
     report_options_need_a_place(parser, args, {"--report": args.report, "--session-out": args.session_out})
+    if args.shrink and not args.validate:
+        parser.error("--shrink uses the corrected calibration slope of a bootstrap validation, so it needs "
+                     "--validate B; add --validate 200 or leave --shrink out")
     from twofold.core.errors import TwofoldError
 
     try:
@@ -131,7 +137,7 @@ def _spec(args):
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
         missing=parse_missing(getattr(args, "missing", [])),
-        net_benefit=args.net_benefit, subgroups=args.subgroups,
+        net_benefit=args.net_benefit, subgroups=args.subgroups, shrink=args.shrink,
     )
 
 

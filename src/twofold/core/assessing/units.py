@@ -184,6 +184,16 @@ def _verdict(ratio: float, bounds: dict) -> str:
     return VERDICTS["within"]
 
 
+def check_unit_column(column: str, outcome: str, predictors) -> None:
+    """Refuse a unit column that is the outcome or one of the model's predictor columns (one sentence)."""
+    if column == outcome:
+        raise ColumnError(f"'{column}' is the outcome of the model, not a unit; give the unit column as the column "
+                          "naming each record's ward, hospital or team.")
+    if column in set(predictors):
+        raise ColumnError(f"'{column}' is a predictor of the model, so differences between its groups are already "
+                          "adjusted away; choose a unit column that is not a predictor (a ward, hospital or team).")
+
+
 def factorize_groups(values, column: str, role: str, most: int, what: str):
     """(has, codes, labels): which records have a group, the code of each of those, and the sorted groups.
 
