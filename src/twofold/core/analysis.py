@@ -104,6 +104,8 @@ class AnalysisResult:
     validation: object = None
     #: A :class:`~twofold.core.models.updating.Shrinkage` when the model was shrunk (sessions save its model).
     shrinkage: object = None
+    #: The risks of the second model of the decision curve on the same rows (``net_benefit_versus``), or None.
+    other_risks: object = None
 
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
@@ -390,6 +392,7 @@ def add_usefulness(result: AnalysisResult, thresholds=None) -> None:
         other = study.fit([study.column(p) for p in spec.net_benefit_versus], rows=fit.design.rows,
                           firth=spec.firth)
         add_other_curve(record, fit.design.y, other.fitted, list(other.design.predictors))
+        result.other_risks = other.fitted
     if spec.unit_column is not None:
         add_units(record, study.frame, study.column(str(spec.unit_column)), fit, study.outcome)
     if spec.shrink:

@@ -687,7 +687,7 @@ class Workspace:
         result = AnalysisResult(spec, study, fit, None, None, assessment, record)
         result.validation = None if v is None else v.result
         result.shrinkage = None if shrunk is None else shrunk.result
-        self._add_usefulness_records(record, shown, shrunk)
+        result.other_risks = self._add_usefulness_records(record, shown, shrunk)
         return result
 
     # ---- sessions ---------------------------------------------------------------------------
@@ -937,8 +937,9 @@ class Workspace:
             threshold = threshold if threshold is not None else self.threshold_for(fit)
         return evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
 
-    def _add_usefulness_records(self, record: dict, fit, shrunk) -> None:
-        """Add what the usefulness settings ask for to a result's record (as ``fit`` and ``rerun`` write it)."""
+    def _add_usefulness_records(self, record: dict, fit, shrunk):
+        """Add what the usefulness settings ask for to a result's record (as ``fit`` and ``rerun`` write it);
+        returns the second model's risks when its decision curve was added, else None."""
         from twofold.core.analysis import add_decision_curve, add_other_curve
         from twofold.core.assessing.subgroups import SUBGROUP_NOTE
 
@@ -949,7 +950,8 @@ class Workspace:
             add_decision_curve(record, fit.design.y, fit.fitted, c.thresholds,
                                None if c.model_corrected is None else c.model - c.model_corrected)
             if view.other is not None:
-                add_other_curve(record, fit.design.y, self.fit_of(view.other_index).fitted, view.other_predictors)
+                other = self.fit_of(view.other_index).fitted
+                add_other_curve(record, fit.design.y, other, view.other_predictors)
         if u["subgroups"] is not None:
             record["subgroups"] = self.subgroup_table(fit)
             record["subgroups_note"] = SUBGROUP_NOTE
@@ -960,6 +962,7 @@ class Workspace:
                 pass  # the model now uses the column, or it no longer names two units: nothing to compare
         if shrunk is not None:
             record["shrinkage"] = shrunk.result.as_dict()
+        return other if u["net_benefit"] is not None and view.other is not None else None
 
     def _restore_usefulness(self, session: dict) -> None:
         """The usefulness settings and the shrunk model a session saved (a setting the data no longer allows is
@@ -978,6 +981,6 @@ class Workspace:
                 self.usefulness[key] = None
         saved = session.get("shrinkage")
         fit = self.shown_fit()
-        if saved and saved.get("factor") is not None and self.validation_of(fit) is not None:
+        if saved and saved.get("factor") is not None:
             self.shrinkage = ShrinkRecord(self._shrunk(fit, float(saved["factor"])),
                                           tuple(self.current_rung.predictors), is_penalised(fit), fit)
