@@ -438,7 +438,9 @@ class ModelShapeDialog(QDialog):
             f"built from, minus an optimism of {fmt_num(v.auc_optimism)}")
         self.boot_labels["slope"].setText(
             f"{fmt_num(v.calibration_slope_corrected)} corrected (1 on the data it was built from, by "
-            f"construction; optimism {fmt_num(v.slope_optimism)})")
+            f"construction; optimism {fmt_num(v.slope_optimism)})"
+            + ("; below 1, so the Usefulness menu offers the model shrunk by it" if 0 < v.calibration_slope_corrected
+               < 1 else ""))
         self.boot_labels["brier"].setText(
             f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the data it was built "
             f"from; optimism {fmt_num(v.brier_optimism)})")
