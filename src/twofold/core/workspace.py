@@ -608,15 +608,18 @@ class Workspace:
 
     def validation_of(self, fit) -> ValidationRecord | None:
         """The kept bootstrap validation when it describes ``fit``, else None."""
-        v = self.validation
-        if v is None or fit is None:
+        return self._kept_for(self.validation, fit)
+
+    def _kept_for(self, kept, fit):
+        """``kept`` (a validation or shrinkage record) when it was made from ``fit``, else None."""
+        if kept is None or fit is None:
             return None
-        if v.fit is fit:
-            return v
+        if kept.fit is fit:
+            return kept
         rung = self.current_rung
-        if rung is not None and v.fit is None and tuple(rung.predictors) == v.predictors \
-                and v.penalised == is_penalised(fit):
-            return v  # restored from a session: the same model fitted again
+        if rung is not None and kept.fit is None and tuple(rung.predictors) == kept.predictors \
+                and kept.penalised == is_penalised(fit):
+            return kept  # restored from a session: the same model fitted again
         return None
 
     # ---- the whole analysis as a record -----------------------------------------------------
@@ -847,16 +850,7 @@ class Workspace:
 
     def shrinkage_of(self, fit) -> ShrinkRecord | None:
         """The kept shrunk model when it was made from ``fit`` (or its refit from a session), else None."""
-        s = self.shrinkage
-        if s is None or fit is None:
-            return None
-        if s.fit is fit:
-            return s
-        rung = self.current_rung
-        if s.fit is None and rung is not None and tuple(rung.predictors) == s.predictors \
-                and s.penalised == is_penalised(fit):
-            return s
-        return None
+        return self._kept_for(self.shrinkage, fit)
 
     def shrink_offer(self) -> str | None:
         """Why the shown model may be shrunk (the bootstrap's corrected slope below 1), or None when it may not."""

@@ -71,7 +71,10 @@ def decision_job(low: float, high: float, step: float, compare_with):
 def units_job(column: str):
     """Set the unit column and compare the units (funnel plot and table)."""
     def job(ws):
+        from twofold.core.assessing.units import VERDICTS
         from twofold.render.usefulness_figures import funnel_figure
+
+        WITHIN = VERDICTS["within"]  # noqa: N806 - a constant of the core
 
         ws.set_usefulness(unit_column=column)
         comp = ws.units_comparison()
@@ -80,7 +83,7 @@ def units_job(column: str):
         adjusted = rec["limits_adjusted"]
         png = funnel_figure([u["expected"] for u in units], [u["ratio"] for u in units], rec["limits"]["95"],
                             rec["limits"]["99.8"], adjusted_95=adjusted and adjusted["95"],
-                            adjusted_998=adjusted and adjusted["99.8"], labels=[u["unit"] for u in units],
+                            adjusted_998=adjusted and adjusted["99.8"], labels=[u["unit"] if u["verdict"] != WITHIN else "" for u in units],
                             size=(4.2, 3.6))
         return {"kind": "units", "png": png, "record": rec}
 

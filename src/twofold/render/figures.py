@@ -100,6 +100,10 @@ def _finish(ax, title: str | None, square: bool) -> None:
     literal_text(ax)
 
 
+#: How every plot ends (title, square axes when asked, text as written), for the plots of other modules.
+finish_axes = _finish
+
+
 # ---------------------------------------------------------------------------
 # ROC curve
 # ---------------------------------------------------------------------------
@@ -309,6 +313,8 @@ def draw_figure(ax, kind: str, data: dict, *, title: bool = True, square: bool =
     ``square`` makes the axes square for the kinds of :data:`SHARED_SCALE`
     and is ignored for the others.
     """
+    if kind not in DRAWERS:
+        _usefulness_kinds()  # imported when first needed: that module draws with this one's helpers
     try:
         drawer = DRAWERS[kind]
     except KeyError:
@@ -326,5 +332,3 @@ def figure_png(kind: str, data: dict, size=SIZE, dpi: float = DPI, *, title: boo
     draw_figure(fig.add_subplot(), kind, data, title=title, square=square)
     return png_bytes(fig)
 
-
-_usefulness_kinds()  # last: that module draws with this one's helpers

@@ -18,18 +18,9 @@ from __future__ import annotations
 import numpy as np
 
 from twofold.render.figures import (
-    BLACK, BLUE, CURVE_WIDTH, DPI, GREY, ORANGE, REFERENCE_WIDTH, SIZE, VERMILLION, literal_text, new_figure,
+    BLACK, BLUE, CURVE_WIDTH, DPI, GREY, ORANGE, REFERENCE_WIDTH, SIZE, VERMILLION, finish_axes as finish, new_figure,
     png_bytes,
 )
-
-def finish(ax, title: str | None, square: bool) -> None:
-    """Title, square axes when asked, and every text shown as written (as the other plots end)."""
-    if title:
-        ax.set_title(title, fontsize="medium")
-    if square:
-        ax.set_aspect("equal")
-    literal_text(ax)
-
 
 #: A bluish green of the Okabe-Ito set, for a second model.
 GREEN = "#009E73"
@@ -77,7 +68,8 @@ def draw_funnel(ax, expected, ratio, limits_95, limits_998, *, adjusted_95=None,
     ``limits_95`` and ``limits_998`` are lists of [expected, low, high]; the
     ``adjusted_`` ones, when given, the limits widened for overdispersion
     (drawn instead, the plain ones faint).  ``labels`` name the points (the
-    window's units; a report gives none).
+    window names the units outside the 95% limits, '' for the others; a
+    report gives none).
     """
     e, r = np.asarray(expected, float), np.asarray(ratio, float)
     for lim, style, name in ((limits_95, "--", "95% limits"), (limits_998, ":", "99.8% limits")):
@@ -96,6 +88,8 @@ def draw_funnel(ax, expected, ratio, limits_95, limits_998, *, adjusted_95=None,
     if len(e):
         ax.plot(e, r, "o", color=BLUE, markersize=4, label="units")
         for x, y, name in zip(e, r, labels or ()):
+            if not name:
+                continue  # a unit within the limits needs no name on the plot: the table names it
             ax.annotate(str(name)[:18], (x, y), textcoords="offset points", xytext=(3, 3), fontsize="xx-small")
     g = np.asarray(limits_998, float)
     high = max(float(np.nanmax(g[:, 2][np.isfinite(g[:, 2])])) if np.isfinite(g[:, 2]).any() else 2.0,

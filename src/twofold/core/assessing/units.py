@@ -256,12 +256,12 @@ def compare_units(unit_values, y, p, unit_column: str, points: int = LIMIT_POINT
     from twofold.core.outputs.summary import plain_value
 
     out = []
+    own = _limits_at(expected, disp.factor)  # every unit's limits at once (scipy's quantiles take arrays)
     for i, label in enumerate(labels):
         o, e = int(round(observed[i])), float(expected[i])
         lo, hi = poisson_interval(o)
         ratio = o / e
-        own = _limits_at(np.array([e]), disp.factor)
-        bounds = {key: (float(own[key][0][0]), float(own[key][1][0])) for key, _ in LEVELS}
+        bounds = {key: (float(own[key][0][i]), float(own[key][1][i])) for key, _ in LEVELS}
         out.append({"unit": plain_value(label), "rows": int(rows[i]), "observed": o, "expected": e,
                     "ratio": ratio, "ci_low": lo / e, "ci_high": hi / e, "verdict": _verdict(ratio, bounds)})
     grid = np.geomspace(max(min(expected.min(), 1.0) / 2.0, 0.05), expected.max() * 1.1, points)
