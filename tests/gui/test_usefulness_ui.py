@@ -173,3 +173,15 @@ def test_shrinkage_is_offered_after_a_bootstrap_and_can_be_undone(qtbot, window,
     qtbot.mouseClick(dialog.unshrink_button, Qt.MouseButton.LeftButton)
     qtbot.waitUntil(lambda: dialog.shrink_button.isEnabled() and idle(window), timeout=WAIT_MS)
     assert ws.shrinkage_of(ws.shown_fit()) is None
+
+    # The same resamples gave the net benefit's optimism at the decision curve's thresholds (5% to 50% by 1%):
+    # the corrected curve is the model's less it.
+    dialog.tabs.setCurrentIndex(0)
+    qtbot.mouseClick(dialog.draw_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: "decision" in dialog.shown and idle(window), timeout=WAIT_MS)
+    table = dialog.decision_table
+    assert not table.isColumnHidden(2)
+    optimism = dict(zip(np.round(shape.validation.net_benefit_thresholds, 6), shape.validation.net_benefit_optimism))
+    row = next(r for r in range(table.rowCount()) if _cell(table, r, 0) == "20%")
+    assert float(_cell(table, row, 2)) == pytest.approx(float(_cell(table, row, 1)) - optimism[0.2], abs=1.1e-4)
+    assert "after correction for optimism" in dialog.decision_reading.text()

@@ -799,12 +799,11 @@ class Workspace:
     def decision_view(self, fit=None) -> DecisionView:
         """The decision curve of the shown model (optimism-corrected when its bootstrap drew the same thresholds),
         with the chosen second model of the ladder on the same rows."""
-        from twofold.core.assessing.decision import DEFAULT_RANGE, decision_curve, grid_from_setting, \
-            net_benefit_values
+        from twofold.core.assessing.decision import decision_curve, net_benefit_values
 
         self.require_model()
         fit = fit if fit is not None else self.shown_fit()
-        grid = grid_from_setting(list(self.usefulness["net_benefit"] or DEFAULT_RANGE))
+        grid = self.decision_thresholds()
         v = self.validation_of(fit)
         optimism = None
         if v is not None and v.result.net_benefit_thresholds is not None \
@@ -820,6 +819,13 @@ class Workspace:
             return DecisionView(curve)  # not on the same rows: not comparable
         return DecisionView(curve, net_benefit_values(of.design.y, of.fitted, grid),
                             tuple(self.ladder.rungs[other].predictors), other)
+
+    def decision_thresholds(self):
+        """The thresholds of the decision curve: the user's setting, else 5% to 50% in steps of 1% (a bootstrap
+        run from the window draws its net-benefit optimism at these, for the corrected curve)."""
+        from twofold.core.assessing.decision import DEFAULT_RANGE, grid_from_setting
+
+        return grid_from_setting(list(self.usefulness["net_benefit"] or DEFAULT_RANGE))
 
     def units_comparison(self, fit=None):
         """The risk-adjusted comparison of the units of the chosen unit column on the shown model's rows."""
