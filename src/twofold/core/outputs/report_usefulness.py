@@ -149,8 +149,46 @@ def frozen_section(rep, record: dict) -> None:
                      + ("met." if met else "not met, and the figures above are less precise than asked for.")))
 
 
-def units_section(rep, units: dict, threshold: int, no_unit_events: int = 0) -> list[str]:
-    """Risk-adjusted comparison of units: funnel plot and a protected table; returns withheld notes."""
+def close_relations(hidden, primary, relations) -> list[bool]:
+    """Which rows of a protected table to hide so that no published sum gives a hidden row back.
+
+    ``relations`` are sets of rows whose sum the report prints elsewhere
+    (the units within one group of a categorical predictor, whose events and
+    people the predictor's table shows; the whole table).  While some
+    relation has exactly one row not known, the smallest shown row of that
+    relation is hidden too; a row that cannot be covered (every other row of
+    its relation already known) counts as known.  When a row hidden for being
+    small ends up known, every row is hidden.
+    """
+    hidden = list(hidden)
+    known = [not h for h in hidden]
+    changed = True
+    while changed:
+        changed = False
+        for rel in relations:
+            unknown = [i for i in rel if not known[i]]
+            if len(unknown) != 1:
+                continue
+            shown = [i for i in rel if not hidden[i]]
+            if shown:
+                hidden[shown[0]] = True
+                known[shown[0]] = False
+            else:
+                known[unknown[0]] = True
+            changed = True
+            break
+    if any(known[i] and primary[i] for i in range(len(hidden)) if hidden[i]):
+        return [True] * len(hidden)
+    return hidden
+
+
+def units_section(rep, units: dict, threshold: int, no_unit_events: int = 0, relations=()) -> list[str]:
+    """Risk-adjusted comparison of units: funnel plot and a protected table; returns withheld notes.
+
+    ``relations``: sets of rows (the units' indices; the rows without a unit
+    are the last row) whose events and people the report prints elsewhere
+    (:func:`nested_relations`).
+    """
     from twofold.core.outputs.report import Figure, Heading, Para, Table
 
     listed = units["units"]
@@ -164,11 +202,21 @@ def units_section(rep, units: dict, threshold: int, no_unit_events: int = 0) -> 
         # analysis are printed elsewhere) give none of them back.
         counts.append([int(no_unit_events), without - int(no_unit_events)])
     prot = protect_table(np.array(counts, dtype=int), threshold, zeros_disclose=True)
+    n_rows = len(counts)
+    first = [not (prot.cell(i, 0) is not None and prot.cell(i, 1) is not None and prot.row_total(i) is not None)
+             for i in range(n_rows)]
+    # Smallest rows first, so a relation's complement is its smallest shown row.
+    order = sorted(range(n_rows), key=lambda i: sum(counts[i]))
+    rels = [sorted(r, key=order.index) for r in list(relations) + [list(range(n_rows))]]
+    hide = close_relations(first, [bool(prot.primary[i, :].any()) for i in range(n_rows)], rels)
     shown = prot.as_text()
+    for i in range(n_rows):
+        if hide[i]:
+            shown[i] = [SUPPRESSED] * len(shown[i])
     table, fx, fr = [], [], []
     hidden_units = 0
     for i, u in enumerate(listed):
-        ok = prot.cell(i, 0) is not None and prot.cell(i, 1) is not None and prot.row_total(i) is not None
+        ok = not hide[i]
         if ok:
             fx.append(u["expected"])
             fr.append(u["ratio"])
@@ -211,6 +259,33 @@ def units_section(rep, units: dict, threshold: int, no_unit_events: int = 0) -> 
                                                          else "the limits are not widened.")))
     rep.add(Para(units["caution"], "caution"))
     return notes
+
+
+def nested_relations(study, fit, unit_column: str, n_units: int) -> list[list[int]]:
+    """The sets of units (indices in the comparison's sorted order; rows without a unit: index ``n_units``) that
+    make up one group of a categorical predictor of the model exactly, so the predictor's table prints their
+    sum of events and of people."""
+    import pandas as pd
+
+    from twofold.core.assessing.units import factorize_groups
+
+    frame, rows = study.frame, fit.design.rows
+    values = frame[unit_column].iloc[rows].to_numpy(dtype=object)
+    has, codes, _ = factorize_groups(values, unit_column, "unit", max(n_units, 1), "units")
+    index = np.full(len(values), n_units)
+    index[has] = codes
+    out = []
+    for block in fit.design.blocks:
+        if block.kind != "factor":
+            continue
+        groups = frame[block.column].iloc[rows].astype(str).to_numpy()
+        table = pd.crosstab(index, groups)
+        spread = (table > 0).sum(axis=1)  # in how many groups each unit has rows
+        for g in table.columns:
+            members = table.index[table[g] > 0]
+            if len(members) and (spread.loc[members] == 1).all():
+                out.append([int(m) for m in members])
+    return out
 
 
 def subgroups_section(rep, entries: list, note: str, threshold: int, rows_used: int, sizes=None) -> list[str]:
@@ -318,12 +393,14 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
                                        record["rows_used"], sizes)
     if record.get("units"):
         no_unit = 0
+        relations = []
         if not frozen:
             fit = result.fit
             column = result.study.column(str(record["units"]["unit_column"]))
             absent = result.study.frame[column].iloc[fit.design.rows].isna().to_numpy()
             no_unit = int(np.asarray(y)[absent].sum())
-        notes += units_section(rep, record["units"], threshold, no_unit)
+            relations = nested_relations(result.study, fit, column, len(record["units"]["units"]))
+        notes += units_section(rep, record["units"], threshold, no_unit, relations)
     if not frozen and record.get("shrinkage"):
         shrinkage_section(rep, record["shrinkage"], tuple((check.withheld if check is not None else {}).keys()))
     return notes
