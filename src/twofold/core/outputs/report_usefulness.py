@@ -288,7 +288,8 @@ def nested_relations(study, fit, unit_column: str, n_units: int) -> list[list[in
     return out
 
 
-def subgroups_section(rep, entries: list, note: str, threshold: int, rows_used: int, sizes=None) -> list[str]:
+def subgroups_section(rep, entries: list, note: str, threshold: int, rows_used: int, sizes=None,
+                      relations=()) -> list[str]:
     """Performance within groups: a table whose group sizes are protected against the rows used.
 
     ``sizes``: every group's true size (None when only the record is at hand:
@@ -310,7 +311,12 @@ def subgroups_section(rep, entries: list, note: str, threshold: int, rows_used: 
         rest = max(int(rows_used) - sum(sizes), 0)
         counts = np.array(list(sizes) + ([rest] if rest else []), dtype=int).reshape(-1, 1)
         prot = protect_table(counts, max(threshold, 0), row_totals=False)
-        hidden = [prot.cell(i, 0) is None for i in range(len(entries))]
+        n_rows = len(counts)
+        # Groups nested in one group of a categorical predictor add up to a size the report prints there.
+        order = sorted(range(n_rows), key=lambda i: int(counts[i, 0]))
+        rels = [sorted((i for i in r if i < n_rows), key=order.index) for r in list(relations) + [range(n_rows)]]
+        hidden = close_relations([prot.cell(i, 0) is None for i in range(n_rows)],
+                                 [bool(prot.primary[i, 0]) for i in range(n_rows)], rels)[:len(entries)]
     table = []
     for i, e in enumerate(entries):
         size = SUPPRESSED if hidden[i] else f"{sizes[i]:,}"
@@ -370,7 +376,7 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
                                                 for e in record["net_benefit"]]}
     notes += decision_section(rep, record, threshold, y, p, others)
     if record.get("subgroups"):
-        entries, sizes = record["subgroups"], None
+        entries, sizes, relations = record["subgroups"], None, []
         column = None if frozen else getattr(result.spec, "subgroups", None)
         if column is not None:
             from twofold.core.assessing.subgroups import subgroup_performance
@@ -382,6 +388,7 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
             entries = subgroup_performance(groups, y, p, fit.linear_predictor, column, threshold)
             has, codes, _ = factorize_groups(groups, column, "subgroup", len(entries), "groups")
             sizes = np.bincount(codes, minlength=len(entries)).tolist()
+            relations = nested_relations(result.study, fit, column, len(entries))
         if frozen and threshold > DEFAULT_THRESHOLD:
             from twofold.core.outputs.report import Para
 
@@ -390,7 +397,7 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
             notes.append("Performance within groups, worked out with a smaller limit than this report's.")
         else:
             notes += subgroups_section(rep, entries, record.get("subgroups_note", ""), threshold,
-                                       record["rows_used"], sizes)
+                                       record["rows_used"], sizes, relations if sizes is not None else ())
     if record.get("units"):
         no_unit = 0
         relations = []
