@@ -157,3 +157,19 @@ def test_check_on_file_applies_the_shown_model_unchanged(ws):
         float(np.sum(result.predicted)))
     assert result.record["coefficients_applied"][1]["estimate"] == pytest.approx(float(fit.params[1]))
     assert result.record["assessment"]["calibration_curve"]["knots"] == 4
+
+
+@pytest.mark.parametrize("bad", [{"factor": 1.5}, {"factor": "0.9"}, {"coefficients": "all"}, {"reading": 3}])
+def test_a_tampered_shrinkage_in_a_session_is_refused_in_one_sentence(ws, tmp_path, bad):
+    from twofold.core.errors import TwofoldError
+
+    _validated(ws)
+    ws.shrink()
+    path = tmp_path / "s.json"
+    save_session(ws.to_session(), path)
+    saved = json.loads(path.read_text())
+    saved["shrinkage"].update(bad)
+    path.write_text(json.dumps(saved))
+    with pytest.raises(TwofoldError) as err:
+        load_session(path)
+    assert ("shrink" in str(err.value) or "shrunk" in str(err.value)) and str(err.value).endswith(".")

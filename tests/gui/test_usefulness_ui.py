@@ -185,3 +185,11 @@ def test_shrinkage_is_offered_after_a_bootstrap_and_can_be_undone(qtbot, window,
     row = next(r for r in range(table.rowCount()) if _cell(table, r, 0) == "20%")
     assert float(_cell(table, row, 2)) == pytest.approx(float(_cell(table, row, 1)) - optimism[0.2], abs=1.1e-4)
     assert "after correction for optimism" in dialog.decision_reading.text()
+
+
+def test_f1_in_a_tab_explains_what_it_shows(qtbot, window, dialog):
+    dialog.tabs.setCurrentIndex(1)
+    dialog.unit_combo.setFocus()
+    qtbot.keyClick(dialog.unit_combo, Qt.Key.Key_F1)
+    qtbot.waitUntil(lambda: window.help_dialog is not None and window.help_dialog.isVisible(), timeout=WAIT_MS)
+    assert window.help_dialog.topic == "funnel"

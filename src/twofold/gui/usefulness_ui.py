@@ -175,11 +175,15 @@ class UsefulnessDialog(QDialog):
         tabs = QTabWidget()
         tabs.setUsesScrollButtons(False)
         tabs.tabBar().setElideMode(Qt.TextElideMode.ElideNone)
-        tabs.addTab(self._build_decision(), "Decision curve")
-        tabs.addTab(self._build_units(), "Units")
-        tabs.addTab(self._build_subgroups(), "Subgroups")
-        tabs.addTab(self._build_check(), "Check on a new file")
-        tabs.addTab(self._build_shrink(), "Shrinkage")
+        # Each tab names its help topic, so F1 there explains what it shows.
+        for build, name, topic in ((self._build_decision, "Decision curve", "net_benefit"),
+                                   (self._build_units, "Units", "funnel"),
+                                   (self._build_subgroups, "Subgroups", "calibration"),
+                                   (self._build_check, "Check on a new file", "new_file"),
+                                   (self._build_shrink, "Shrinkage", "shrinkage")):
+            page = build()
+            page.setProperty("help_topic", topic)
+            tabs.addTab(page, name)
         self.tabs = tabs
         tabs.currentChanged.connect(lambda _index: self.refresh())  # the lists and the offer follow the analysis
         self.status = plain(QLabel(""))
@@ -189,7 +193,19 @@ class UsefulnessDialog(QDialog):
         lay.addWidget(tabs, 1)
         lay.addWidget(self.status)
         session.failed.connect(self._on_failed)
+        from PySide6.QtGui import QKeySequence, QShortcut
+
+        QShortcut(QKeySequence("F1"), self, activated=self.explain)
         self.refresh()
+
+    def explain(self):
+        """F1: the main window's "What does this mean?" at the topic of the tab shown."""
+        from twofold.gui.help_ui import topic_of
+
+        window = self.parent()
+        if window is not None and hasattr(window, "explain"):
+            return window.explain(topic_of(self.focusWidget()) or topic_of(self.tabs.currentWidget()))
+        return None
 
     # ---- building
     @staticmethod

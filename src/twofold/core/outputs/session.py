@@ -657,7 +657,7 @@ def _validate_shrinkage(c: _Checker, shrinkage) -> None:
     c.number(shrinkage["intercept"], "the shrunk intercept")
     coefs = shrinkage["coefficients"]
     if not isinstance(coefs, list) or len(coefs) > MAX_PARAMETERS:
-        c.fail(f"the shrunk coefficients should be a list of at most {MAX_PARAMETERS} entries")
+        c.fail(f"the shrunk coefficients should be a list of at most {MAX_PARAMETERS:,} entries")
     for entry in coefs:
         c.fields(c.obj(entry, "a shrunk coefficient"), ("name", "estimate"), "a shrunk coefficient has",
                  "a shrunk coefficient's field '{}' is missing")
