@@ -104,11 +104,16 @@ def check_job(data_path: str, session_path: str | None):
     def job(ws):
         from twofold.render.usefulness_figures import calibration_band_figure
 
+        from twofold.core.assessing.decision import decision_curve
+
         result = ws.check_on_file(data_path, session_file=session_path)
         band = result.record["assessment"].get("calibration_curve")
         png = None if not band else calibration_band_figure(band["risk"], band["observed"], band["low"],
                                                             band["high"])
-        return {"kind": "check", "record": result.record, "source": result.source, "png": png}
+        # Net benefit on the new records, at the analysis's decision-curve thresholds.
+        reading = decision_curve(result.y, result.predicted, ws.decision_thresholds()).reading()
+        return {"kind": "check", "record": result.record, "source": result.source, "png": png,
+                "net_benefit": reading}
 
     return job
 
@@ -539,5 +544,6 @@ class UsefulnessDialog(QDialog):
     def _show_check(self, payload) -> None:
         self.shown["check"] = payload
         self._set_png(self.check_picture, payload["png"])
-        self.check_text.setText(check_text(payload["record"], payload["source"]))
+        self.check_text.setText(check_text(payload["record"], payload["source"])
+                                + "\n\nOn these records: " + payload["net_benefit"])
         self.status.setText("The saved model was checked on the new file; nothing in the analysis changed.")

@@ -27,6 +27,24 @@ import numpy as np
 from twofold.core.outputs.privacy import DEFAULT_THRESHOLD, SUPPRESSED, is_small, protect_table
 from twofold.core.outputs.text import fmt_num, fmt_p
 
+#: Full references of these sections, listed after them when they are printed.
+REFERENCES = {
+    "vickers": "Vickers AJ, Elkin EB. Decision curve analysis: a novel method for evaluating prediction models. "
+               "Medical Decision Making 2006;26:565-574.",
+    "austin2014": "Austin PC, Steyerberg EW. Graphical assessment of internal and external calibration of logistic "
+                  "regression models by using loess smoothers. Statistics in Medicine 2014;33:517-535.",
+    "austin2019": "Austin PC, Steyerberg EW. The Integrated Calibration Index (ICI) and related metrics for "
+                  "quantifying the calibration of logistic regression models. Statistics in Medicine "
+                  "2019;38:4051-4065.",
+    "riley2024": "Riley RD, Snell KIE, Archer L, et al. Evaluation of clinical prediction models (part 3): "
+                 "calculating the sample size required for an external validation study. BMJ 2024;384:e074821.",
+    "spiegelhalter": "Spiegelhalter DJ. Funnel plots for comparing institutional performance. Statistics in "
+                     "Medicine 2005;24:1185-1202.",
+    "houwelingen": "Van Houwelingen JC, Le Cessie S. Predictive value of statistical models. Statistics in "
+                   "Medicine 1990;9:1303-1325.",
+    "steyerberg": "Steyerberg EW. Clinical Prediction Models, 2nd edition. Springer, 2019.",
+}
+
 #: Thresholds a report's net-benefit table shows, when the curve reaches them (risks).
 TABLE_THRESHOLDS = (0.05, 0.1, 0.15, 0.2, 0.3, 0.4, 0.5)
 
@@ -410,4 +428,14 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
         notes += units_section(rep, record["units"], threshold, no_unit, relations)
     if not frozen and record.get("shrinkage"):
         shrinkage_section(rep, record["shrinkage"], tuple((check.withheld if check is not None else {}).keys()))
+    refs = ((["vickers"] if record.get("net_benefit") else [])
+            + (["austin2014", "austin2019", "riley2024"] if frozen and (record.get("assessment") or {}).get(
+                "observed_expected") else [])
+            + (["spiegelhalter"] if record.get("units") else [])
+            + (["houwelingen", "steyerberg"] if not frozen and (record.get("shrinkage") or {}).get("factor")
+               else []))
+    if refs:
+        from twofold.core.outputs.report import Bullets, Heading
+
+        rep.add(Heading("Sources of the sections above", 3), Bullets([REFERENCES[k] for k in refs], "small"))
     return notes
