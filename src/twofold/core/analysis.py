@@ -389,10 +389,16 @@ def add_usefulness(result: AnalysisResult, thresholds=None) -> None:
     """
     spec, study, fit, record = result.spec, result.study, result.fit, result.record
     if thresholds is not None and spec.net_benefit_versus:
-        other = study.fit([study.column(p) for p in spec.net_benefit_versus], rows=fit.design.rows,
-                          firth=spec.firth)
-        add_other_curve(record, fit.design.y, other.fitted, list(other.design.predictors))
-        result.other_risks = other.fitted
+        from twofold.core.errors import TwofoldError
+
+        try:
+            other = study.fit([study.column(p) for p in spec.net_benefit_versus], rows=fit.design.rows,
+                              firth=spec.firth)
+        except TwofoldError as exc:  # a column of it missing from this extract, say: the curve goes without it
+            record["net_benefit_summary"]["other_note"] = f"The second model's curve is left out: {exc}"
+        else:
+            add_other_curve(record, fit.design.y, other.fitted, list(other.design.predictors))
+            result.other_risks = other.fitted
     if spec.unit_column is not None:
         add_units(record, study.frame, study.column(str(spec.unit_column)), fit, study.outcome)
     if spec.shrink:
