@@ -324,6 +324,7 @@ class Workspace:
         if removed:
             self.ladder.clear()
         self.parents = {}
+        self.usefulness["compare_with"] = None  # named a model of the ladder just cleared
         return removed
 
     def _add(self, predictors) -> None:
