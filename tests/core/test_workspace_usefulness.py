@@ -173,3 +173,15 @@ def test_a_tampered_shrinkage_in_a_session_is_refused_in_one_sentence(ws, tmp_pa
     with pytest.raises(TwofoldError) as err:
         load_session(path)
     assert ("shrink" in str(err.value) or "shrunk" in str(err.value)) and str(err.value).endswith(".")
+
+
+def test_grouping_columns_are_those_outside_the_model_with_a_few_values(ws):
+    # Counted with pandas outside the workspace: a column may name units when it is not the outcome, not in the
+    # model, not an identifier or date, and has 2 to `most` distinct values.
+    frame = pd.read_csv(READMISSION)
+    model = {"age", "prior_admissions", "comorbidity_score", OUTCOME}
+    expected = [c for c in frame.columns
+                if c not in model and c not in ("admission_id", "admission_date") and 2 <= frame[c].nunique() <= 50]
+    assert ws.grouping_columns(50) == expected
+    assert "sex" in expected and "length_of_stay" in ws.grouping_columns(2000)
+    assert all(frame[c].nunique() <= 3 for c in ws.grouping_columns(3))

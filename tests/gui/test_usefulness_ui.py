@@ -91,6 +91,11 @@ def test_units_table_and_funnel_from_the_chosen_column(qtbot, window, dialog):
 def test_a_predictor_is_not_offered_as_a_unit_column(qtbot, window, dialog):
     items = [dialog.unit_combo.itemText(i) for i in range(dialog.unit_combo.count())]
     assert "age" not in items and OUTCOME not in items and "discharge_destination" in items
+    # An identifier (one record per value) or a date names no unit; the box starts on "choose".
+    assert "admission_id" not in items and "admission_date" not in items
+    assert dialog.unit_combo.currentData() is None
+    qtbot.mouseClick(dialog.units_button, Qt.MouseButton.LeftButton)
+    assert "Choose the column" in dialog.status.text()
 
 
 def test_subgroups_show_the_groups_of_the_chosen_column(qtbot, window, dialog):

@@ -783,6 +783,17 @@ class Workspace:
     def _model_columns(self, fit) -> list:
         return [p for t in fit.design.predictors for p in str(t).split(":")]
 
+    def grouping_columns(self, most: int) -> list:
+        """Columns whose values may name units or subgroups of the shown model's records: not the outcome, not in
+        the model, not an identifier or a date, with 2 to ``most`` distinct values."""
+        from twofold.core.data.roles import Role
+
+        if self.study is None or not self.has_model:
+            return []
+        used = set(self._model_columns(self.shown_fit())) | {self.study.outcome}
+        return [name for name, info in self.study.columns.items()
+                if name not in used and info.role not in (Role.IDENTIFIER, Role.DATE) and 2 <= info.n_levels <= most]
+
     def _usefulness_spec(self, fit) -> dict:
         """The spec fields of the usefulness settings (what a session saves and ``rerun`` repeats)."""
         u = self.usefulness

@@ -22,6 +22,8 @@ from twofold.gui.style import plain
 #: Thresholds shown in the decision table when the curve reaches them (risks).
 TABLE_THRESHOLDS = (0.05, 0.1, 0.15, 0.2, 0.3, 0.4, 0.5)
 NO_SECOND = "(none)"
+CHOOSE_COLUMN = "(choose a column)"
+NO_COLUMN = "(no column fits: it must be outside the model, not an identifier or date, with a few values)"
 
 
 def _pct(t: float) -> str:
@@ -32,14 +34,16 @@ def _pct(t: float) -> str:
 def overview_job(ws):
     """The ladder's models, the columns a unit or subgroup may come from, and the shrinkage offer."""
     if ws.study is None or not ws.has_model:
-        return {"kind": "overview", "models": [], "columns": [], "current": None, "offer": None,
+        return {"kind": "overview", "models": [], "unit_columns": [], "subgroup_columns": [], "current": None,
+                "offer": None,
                 "shrunk": False, "usefulness": dict(ws.usefulness)}
-    study, fit = ws.study, ws.shown_fit()
-    used = {p for t in fit.design.predictors for p in str(t).split(":")}
-    columns = [c for c in study.columns if c != study.outcome and c not in used]
+    from twofold.core.assessing.subgroups import MAX_GROUPS
+    from twofold.core.assessing.units import MAX_UNITS
+
     models = [", ".join(r.predictors) for r in ws.ladder.rungs]
-    return {"kind": "overview", "models": models, "current": ws.ladder.current, "columns": columns,
-            "offer": ws.shrink_offer(), "shrunk": ws.shrinkage_of(fit) is not None,
+    return {"kind": "overview", "models": models, "current": ws.ladder.current,
+            "unit_columns": ws.grouping_columns(MAX_UNITS), "subgroup_columns": ws.grouping_columns(MAX_GROUPS),
+            "offer": ws.shrink_offer(), "shrunk": ws.shrinkage_of(ws.shown_fit()) is not None,
             "usefulness": dict(ws.usefulness)}
 
 
@@ -412,14 +416,14 @@ class UsefulnessDialog(QDialog):
                          self._show_decision)
 
     def compare_units(self) -> int:
-        column = self.unit_combo.currentText()
+        column = self.unit_combo.currentData()
         if not column:
             self.status.setText("Choose the column naming each record's unit first.")
             return 0
         return self._ask("Comparing the units\u2026", units_job(column), self._show_units)
 
     def show_subgroups(self) -> int:
-        column = self.subgroup_combo.currentText()
+        column = self.subgroup_combo.currentData()
         if not column:
             self.status.setText("Choose the column whose groups to look at first.")
             return 0
@@ -457,12 +461,14 @@ class UsefulnessDialog(QDialog):
         chosen = payload["usefulness"].get("compare_with", keep)
         at = self.second_combo.findData(chosen if chosen is not None else keep)
         self.second_combo.setCurrentIndex(max(at, 0))
-        for combo, key in ((self.unit_combo, "unit_column"), (self.subgroup_combo, "subgroups")):
-            previous = combo.currentText() or payload["usefulness"].get(key)
+        for combo, key, offered in ((self.unit_combo, "unit_column", payload["unit_columns"]),
+                                    (self.subgroup_combo, "subgroups", payload["subgroup_columns"])):
+            previous = combo.currentData() or payload["usefulness"].get(key)
             combo.clear()
-            combo.addItems(payload["columns"])
-            if previous in payload["columns"]:
-                combo.setCurrentText(previous)
+            combo.addItem(CHOOSE_COLUMN if offered else NO_COLUMN, None)
+            for name in offered:
+                combo.addItem(name, name)
+            combo.setCurrentIndex(max(combo.findData(previous), 0) if previous in offered else 0)
         setting = payload["usefulness"].get("net_benefit")
         if setting:
             for edit, value in zip((self.nb_low, self.nb_high, self.nb_step), setting):
