@@ -294,10 +294,9 @@ def _rerun(args):
 
 def _adapt(result, session, data, args) -> None:
     """Add ``adaptation`` to a frozen result's record and, with ``--session-out``, save the adapted model."""
-    from twofold.core.models.updating import adapt_model
+    from twofold.core.outputs.predict import add_adaptation
 
-    adaptation = adapt_model(result.model, result.X, result.y, source=result.source)
-    result.record["adaptation"] = adaptation.as_dict()
+    adaptation = add_adaptation(result)
     if args.session_out:
         from twofold.core.outputs.session import adapted_session
         from twofold.core.outputs.storage import save_session

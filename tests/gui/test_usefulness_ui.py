@@ -198,3 +198,46 @@ def test_f1_in_a_tab_explains_what_it_shows(qtbot, window, dialog):
     qtbot.keyClick(dialog.unit_combo, Qt.Key.Key_F1)
     qtbot.waitUntil(lambda: window.help_dialog is not None and window.help_dialog.isVisible(), timeout=WAIT_MS)
     assert window.help_dialog.topic == "funnel"
+
+
+def test_adapting_the_shown_model_to_a_new_file_and_saving_it(qtbot, window, dialog, tmp_path):
+    import json
+
+    from scipy.special import expit
+
+    # A new extract where every record's odds of readmission are doubled (seeded): a new intercept should do.
+    frame = pd.read_csv(READMISSION)
+    rng = np.random.default_rng(11)
+    flip = (frame[OUTCOME] == 0) & (rng.random(len(frame)) < 0.12)
+    frame.loc[flip, OUTCOME] = 1
+    new = tmp_path / "next_month.csv"
+    frame.to_csv(new, index=False)
+    dialog.tabs.setCurrentIndex(3)
+    qtbot.keyClicks(dialog.data_edit, str(new))
+    assert not dialog.save_adapted_button.isEnabled()
+    qtbot.mouseClick(dialog.adapt_box, Qt.MouseButton.LeftButton)
+    qtbot.mouseClick(dialog.check_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: "check" in dialog.shown and idle(window), timeout=WAIT_MS)
+    text = dialog.check_text.text()
+    assert "Adapting the saved model" in text and "likelihood-ratio G" in text
+    adaptation = dialog.shown["check"]["record"]["adaptation"]
+    # Recalibration in the large checked with statsmodels' GLM (the saved linear predictor as an offset).
+    kept = frame[[OUTCOME] + PREDICTORS].dropna()
+    X = pd.get_dummies(kept[PREDICTORS], drop_first=True, dtype=float)
+    b = window.session.workspace.shown_fit().params
+    lp = sm.add_constant(X).to_numpy() @ b
+    alone = sm.GLM(kept[OUTCOME].to_numpy(float), np.ones((len(kept), 1)), family=sm.families.Binomial(),
+                   offset=lp).fit().params[0]
+    assert adaptation["recalibration"]["intercept_alone"] == pytest.approx(alone, abs=1e-6)
+    out = tmp_path / "adapted.json"
+    qtbot.keyClicks(dialog.adapted_edit, str(out))
+    revision = window.session.workspace.revision
+    qtbot.mouseClick(dialog.save_adapted_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: "adapted" in dialog.shown and idle(window), timeout=WAIT_MS)
+    assert "was saved" in dialog.status.text() and window.session.workspace.revision == revision
+    saved = json.loads(out.read_text())
+    assert saved["model"]["coefficients"] == pytest.approx([c["estimate"] for c in adaptation["coefficients"]])
+    assert saved["data"].endswith("next_month.csv")
+    # The saved adapted model predicts on the new rows as its coefficients say.
+    risk = expit(sm.add_constant(X).to_numpy() @ np.array(saved["model"]["coefficients"]))
+    assert risk.mean() == pytest.approx(kept[OUTCOME].mean(), abs=0.01)

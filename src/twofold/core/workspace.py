@@ -931,11 +931,24 @@ class Workspace:
         s = self.shrinkage_of(fit)
         return s.result.model if s is not None else frozen_model(fit, self.study.outcome, self.study.event)
 
-    def check_on_file(self, path, session_file=None, sheet=None, threshold=None):
+    def check_on_file(self, path, session_file=None, sheet=None, threshold=None, adapt=False):
         """A saved model (``session_file``'s, else the shown one as saved) applied unchanged to a new data file:
-        the frozen validation figures (a :class:`~twofold.core.outputs.predict.FrozenResult`). Changes nothing."""
-        from twofold.core.outputs.predict import evaluate_frozen
+        the frozen validation figures (a :class:`~twofold.core.outputs.predict.FrozenResult`), with the net
+        benefit at the analysis's decision-curve thresholds and, with ``adapt``, how to adapt the model to the
+        file (``record["adaptation"]``).  Changes nothing."""
+        from twofold.core.analysis import add_decision_curve
+        from twofold.core.outputs.predict import add_adaptation, evaluate_frozen
 
+        model, sheet, threshold = self._model_to_check(session_file, sheet, threshold)
+        result = evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
+        add_decision_curve(result.record, result.y, result.predicted, self.decision_thresholds())
+        if adapt:
+            add_adaptation(result)
+        return result
+
+    def _model_to_check(self, session_file, sheet, threshold):
+        """The saved model to check on a new file (``session_file``'s, else the shown one as saved), its sheet and
+        threshold."""
         if session_file is not None:
             from twofold.core.outputs import session as ses
 
@@ -947,7 +960,23 @@ class Workspace:
             fit = self.shown_fit()
             model = self.saved_model(fit)
             threshold = threshold if threshold is not None else self.threshold_for(fit)
-        return evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
+        return model, sheet, threshold
+
+    def save_adapted(self, path, out_path, session_file=None) -> str:
+        """Adapt the saved model (``session_file``'s, else the shown one) to the data file ``path`` and save it as a
+        new session at ``out_path`` (its data: the new file), for predictions and checks; returns the choice's
+        reading.  The analysis itself is unchanged."""
+        from twofold.core.outputs import session as ses
+        from twofold.core.outputs.predict import add_adaptation, evaluate_frozen
+        from twofold.core.outputs.storage import refuse_writing_over, save_session
+
+        model, sheet, threshold = self._model_to_check(session_file, None, None)
+        session = ses.load_session(session_file) if session_file is not None else self.to_session()
+        refuse_writing_over([out_path], [path, session.get("data")], session_file=session_file)
+        result = evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
+        adaptation = add_adaptation(result)
+        save_session(ses.adapted_session(session, adaptation.model, path, result.rows_read), out_path)
+        return adaptation.reading
 
     def _add_usefulness_records(self, record: dict, fit, shrunk):
         """Add what the usefulness settings ask for to a result's record (as ``fit`` and ``rerun`` write it);

@@ -13,7 +13,7 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QPixmap
 from PySide6.QtWidgets import (
-    QComboBox, QDialog, QFileDialog, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QPushButton, QRadioButton,
+    QCheckBox, QComboBox, QDialog, QFileDialog, QFormLayout, QHBoxLayout, QLabel, QLineEdit, QPushButton, QRadioButton,
     QScrollArea, QTableWidget, QTableWidgetItem, QTabWidget, QVBoxLayout, QWidget,
 )
 
@@ -103,21 +103,26 @@ def subgroups_job(column: str):
     return job
 
 
-def check_job(data_path: str, session_path: str | None):
-    """A saved model (the session's, or the shown one as saved) applied unchanged to a new data file."""
+def check_job(data_path: str, session_path: str | None, adapt: bool = False):
+    """A saved model (the session's, or the shown one as saved) applied unchanged to a new data file (with
+    ``adapt``, also how to adapt it to the file)."""
     def job(ws):
         from twofold.render.usefulness_figures import calibration_band_figure
 
-        from twofold.core.assessing.decision import decision_curve
-
-        result = ws.check_on_file(data_path, session_file=session_path)
+        result = ws.check_on_file(data_path, session_file=session_path, adapt=adapt)
         band = result.record["assessment"].get("calibration_curve")
         png = None if not band else calibration_band_figure(band["risk"], band["observed"], band["low"],
                                                             band["high"])
-        # Net benefit on the new records, at the analysis's decision-curve thresholds.
-        reading = decision_curve(result.y, result.predicted, ws.decision_thresholds()).reading()
-        return {"kind": "check", "record": result.record, "source": result.source, "png": png,
-                "net_benefit": reading}
+        return {"kind": "check", "record": result.record, "source": result.source, "png": png}
+
+    return job
+
+
+def save_adapted_job(data_path: str, session_path: str | None, out_path: str):
+    """The saved model adapted to a new data file, saved as a new session (the analysis is unchanged)."""
+    def job(ws):
+        return {"kind": "adapted", "reading": ws.save_adapted(data_path, out_path, session_file=session_path),
+                "path": out_path}
 
     return job
 
@@ -162,6 +167,13 @@ def check_text(record: dict, source: str) -> str:
                      f"{size['n_available']:,}, so the requirement is "
                      + ("met." if size["met"] else "NOT met: read the figures as rough."))
     return "\n\n".join(lines)
+
+
+def adaptation_text(record: dict) -> str:
+    """How the closed test chose to adapt the model (the text account's lines, unindented)."""
+    from twofold.core.outputs.text import adaptation_lines
+
+    return "\n".join(line.strip() for line in adaptation_lines(record) if line)
 
 
 def _number(x, digits: int = 4) -> str:
@@ -344,8 +356,24 @@ class UsefulnessDialog(QDialog):
         d_row.addWidget(self.data_edit, 1)
         d_row.addWidget(pick_data)
         form.addRow("New data file", d_row)
+        self.adapt_box = QCheckBox("Also work out how to adapt the model to this file (new intercept, new "
+                                   "intercept and slope, or every coefficient re-estimated)")
+        form.addRow("", self.adapt_box)
         self.check_button = QPushButton("Check the model on this file")
         self.check_button.clicked.connect(lambda _checked=False: self.check_file())
+        self.adapted_edit = QLineEdit()
+        self.adapted_edit.setAccessibleName("Save the adapted model as")
+        self.adapted_edit.setPlaceholderText("a new session file for the adapted model")
+        pick_out = QPushButton("Choose\u2026")
+        pick_out.clicked.connect(lambda _checked=False: self._choose_out(self.adapted_edit))
+        self.save_adapted_button = QPushButton("Save the adapted model")
+        self.save_adapted_button.clicked.connect(lambda _checked=False: self.save_adapted())
+        self.save_adapted_button.setEnabled(False)
+        save_row = QHBoxLayout()
+        save_row.addWidget(QLabel("Adapted model"))
+        save_row.addWidget(self.adapted_edit, 1)
+        save_row.addWidget(pick_out)
+        save_row.addWidget(self.save_adapted_button)
         self.check_picture = self._picture("Calibration on the new file")
         self.check_text = plain(QLabel("The saved model is applied unchanged (no refitting) and its figures on "
                                        "the new records are shown here."))
@@ -364,6 +392,7 @@ class UsefulnessDialog(QDialog):
         lay.addLayout(form)
         lay.addWidget(self.check_button)
         lay.addLayout(body, 1)
+        lay.addLayout(save_row)
         return w
 
     def _build_shrink(self) -> QWidget:
@@ -385,6 +414,11 @@ class UsefulnessDialog(QDialog):
         lay.addLayout(buttons)
         lay.addStretch(1)
         return w
+
+    def _choose_out(self, edit: QLineEdit) -> None:
+        path, _ = QFileDialog.getSaveFileName(self, "Save the adapted model as", edit.text(), "Session (*.json)")
+        if path:
+            edit.setText(path)
 
     def _choose(self, edit: QLineEdit, pattern: str) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Choose a file", edit.text(), pattern)
@@ -438,7 +472,21 @@ class UsefulnessDialog(QDialog):
         if self.use_saved.isChecked() and not saved:
             self.status.setText("Choose the session whose saved model to check, or tick 'The model shown'.")
             return 0
-        return self._ask("Applying the saved model to the new file\u2026", check_job(data, saved), self._show_check)
+        self.save_adapted_button.setEnabled(False)
+        return self._ask("Applying the saved model to the new file\u2026",
+                         check_job(data, saved, self.adapt_box.isChecked()), self._show_check)
+
+    def save_adapted(self) -> int:
+        check = self.shown.get("check")
+        out = self.adapted_edit.text().strip()
+        if not check or "adaptation" not in check["record"]:
+            self.status.setText("Check the model on the new file with 'Also work out how to adapt' ticked first.")
+            return 0
+        if not out:
+            self.status.setText("Choose where to save the adapted model (a new session file).")
+            return 0
+        return self._ask("Saving the adapted model\u2026", save_adapted_job(check["data"], check["session"], out),
+                         self._show_adapted)
 
     def shrink(self, on: bool) -> int:
         return self._ask("Shrinking the model\u2026" if on else "Going back to the model as fitted\u2026",
@@ -548,8 +596,21 @@ class UsefulnessDialog(QDialog):
         self.status.setText(f"Performance within the groups of '{payload['column']}'.")
 
     def _show_check(self, payload) -> None:
-        self.shown["check"] = payload
+        record = payload["record"]
+        self.shown["check"] = {**payload, "data": self.data_edit.text().strip(),
+                               "session": self.session_edit.text().strip() if self.use_saved.isChecked() else None}
         self._set_png(self.check_picture, payload["png"])
-        self.check_text.setText(check_text(payload["record"], payload["source"])
-                                + "\n\nOn these records: " + payload["net_benefit"])
+        text = check_text(record, payload["source"])
+        summary = record.get("net_benefit_summary")
+        if summary:
+            text += "\n\nOn these records: " + summary["reading"]
+        if "adaptation" in record:
+            text += "\n\n" + adaptation_text(record)
+        self.check_text.setText(text)
+        self.save_adapted_button.setEnabled("adaptation" in record)
         self.status.setText("The saved model was checked on the new file; nothing in the analysis changed.")
+
+    def _show_adapted(self, payload) -> None:
+        self.shown["adapted"] = payload
+        self.status.setText(f"The adapted model was saved as {payload['path']} (for predictions and checks); "
+                            "the analysis shown is unchanged.")

@@ -73,6 +73,12 @@ class UpdateStep:
                 "reading": self.reading}
 
 
+#: Each step of the closed sequence in plain words (the refit tested against ...).
+STEP_WORDS = {"refit_vs_none": "every coefficient re-estimated, against the model kept as it is",
+              "refit_vs_intercept": "every coefficient re-estimated, against a new intercept",
+              "refit_vs_intercept_and_slope": "every coefficient re-estimated, against a new intercept and slope"}
+
+
 @dataclass(frozen=True, eq=False)
 class Adaptation:
     """What the closed test chose, its tests, and the adapted model."""

@@ -167,6 +167,25 @@ def frozen_section(rep, record: dict) -> None:
                      + ("met." if met else "not met, and the figures above are less precise than asked for.")))
 
 
+def adaptation_section(rep, record: dict) -> None:
+    """How the saved model should be adapted to the new records: the closed sequence of likelihood-ratio tests and
+    its choice (the adapted coefficients are in the saved session, not printed: a re-estimated coefficient of a
+    small group could give its count back)."""
+    from twofold.core.models.updating import STEP_WORDS
+    from twofold.core.outputs.report import Heading, Para, Table
+
+    a = record.get("adaptation")
+    if not a:
+        return
+    rep.add(Heading("Adapting the saved model to these records", 3))
+    rows = [[STEP_WORDS.get(t["step"], t["step"]), fmt_num(t["g"], 2), str(t["df"]), fmt_p(t["p_value"])]
+            for t in a["tests"]]
+    rep.add(Table(["step (tested in this order)", "likelihood-ratio G", "degrees of freedom", "p-value"], rows,
+                  caption="Closed testing (Vergouwe et al. 2017, Stat Med 36:4529): each step at the 5% level; the "
+                          "first step that is not significant names the choice."))
+    rep.add(Para(a["reading"]))
+
+
 def close_relations(hidden, primary, relations) -> list[bool]:
     """Which rows of a protected table to hide so that no published sum gives a hidden row back.
 
@@ -383,6 +402,7 @@ def usefulness_sections(rep, result, record: dict, threshold: int, frozen: bool,
     if frozen:
         y, p = result.y, result.predicted
         frozen_section(rep, record)
+        adaptation_section(rep, record)
         others = None
     else:
         y, p = result.fit.design.y, result.fit.fitted

@@ -501,10 +501,13 @@ def adaptation_lines(record: dict) -> list[str]:
     a = record.get("adaptation")
     if not a:
         return []
-    out = ["", "Adapting the saved model to these records (closed testing, each step at the 5% level)"]
+    from twofold.core.models.updating import STEP_WORDS
+
+    out = ["", "Adapting the saved model to these records (closed testing, Vergouwe et al. 2017, each step at the "
+           "5% level)"]
     for t in a["tests"]:
-        out.append(f"  {t['step']}: G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. "
-                   f"{t['reading']}")
+        out.append(f"  {STEP_WORDS.get(t['step'], t['step'])}: likelihood-ratio G = {fmt_num(t['g'], 2)} on "
+                   f"{degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. {t['reading']}")
     out.append("  " + a["reading"])
     out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
                                                      for c in a["coefficients"]) + ".")
