@@ -185,3 +185,33 @@ def test_grouping_columns_are_those_outside_the_model_with_a_few_values(ws):
     assert ws.grouping_columns(50) == expected
     assert "sex" in expected and "length_of_stay" in ws.grouping_columns(2000)
     assert all(frame[c].nunique() <= 3 for c in ws.grouping_columns(3))
+
+
+def test_the_corrected_decision_curve_survives_saving_and_reopening(ws, tmp_path):
+    from twofold.core.models.modelling import Validation
+
+    grid = [0.05, 0.3, 0.05]
+    ws.set_usefulness(net_benefit=grid)
+    thresholds = tuple(np.round(np.arange(0.05, 0.30001, 0.05), 10))
+    optimism = tuple(0.001 * (i + 1) for i in range(len(thresholds)))
+    v = Validation(50, 50, 0, 1, 0.7, 0.01, 1.0, 0.1, 0.1, 0.001,
+                   net_benefit_thresholds=thresholds, net_benefit_optimism=optimism)
+    ws.record_validation(ws.shown_fit(), v, 50, 1)
+    before = ws.decision_view().curve
+    assert before.model_corrected is not None
+    path = tmp_path / "s.json"
+    save_session(ws.to_session(), path)
+    saved = json.loads(path.read_text())["validation_result"]
+    assert saved["net_benefit_optimism"] == pytest.approx(list(optimism))
+    again = Workspace.from_session(load_session(path)).decision_view().curve
+    fit = ws.shown_fit()
+    y, p = fit.design.y, fit.fitted
+    # Corrected = the model's net benefit by Vickers & Elkin's formula less the kept optimism.
+    expected = [_net_benefit_by_hand(y, p, t) - o for t, o in zip(thresholds, optimism)]
+    assert np.asarray(again.model_corrected) == pytest.approx(expected, abs=1e-12)
+    # A tampered list is refused in one sentence, not read.
+    bad = json.loads(path.read_text())
+    bad["validation_result"]["net_benefit_thresholds"] = [0.3, 0.05, 0.1, 0.15, 0.2, 0.25]
+    path.write_text(json.dumps(bad))
+    with pytest.raises(TwofoldError, match="do not rise"):
+        load_session(path)

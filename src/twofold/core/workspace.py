@@ -708,6 +708,8 @@ class Workspace:
         if result.validation is not None:
             session["validation_result"] = {k: (clean_number(x) if isinstance(x, float) else x)
                                             for k, x in result.validation.as_dict().items()}
+            session["validation_result"].update({k: [clean_number(x) for x in xs]
+                                                 for k, xs in result.validation.net_benefit_dict().items()})
         return session
 
     @classmethod

@@ -507,6 +507,27 @@ class _Checker:
             self.fail(missing.format(absent[0]))
 
 
+def _validate_net_benefit_optimism(c, v: dict) -> None:
+    """A kept bootstrap's decision-curve thresholds (risks in (0, 1), rising) and the optimism at each: lists of
+    the same length, at most the number of thresholds a decision curve may have."""
+    from twofold.core.assessing.decision import MAX_THRESHOLDS
+
+    thresholds, optimism = v.get("net_benefit_thresholds"), v.get("net_benefit_optimism")
+    if not (isinstance(thresholds, list) and isinstance(optimism, list)) or len(thresholds) != len(optimism) \
+            or not 0 < len(thresholds) <= MAX_THRESHOLDS:
+        c.fail("'validation_result' should give the decision-curve thresholds and their optimism as two lists of "
+               "the same length")
+    for t in thresholds:
+        c.number(t, "a decision-curve threshold of 'validation_result'")
+        if not 0 < t < 1:
+            c.fail("'validation_result' has a decision-curve threshold outside 0 to 1")
+    if any(b <= a for a, b in zip(thresholds, thresholds[1:])):
+        c.fail("'validation_result' has decision-curve thresholds that do not rise")
+    for x in optimism:
+        if x is not None:
+            c.number(x, "a net-benefit optimism of 'validation_result'")
+
+
 def validate_session(session, path=None) -> dict:
     """Check every field of a session (types, sizes, consistency); raise SessionFileError at the first problem."""
     c = _Checker(path)
@@ -633,6 +654,8 @@ def validate_session(session, path=None) -> dict:
 
                 if x not in REFIT_METHODS:
                     c.fail("'validation_result' names a way of refitting that Twofold does not use")
+            elif k in ("net_benefit_thresholds", "net_benefit_optimism"):
+                _validate_net_benefit_optimism(c, v)
             elif x is not None:
                 c.number(x, f"validation_result of {k[:40]}")
     _validate_shrinkage(c, session["shrinkage"])
