@@ -23,6 +23,7 @@ under the results of the same request.
 
 from __future__ import annotations
 
+import dataclasses
 from collections import defaultdict
 from concurrent.futures import ThreadPoolExecutor
 
@@ -64,6 +65,7 @@ class Session(QObject):
     loadProgress = Signal(float)      # share of the file read so far, 0 to 1
     payloadReady = Signal(int, object)  # (request id, payload) of a call()
     profileReady = Signal(object)     # ProfileView of the model shown
+    ladderChanged = Signal(object)    # LadderView: the shown results' ladder, its passed-over models now fitted
     _assessed = Signal(int, object, object)   # (request id, AssessmentView or None, Failure or None)
     _profileComputed = Signal(int, object)    # (request id, ProfileView) from the profile thread
 
@@ -176,11 +178,14 @@ class Session(QObject):
         mine = self._next_id + 1
 
         def job():
-            self.workspace.set_predictors(predictors)
             if self._floor["results"] > mine:
-                # A newer tick is already waiting: this step joins the ladder, but its display would never
-                # be shown, so it is not built (a burst of ticks then waits only for the fits).
+                # A newer tick is already waiting: this step joins the ladder with its fit put off, and its
+                # display, which would never be shown, is not built.  The newest model is fitted and shown
+                # first; the ones passed over are fitted right after (see _complete), so quick ticks wait
+                # for one fit, not for all of them.
+                self.workspace.set_predictors(predictors, defer=True)
                 return self._views(())
+            self.workspace.set_predictors(predictors)
             return self._views(("results",))
 
         job_id = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
@@ -347,7 +352,7 @@ class Session(QObject):
             self._floor[f] = job_id
         self._floor["error:" + kind] = job_id
         self._pending.add(job_id)
-        then = (lambda: self._follow(job_id)) if ("results" in facets or assess) else None
+        then = (lambda: self._follow(job_id) or self._complete(job_id)) if ("results" in facets or assess) else None
         job = Job(job_id, kind, fn, coalesce, clears_queue, on_error, then=then, then_kind="assess")
         for dropped in self._worker.submit(job):
             self._pending.discard(dropped)
@@ -386,10 +391,15 @@ class Session(QObject):
                 if facet == "history":
                     self.last_history = view
                 signals[facet].emit(view)
-        done = self._callbacks.pop(result.id, None)
+        ladder = result.outputs.get("ladder")
+        if ladder is not None and self.is_current("results", result.id) and self.last_results is not None:
+            # The models passed over by quicker ticks are now fitted: the ladder is shown complete.
+            self.last_results = dataclasses.replace(self.last_results, ladder=ladder)
+            self.ladderChanged.emit(ladder)
+        done = None if result.followup else self._callbacks.pop(result.id, None)
         if done is not None and result.error is None and "payload" in result.outputs:
             done(result.outputs["payload"])
-        if "payload" in result.outputs:
+        if "payload" in result.outputs and not result.followup:
             self.payloadReady.emit(result.id, result.outputs["payload"])
         if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
             self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path,
@@ -399,7 +409,8 @@ class Session(QObject):
                 del self._held[facet]
                 (self._on_assessed if facet == "assessment" else self._on_profiled)(job_id, *args)
         self._set_busy(bool(self._pending))
-        self.requestFinished.emit(result.id)
+        if not result.followup:
+            self.requestFinished.emit(result.id)
 
     def _on_assessed(self, job_id: int, view, failure) -> None:
         """The assessment that follows a result: shown only if no newer request has been made since."""
@@ -485,6 +496,25 @@ class Session(QObject):
         if self.profile_always or ws.wants_profile(fit):
             self._start_profile(job_id)
         return None
+
+    def _complete(self, job_id: int):
+        """After a result was sent (worker thread): fit the models passed over by quicker ticks, newest first.
+
+        A newer request stops it between fits (that request's display has the ladder as it then stands);
+        otherwise the finished ladder is sent for the same request.
+        """
+        ws = self.workspace
+        if ws.ladder is None or not ws.ladder.pending:
+            return None
+
+        def newer():
+            return self._floor["results"] > job_id or self._closing
+
+        if not ws.complete(newer) or newer():
+            return None
+        from twofold.gui import present
+
+        return {"ladder": present.ladder_view(ws)}
 
     def _start_profile(self, job_id: int, force: bool = False) -> None:
         ws = self.workspace
