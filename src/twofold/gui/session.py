@@ -35,6 +35,9 @@ from twofold.gui.worker import CoreWorker, Job, log_exception, where_logged
 #: The displays a job can update; each has its own "newest request" mark.
 FACETS = ("study", "columns", "outcome", "results", "comparison", "history")
 
+#: Seconds the models passed over by quick ticks wait, after the newest is sent, before they are fitted.
+SHOW_FIRST_S = 0.15
+
 #: Risk threshold of the classification table until the user picks another (None: the model's event rate).
 DEFAULT_THRESHOLD = None
 
@@ -87,7 +90,10 @@ class Session(QObject):
         #: Request id of the results shown last, and of the assessment shown last (tests wait on them).
         self.last_results_id = 0
         self.last_assessment_id = 0
-        #: Risk threshold of the classification table (GUI side; the workspace keeps its own copy).
+        #: Seconds the models passed over by quick ticks wait, after the newest is sent, before they are fitted.
+SHOW_FIRST_S = 0.15
+
+#: Risk threshold of the classification table (GUI side; the workspace keeps its own copy).
         self.threshold = DEFAULT_THRESHOLD
         #: The predictors last asked for (GUI side).
         self.predictors: tuple = ()
@@ -510,6 +516,13 @@ class Session(QObject):
         def newer():
             return self._floor["results"] > job_id or self._closing
 
+        # First a moment for the window to show the newest results: fits now would hold the interpreter
+        # lock while it lays them out and paints them.
+        import time
+
+        until = time.monotonic() + SHOW_FIRST_S
+        while time.monotonic() < until and not newer():
+            time.sleep(0.01)
         if not ws.complete(newer) or newer():
             return None
         from twofold.gui import present
@@ -569,12 +582,14 @@ class Session(QObject):
         from concurrent.futures import TimeoutError as StillRunning
         from concurrent.futures.process import BrokenProcessPool
 
-        from twofold.render.assessed import Abandoned, assess_and_draw
+        from twofold.render.assessed import Abandoned, assess_and_draw_packed, pack, release
 
         pool = self._process_pool()
         if pool is not None:
             try:
-                future = pool.submit(assess_and_draw, fit, threshold, job_id)
+                packed, blocks = pack(fit)  # its large arrays by shared memory: the window keeps answering
+                future = pool.submit(assess_and_draw_packed, packed, threshold, job_id)
+                future.add_done_callback(lambda _: release(blocks))  # done, failed or withdrawn
                 while True:
                     try:
                         return future.result(timeout=0.05)
