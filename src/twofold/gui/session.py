@@ -90,10 +90,7 @@ class Session(QObject):
         #: Request id of the results shown last, and of the assessment shown last (tests wait on them).
         self.last_results_id = 0
         self.last_assessment_id = 0
-        #: Seconds the models passed over by quick ticks wait, after the newest is sent, before they are fitted.
-SHOW_FIRST_S = 0.15
-
-#: Risk threshold of the classification table (GUI side; the workspace keeps its own copy).
+        #: Risk threshold of the classification table (GUI side; the workspace keeps its own copy).
         self.threshold = DEFAULT_THRESHOLD
         #: The predictors last asked for (GUI side).
         self.predictors: tuple = ()
