@@ -37,6 +37,8 @@ FACETS = ("study", "columns", "outcome", "results", "comparison", "history")
 
 #: Seconds the models passed over by quick ticks wait, after the newest is sent, before they are fitted.
 SHOW_FIRST_S = 0.15
+#: ... and, at least, until this many seconds have passed since the last request.
+QUIET_S = 0.6
 
 #: Risk threshold of the classification table until the user picks another (None: the model's event rate).
 DEFAULT_THRESHOLD = None
@@ -79,6 +81,7 @@ class Session(QObject):
         self._worker = CoreWorker()
         self._worker.jobDone.connect(self._on_done)
         self._next_id = 0
+        self._last_request_at = 0.0    # time.monotonic() of the last request
         self._floor: dict[str, int] = defaultdict(int)
         self._pending: set[int] = set()
         self._busy = False
@@ -343,6 +346,9 @@ class Session(QObject):
         return known[1] if known is not None and known[0] is fit else None
 
     def _submit(self, kind, fn, facets, clears_queue=False, on_error=None, assess=False, coalesce=None) -> int:
+        import time
+
+        self._last_request_at = time.monotonic()
         self._next_id += 1
         job_id = self._next_id
         facets = tuple(facets) + ("history",)
@@ -517,7 +523,9 @@ class Session(QObject):
         # lock while it lays them out and paints them.
         import time
 
-        until = time.monotonic() + SHOW_FIRST_S
+        # ...and while the user is still ticking (ticks a moment apart), a fit started now would make the next
+        # tick wait for it: the models passed over are fitted once the ticks pause.
+        until = max(time.monotonic() + SHOW_FIRST_S, self._last_request_at + QUIET_S)
         while time.monotonic() < until and not newer():
             time.sleep(0.01)
         if not ws.complete(newer) or newer():
