@@ -222,8 +222,21 @@ def test_undo_past_fits_put_off_and_a_change_of_rows_keep_every_test_valid(ws):
     ws.set_predictors(["age", "sex", "discharge_destination"], defer=True)
     # A predictor with missing values shrinks the common rows: every model is refitted on the new rows.
     ws.set_predictors(["age", "sex", "discharge_destination", "comorbidity_score"])  # 217 cells missing
-    assert ws.ladder.pending == []
+    # Only the new model and the one it was built from are fitted at once; the others follow on the new rows.
+    assert [r.fitted for r in ws.ladder.rungs] == [False, False, True, True]
+    assert ws.complete() == 3 and ws.ladder.pending == []
     assert {len(r.fit.design.rows) for r in ws.ladder.rungs} == {len(ws.ladder.rows)}
+    eager = Workspace()
+    eager.open(READMISSION)
+    eager.set_outcome(OUTCOME)
+    for predictors in (["age"], ["age", "sex"], ["age", "sex", "discharge_destination"],
+                       ["age", "sex", "discharge_destination", "comorbidity_score"]):
+        eager.set_predictors(predictors)
+    assert ladder_numbers(ws) == ladder_numbers(eager)
+    for late_rung, eager_rung in zip(ws.ladder.rungs[1:], eager.ladder.rungs[1:]):
+        late_test, eager_test = late_rung.against_previous, eager_rung.against_previous
+        assert late_test.df == eager_test.df and late_test.g == pytest.approx(eager_test.g, rel=1e-7)
+        assert late_test.n_rows == len(ws.ladder.rows)
     ws.undo()  # back to the ladder before the rows changed: its models put off are fitted on their own rows
     assert len(ws.ladder.rungs) == 3
     full = len(ws.study.complete_rows(["age", "sex", "discharge_destination"]))

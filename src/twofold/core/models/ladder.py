@@ -28,8 +28,8 @@ class Deferred:
 
     _UNKNOWN = object()
 
-    def __init__(self, make, test):
-        self._make, self._test = make, test
+    def __init__(self, make, test=None):
+        self._make, self.test = make, test
         self.fit = None
         self._against = self._UNKNOWN
 
@@ -44,7 +44,8 @@ class Deferred:
 
     def test_now(self):
         if self._against is self._UNKNOWN:
-            self._against = self._test(self.fit_now())
+            fit = self.fit_now()
+            self._against = None if self.test is None else self.test(fit)
         return self._against
 
 
@@ -85,6 +86,10 @@ class Rung:
     @fit.setter
     def fit(self, fit) -> None:
         self._fit, self.deferred = fit, None
+
+    def put_off(self, deferred: Deferred) -> None:
+        """Replace the fit and the nested test by ones made when first read."""
+        self._fit, self._against, self.deferred = None, None, deferred
 
     @property
     def against_previous(self) -> LikelihoodRatioTest | None:
@@ -235,7 +240,7 @@ class Ladder:
                 "in a newly used predictor; every model in the ladder was refitted on the new common rows "
                 "so that their tests stay valid.",
             ))
-            self._refit_all(rows)
+            self._refit_all(rows, defer=True)
         self.rows = rows
         self.notices = notices
         rung = Rung(predictors, fit, previous=self.current)
@@ -269,7 +274,22 @@ class Ladder:
             made += 1
         return made
 
-    def _refit_all(self, rows: np.ndarray) -> None:
+    def _refit_all(self, rows: np.ndarray, defer: bool = False) -> None:
+        if defer:
+            # Each fit on the new rows is made when first read (the new model's nested test reads the one it
+            # was built from): the tick shows after two fits, and the others follow (:meth:`complete`).
+            import copy
+
+            for r in self.rungs:
+                start = r.fit if r.fitted else None
+                r.put_off(Deferred(lambda names=list(r.predictors), start=start:
+                                   self.study.fit(names, rows=rows, start=start)))
+            for r in self.rungs:
+                if r.previous is not None:
+                    before = copy.copy(self.rungs[r.previous])
+                    r.deferred.test = lambda fit, before=before, names=r.predictors: self._test(before,
+                                                                                               Rung(names, fit))
+            return
         fits = [self.study.fit(list(r.predictors), rows=rows, start=r.fit if r.fitted else None)
                 for r in self.rungs]
         for rung, fit in zip(self.rungs, fits):
