@@ -593,7 +593,11 @@ class Session(QObject):
         if pool is not None:
             try:
                 packed, blocks = pack(fit)  # its large arrays by shared memory: the window keeps answering
-                future = pool.submit(assess_and_draw_packed, packed, threshold, job_id)
+                try:
+                    future = pool.submit(assess_and_draw_packed, packed, threshold, job_id)
+                except BaseException:
+                    release(blocks)
+                    raise
                 future.add_done_callback(lambda _: release(blocks))  # done, failed or withdrawn
                 while True:
                     try:
