@@ -327,15 +327,19 @@ class Workspace:
         self.usefulness["compare_with"] = None  # named a model of the ladder just cleared
         return removed
 
-    def _add(self, predictors) -> None:
+    def _add(self, predictors, defer: bool = False) -> None:
         ladder = self.ladder
         parent = ladder.current
-        ladder.add(predictors)
+        ladder.add(predictors, defer=True) if defer else ladder.add(predictors)
         if parent is not None:
             self.parents[len(ladder.rungs) - 1] = parent
 
-    def set_predictors(self, predictors) -> Change:
-        """Fit the model with exactly these predictors as a new rung of the ladder (a tick or untick)."""
+    def set_predictors(self, predictors, defer: bool = False) -> Change:
+        """Fit the model with exactly these predictors as a new rung of the ladder (a tick or untick).
+
+        ``defer=True`` (a newer tick is already waiting) puts the fit off: the newer model is fitted and shown
+        first, and this one when it is first read or by :meth:`complete`.
+        """
         predictors = tuple(predictors)
 
         def run():
@@ -351,7 +355,7 @@ class Workspace:
             if current is None and not predictors:
                 return Change("No predictors are ticked.", frozenset())
             before = set(current.predictors) if current is not None else set()
-            self._add(predictors)
+            self._add(predictors, defer=defer)
             added = [p for p in predictors if p not in before]
             gone = [p for p in before if p not in set(predictors)]
             words = ([f"added {', '.join(added)}"] if added else []) + ([f"removed {', '.join(gone)}"] if gone else [])
@@ -515,6 +519,10 @@ class Workspace:
         change = Change("The bootstrap validation was kept with the analysis.", frozenset(("validation",)))
         self._changed(change)
         return change
+
+    def complete(self, stop=None) -> int:
+        """Make the fits of the ladder that were put off (newest first) until ``stop()`` is true; how many."""
+        return self.ladder.complete(stop) if self.ladder is not None else 0
 
     # ---- derived figures ---------------------------------------------------------------
     def fit_of(self, index: int):

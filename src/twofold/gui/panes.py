@@ -1289,12 +1289,22 @@ class LadderPane(QWidget):
         self._compared = None  # (index, predictors) of the two models whose comparison is shown
         session.resultsChanged.connect(self._on_results)
         session.comparisonReady.connect(self._on_comparison)
+        if hasattr(session, "ladderChanged"):
+            session.ladderChanged.connect(self._on_ladder)
 
     def _enable(self) -> None:
         n = self.model.rowCount()
         self.show_button.setEnabled(n > 0)
         for w in (self.first, self.second, self.compare_button):
             w.setEnabled(n > 1)
+
+    def _on_ladder(self, ladder) -> None:
+        """The same models, with those passed over by quicker ticks now fitted."""
+        if len(ladder.rows) == self.model.rowCount():
+            with QSignalBlocker(self.table.selectionModel()):
+                self.model.set_rows(ladder.rows)
+                if ladder.current is not None:
+                    self.table.selectRow(ladder.current)
 
     def _on_results(self, view) -> None:
         with QSignalBlocker(self.table.selectionModel()):

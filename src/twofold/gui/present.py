@@ -259,26 +259,35 @@ def nested_view(ws, parent: int, index: int) -> TestView:
     return TestView(title, text, reading, t.g, t.df, t.p_value)
 
 
+#: A ladder figure not worked out yet.
+PENDING = "being fitted\u2026"
+
+
 def ladder_view(ws) -> LadderView:
     ladder, parents, study, penalised = ws.ladder, ws.parents, ws.study, ws.penalised
     rows = []
     for k, rung in enumerate(ladder.rungs):
-        fit = rung.fit
+        # A model passed over by quicker ticks is fitted just after the newest is shown: it is not waited for.
+        fit = rung.fit if rung.fitted else None
         g = df = p = None
         parent = parents.get(k)
-        texts = {"n_params": str(fit.n_params), "log_likelihood": fmt_num(fit.llf, 2),
-                 "aic": fmt_num(fit.aic, 1), "g": "", "df": "", "p_value": ""}
+        texts = {"n_params": "", "log_likelihood": PENDING, "aic": "", "g": "", "df": "", "p_value": ""}
+        if fit is not None:
+            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2), aic=fmt_num(fit.aic, 1))
         change = "first model"
         if parent is not None:
             change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
-            test = ladder.nested(parent, k)
-            if test is not None:
+            test = ladder.nested(parent, k) if fit is not None and ladder.rungs[parent].fitted else PENDING
+            if test is PENDING:
+                texts.update(g=PENDING if fit is not None else "")
+            elif test is not None:
                 g, df, p = test.g, test.df, test.p_value
                 texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
             else:
                 texts.update(g="not nested")
         rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors, study), change,
-                              fit.n_params, fit.llf, fit.aic, g, df, p, texts, k == ladder.current))
+                              *((fit.n_params, fit.llf, fit.aic) if fit is not None else (None, None, None)),
+                              g, df, p, texts, k == ladder.current))
     n = len(ladder.rows) if ladder.rows is not None else 0
     notices = [x.message for x in ladder.notices]
     if penalised:

@@ -55,6 +55,10 @@ def open_settings() -> QSettings:
     return QSettings(str(folder / "settings.ini"), QSettings.Format.IniFormat)
 
 
+#: At the latest this long after the window is made, its worker starts (normally at the first paint).
+WORKER_START_MS = 200
+
+
 class MainWindow(QMainWindow):
     """The window.  ``session`` defaults to a new one; ``remember`` keeps a recent-files list."""
 
@@ -125,7 +129,21 @@ class MainWindow(QMainWindow):
         self._revision_seen = 0
         self.data_pane.openRequested.connect(self.open_dialog)
         self.data_pane.sampleRequested.connect(self._sample_menu_popup)
-        s.start()
+        # The worker imports pandas and the fitting library as it starts: it starts once the window is painted,
+        # so those imports do not compete with drawing the window for the interpreter (a window that is never
+        # shown starts it a moment later; a request made before then waits for it, in order).
+        self._worker_started = False
+        QTimer.singleShot(WORKER_START_MS, self._start_worker)
+
+    def paintEvent(self, event) -> None:
+        super().paintEvent(event)
+        if not self._worker_started:
+            QTimer.singleShot(0, self._start_worker)
+
+    def _start_worker(self) -> None:
+        if not self._worker_started:
+            self._worker_started = True
+            self.session.start()
 
     # ---- menus, toolbar, status ---------------------------------------------
     def _build_actions(self) -> None:

@@ -279,19 +279,13 @@ class Study:
             rows = self.complete_rows(predictors)
         return RowAccount(self.n_rows, int((~has_outcome).sum()), missing, len(rows))
 
-    def design(self, predictors, rows: np.ndarray | None = None, linear=()) -> Design:
-        """The design matrix of the named predictors on ``rows`` (default: their complete rows).
-
-        Predictors named in ``linear`` enter as straight lines even if a spline is set.
-        """
+    def check_predictors(self, predictors) -> list:
+        """The predictors' column names, once each, every interaction with both its parts; else ModelError."""
         predictors = [self.column(p) for p in predictors]
         if len(set(predictors)) != len(predictors):
             raise ModelError("A predictor is named twice; name each predictor once.")
-        if rows is None:
-            rows = self.complete_rows(predictors)
-        else:
-            if not self.complete_mask(predictors)[rows].all():
-                raise ModelError("Some of the rows asked for have missing values in these predictors.")
+        if self.outcome in predictors:
+            raise ColumnError(f"'{self.outcome}' is the outcome, so it cannot also be a predictor; untick it.")
         from twofold.core.models.terms import split_interaction
 
         for p in predictors:
@@ -299,6 +293,19 @@ class Study:
             if pair is not None and not set(pair) <= set(predictors):
                 raise ModelError(f"The interaction {p} needs both {pair[0]} and {pair[1]} in the model as well; "
                                  "tick them too.")
+        return predictors
+
+    def design(self, predictors, rows: np.ndarray | None = None, linear=()) -> Design:
+        """The design matrix of the named predictors on ``rows`` (default: their complete rows).
+
+        Predictors named in ``linear`` enter as straight lines even if a spline is set.
+        """
+        predictors = self.check_predictors(predictors)
+        if rows is None:
+            rows = self.complete_rows(predictors)
+        else:
+            if not self.complete_mask(predictors)[rows].all():
+                raise ModelError("Some of the rows asked for have missing values in these predictors.")
         return assemble([self.block(p, linear=p in linear) for p in predictors], self._require_outcome(), rows)
 
     def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False,

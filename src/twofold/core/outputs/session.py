@@ -73,7 +73,7 @@ import re
 from pathlib import Path
 
 from twofold.core.errors import ColumnError, DataFileError, Notice
-from twofold.core.outputs.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
+from twofold.core.outputs import DEFAULT_THRESHOLD, MAX_THRESHOLD
 
 FORMAT = "twofold-session"
 SCHEMA_VERSION = 1
