@@ -39,6 +39,7 @@ import numpy as np
 
 from twofold.core.errors import ModelError, Notice
 from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, TermTest, log_likelihood
+from twofold.core.models.modelling import TermLRTest
 
 _INF = float("inf")
 
@@ -385,6 +386,44 @@ class ImputedCopies:
         return PooledFit(fits, self.imputation, self.study.n_rows, int((~has_outcome).sum()), missing)
 
 
+def pooled_drop_one(copies: ImputedCopies, fit: PooledFit) -> list[dict]:
+    """Each predictor (with every interaction containing it) left out: D3 (D2 for penalised fits) beside D1.
+
+    The pooled counterpart of :func:`~twofold.core.models.study.drop_one_tests`; ``g`` and ``wald`` are the
+    statistics times their df, on the chi-square scale, and ``prefer_lr`` follows the same rule.
+    """
+    from twofold.core.models.terms import total_effects, total_label
+    from twofold.core.outputs.summary import clean_number as num
+
+    within = total_effects(fit.design.predictors)
+    firth = _penalised(fit.fits[0])
+    out = []
+    for column in fit.design.predictors:
+        idx = fit.total_index[column]
+        if not len(idx):
+            continue
+        gone = {column, *within.get(column, ())}
+        try:
+            lr = pooled_nested(copies.fit([p for p in fit.design.predictors if p not in gone], firth=firth), fit)
+        except (ModelError, np.linalg.LinAlgError):
+            lr = None
+        stat, _, den = d1(fit.pooled.estimate[idx], fit.pooled.within[np.ix_(idx, idx)],
+                          fit.pooled.between[np.ix_(idx, idx)], fit.m)
+        wald_p = f_sf(stat, len(idx), den)
+        p = float("nan") if lr is None else lr.p_value
+        available = lr is not None and math.isfinite(lr.g)
+        disagree = available and (p < 0.05) != (wald_p < 0.05)
+        much_lower = available and lr.g > 3.841 and stat * len(idx) < 0.5 * lr.g
+        out.append({"column": column, "label": total_label(column, within.get(column, ())),
+                    "includes": list(within.get(column, ())), "g": num(lr.g if lr else None), "df": int(len(idx)),
+                    "p_value": num(p), "kind": lr.kind if lr else None,
+                    "df_denominator": num(lr.df_denominator) if lr else None,
+                    "wald": num(stat * len(idx)), "wald_p_value": num(wald_p), "wald_kind": "D1",
+                    "wald_df_denominator": num(den), "prefer_lr": bool(disagree or much_lower),
+                    "available": bool(available)})
+    return out
+
+
 def pooled_assessment(fit: PooledFit) -> dict:
     """The ``assessment`` object for pooled fits: each copy's figures under the pooled coefficients, pooled.
 
@@ -442,5 +481,37 @@ def pooled_assessment(fit: PooledFit) -> dict:
         "pooled_note": (f"Pooled over {fit.m} imputed copies: each copy's figures under the pooled coefficients; the "
                         "area under the ROC curve pooled on the logit scale (Rubin's rules) and taken back, "
                         "calibration by Rubin's rules, Brier scores and R-squared averaged. Influence, variance "
-                        "inflation and the Hosmer-Lemeshow test are given for complete rows only."),
+                        "inflation, the sample size and the Hosmer-Lemeshow test are not pooled and not shown here."),
     }
+
+
+
+@dataclass(frozen=True)
+class PooledTermLRTest(TermLRTest):
+    """A curve or interaction test pooled over the copies (``statistic`` on F(df, df_denominator))."""
+
+    statistic: float = float("nan")
+    df_denominator: float = _INF
+    kind: str = "D3"
+
+
+def _term_test(term, test: PooledTest, knots=()):
+    return PooledTermLRTest(term, test.g, test.df, test.p_value, tuple(knots), statistic=test.statistic,
+                            df_denominator=test.df_denominator, kind=test.kind)
+
+
+def pooled_nonlinearity_tests(copies: ImputedCopies, fit: PooledFit) -> list:
+    """Each curve against a straight line, pooled over the copies (D3, or D2 for penalised fits)."""
+    firth = _penalised(fit.fits[0])
+    return [_term_test(b.column, pooled_nested(copies.fit(list(fit.design.predictors), firth=firth,
+                                                          linear={b.column}), fit), b.knots)
+            for b in fit.design.blocks if b.kind == "spline"]
+
+
+def pooled_interaction_tests(copies: ImputedCopies, fit: PooledFit) -> list:
+    """Each interaction: the model with it against the model without it, pooled over the copies."""
+    firth = _penalised(fit.fits[0])
+    names = list(fit.design.predictors)
+    return [_term_test(n, pooled_nested(copies.fit([p for p in names if p != n], firth=firth), fit))
+            for n in names if ":" in n]
+
