@@ -310,6 +310,9 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         if term not in predictors:
             predictors.append(term)
     if spec.impute is not None:
+        for option, words in NOT_POOLED.items():
+            if getattr(spec, option):
+                raise ModelError(f"{words} cannot be combined with imputation; leave one of the two out.")
         return run_imputed_analysis(spec, study, event, predictors)
     nested = smaller_fit = None
     smaller = None
@@ -416,9 +419,6 @@ def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=No
     )
     from twofold.core.outputs.summary import add_study_records, fit_record
 
-    for option, words in NOT_POOLED.items():
-        if getattr(spec, option):
-            raise ModelError(f"{words} cannot be combined with imputation; leave one of the two out.")
     smaller = None if spec.smaller is None else [study.column(p) for p in spec.smaller]
     everything = list(dict.fromkeys(predictors + (smaller or []) + [study.column(c) for c in spec.rows_complete_in]))
     if smaller is not None and not set(smaller) <= set(predictors):

@@ -139,6 +139,9 @@ class Workspace:
         self._saved_revision = 0
         #: The last change made (what the window says after an operation).
         self.last_change = Change("")
+        #: Multiple imputation in force: {"m", "seed", "auxiliary", "anyway"}, or None (complete rows only).
+        self.imputation: dict | None = None
+        self._copies = None               # (key, ImputedCopies) made for the settings and columns in force
 
     # ---- reading -----------------------------------------------------------------
     @property
@@ -180,7 +183,7 @@ class Workspace:
     # ---- the machinery of operations -------------------------------------------------
     def _memento(self) -> dict:
         return {"study": self.study.settings(), "ladder": self.ladder.state(), "parents": dict(self.parents),
-                "awaiting": self.awaiting_event, "penalised": self.penalised}
+                "awaiting": self.awaiting_event, "penalised": self.penalised, "imputation": self.imputation}
 
     def _put_back(self, m: dict) -> None:
         self.study.restore_settings(m["study"])
@@ -188,6 +191,7 @@ class Workspace:
         self.parents = dict(m["parents"])
         self.awaiting_event = m["awaiting"]
         self.penalised = m["penalised"]
+        self.imputation = m.get("imputation")
 
     def _operate(self, label: str, fn, undoable: bool = True) -> Change:
         """Run ``fn`` (returning a Change); on any failure put everything back and re-raise."""
@@ -586,6 +590,51 @@ class Workspace:
             return v  # restored from a session: the same model fitted again
         return None
 
+    # ---- multiple imputation ----------------------------------------------------------------
+    def set_imputation(self, m: int | None, seed: int | None = None, auxiliary=(), anyway: bool = False,
+                       progress=None) -> Change:
+        """Fill in missing predictor values by multiple imputation (``m`` copies), or go back to complete rows (None).
+
+        The copies are made now (``progress(fraction)`` may return False to cancel), so a refusal (a column
+        missing in more than half the rows without ``anyway``, an auxiliary column that cannot be used, an
+        imputation model that fails) leaves the analysis as it was.  Without a seed, one is drawn and kept.
+        """
+        import secrets
+
+        settings = None
+        if m is not None:
+            settings = {"m": int(m), "seed": secrets.randbelow(2 ** 31) if seed is None else int(seed),
+                        "auxiliary": [str(a) for a in auxiliary], "anyway": bool(anyway)}
+
+        def run():
+            self.imputation = settings
+            if settings is not None and self.has_model:
+                self.imputed_copies(progress)
+            if settings is None:
+                return Change("Incomplete rows are left out.", frozenset(("ladder",)))
+            return Change(f"Missing values are filled in by multiple imputation ({settings['m']} copies, seed "
+                          f"{settings['seed']}).", frozenset(("ladder",)))
+
+        return self._operate("missing values", run)
+
+    def imputed_copies(self, progress=None):
+        """The imputed copies for the settings in force and every column of the ladder (made once, then kept)."""
+        from twofold.core.analysis import columns_of
+        from twofold.core.models.imputation import impute
+        from twofold.core.models.pooling import ImputedCopies
+
+        if not self.imputation:
+            raise ModelError("Multiple imputation is not switched on; choose it under missing values first.")
+        study = self.study
+        columns = columns_of(study, self.ladder.used_predictors)
+        s = self.imputation
+        key = (tuple(columns), s["m"], s["seed"], tuple(s["auxiliary"]), s["anyway"], id(study.frame),
+               tuple((n, c.role) for n, c in study.columns.items()), study.outcome, study.event)
+        if self._copies is None or self._copies[0] != key:
+            made = impute(study, columns, s["m"], s["seed"], s["auxiliary"], s["anyway"], progress=progress)
+            self._copies = (key, ImputedCopies(study, made))
+        return self._copies[1]
+
     # ---- the whole analysis as a record -----------------------------------------------------
     def spec(self):
         """The :class:`~twofold.core.analysis.AnalysisSpec` of the model shown (for sessions and re-runs)."""
@@ -601,8 +650,11 @@ class Workspace:
             event=study.event, roles=roles, sheet=study.table.sheet, firth=is_penalised(fit),
             profile_ci=self.wants_profile(fit), threshold=self.threshold_for(fit), splines=dict(study.splines),
             missing={k: list(v) for k, v in study.missing_values.items()},
-            validate=None if v is None else v.repetitions, seed=None if v is None else v.seed,
-            rows_complete_in=columns_of(study, self.ladder.used_predictors))
+            validate=None if v is None or self.imputation else v.repetitions,
+            seed=self.imputation["seed"] if self.imputation else None if v is None else v.seed,
+            rows_complete_in=columns_of(study, self.ladder.used_predictors),
+            **({} if not self.imputation else {"impute": self.imputation["m"], "auxiliary": list(self.imputation[
+                "auxiliary"]), "impute_anyway": self.imputation["anyway"]}))
 
     def result(self, with_assessment: bool = True, assessment=None, with_record: bool = True):
         """The full analysis of the model shown, exactly as shown: fit, tests, assessment, profile, validation.
@@ -618,6 +670,11 @@ class Workspace:
         from twofold.core.outputs.summary import add_study_records, fit_record
 
         spec = self.spec()
+        if self.imputation:
+            from twofold.core.analysis import run_imputed_analysis
+
+            return run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
+                                        copies=self.imputed_copies())
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
             assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))
@@ -691,6 +748,10 @@ class Workspace:
             ws.threshold = float(session["threshold"])
         ws.report_options = dict(session["report"])
         ws.profile_always = bool(session["profile_ci"]) and not profile_auto(ws.shown_fit())
+        if session.get("impute"):
+            ws.imputation = {"m": int(session["impute"]), "seed": session["seed"],
+                             "auxiliary": list(session.get("auxiliary") or []),
+                             "anyway": bool(session.get("impute_anyway"))}
         saved = session.get("validation_result")
         if saved and session.get("validate"):
             from twofold.core.models.modelling import Validation

@@ -197,12 +197,12 @@ def _prepare(study, names, rows) -> list[_Column]:
 def check_missing(study, names, rows, allow_large: bool = False) -> None:
     """Refuse, by name, a predictor missing in every row with an outcome, and a large share unless confirmed."""
     frame = study.frame
-    for name in names:
-        missing = frame[name].iloc[rows].isna().to_numpy()
-        share = float(missing.mean()) if len(missing) else 0.0
+    shares = {name: float(frame[name].iloc[rows].isna().mean()) if len(rows) else 0.0 for name in names}
+    for name, share in shares.items():
         if share == 1.0:
             raise ColumnError(f"'{name}' is missing in every row that has an outcome, so it cannot be imputed; "
                               "leave it out of the model.")
+    for name, share in shares.items():
         if share > LARGE_MISSING_SHARE and not allow_large:
             raise ColumnError(f"'{name}' is missing in {100 * share:.0f}% of the rows that have an outcome, more "
                               f"than the {100 * LARGE_MISSING_SHARE:.0f}% Twofold imputes without asking; confirm "
@@ -343,8 +343,7 @@ def impute(study, predictors, m: int | None = None, seed: int | None = None, aux
     rows = np.flatnonzero(~np.isnan(y_all))
     own, extra = imputation_columns(study, predictors, auxiliary)
     names = own + extra
-    check_missing(study, own, rows, allow_large)
-    check_missing(study, extra, rows, allow_large)
+    check_missing(study, own + extra, rows, allow_large)
     columns = _prepare(study, names, rows)
     incomplete = np.zeros(len(rows), dtype=bool)
     for c in columns:
