@@ -4,7 +4,7 @@ m imputed copies are made once per analysis and reused by every model of
 the ladder, so nested tests compare models on the same imputed data.  Each
 copy comes from its own chain (van Buuren 2018, Flexible Imputation of
 Missing Data, 2nd ed., section 4.5): missing cells start as random draws
-from the column's observed cells, then for ``ITERATIONS`` cycles every
+from the column's observed cells, then for ``ITERATIONS`` (5) cycles every
 incomplete column is imputed from all the others in turn, by
 
 * predictive mean matching for numbers (van Buuren 2018, algorithm 3.3:
@@ -28,14 +28,16 @@ formulas and cannot impute two-valued or group columns by their own models.
 from __future__ import annotations
 
 import math
+import threading
 from dataclasses import dataclass
 
 import numpy as np
 
 from twofold.core.errors import ColumnError, ModelError, TwofoldError
 
-#: Cycles of the chained equations per imputed copy (van Buuren 2018 section 6.5: 5 to 20 usually suffice).
-ITERATIONS = 10
+#: Cycles of the chained equations per imputed copy: the default of van Buuren's mice (maxit = 5); van Buuren
+#: (2018, section 6.5.2) finds 5 to 10 usually enough (value from memory).
+ITERATIONS = 5
 
 #: Donors among which predictive mean matching draws (the default of van Buuren's mice, d = 5).
 DONORS = 5
@@ -254,8 +256,12 @@ def _fit_failed(name: str) -> ModelError:
                       "an auxiliary column out, or leave incomplete rows out instead.")
 
 
-def _draw_logistic(name, X, codes, miss, levels, rng) -> np.ndarray:
-    """Logistic (two groups) or multinomial draw (van Buuren 2018, algorithm 3.4 and its multinomial analogue)."""
+def _draw_logistic(name, X, codes, miss, levels, rng, start=None) -> tuple[np.ndarray, np.ndarray]:
+    """Logistic (two groups) or multinomial draw (van Buuren 2018, algorithm 3.4 and its multinomial analogue).
+
+    Returns the drawn values and the estimates, which start the same column's fit in the next cycle (the
+    column changes little between cycles, so Newton then needs a step or two).
+    """
     import warnings
 
     from scipy.special import softmax
@@ -265,10 +271,10 @@ def _draw_logistic(name, X, codes, miss, levels, rng) -> np.ndarray:
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
         try:
-            if len(levels) == 2:
-                res = Logit(yo.astype(float), Xo, check_rank=False).fit(method="newton", disp=0, maxiter=50)
-            else:
-                res = MNLogit(yo, Xo, check_rank=False).fit(method="newton", disp=0, maxiter=50)
+            model = Logit(yo.astype(float), Xo, check_rank=False) if len(levels) == 2 else \
+                MNLogit(yo, Xo, check_rank=False)
+            # A tolerance of 1e-6 on the steps: far below the spread of the draw that follows.
+            res = model.fit(method="newton", disp=0, maxiter=50, tol=1e-6, start_params=start)
             params = np.asarray(res.params, dtype=float)
             cov = np.asarray(res.cov_params(), dtype=float)
         except (np.linalg.LinAlgError, ValueError, FloatingPointError):
@@ -283,11 +289,11 @@ def _draw_logistic(name, X, codes, miss, levels, rng) -> np.ndarray:
     draw = (flat + chol @ rng.standard_normal(len(flat))).reshape(params.shape, order="F")
     if len(levels) == 2:
         p1 = 1.0 / (1.0 + np.exp(-(Xm @ draw)))
-        return (rng.random(len(p1)) < p1).astype(float)
+        return (rng.random(len(p1)) < p1).astype(float), flat
     eta = np.column_stack([np.zeros(len(Xm)), Xm @ draw])
     prob = softmax(eta, axis=1)
     u = rng.random(len(Xm))[:, None]
-    return np.minimum((np.cumsum(prob, axis=1) < u).sum(axis=1), len(levels) - 1).astype(float)
+    return np.minimum((np.cumsum(prob, axis=1) < u).sum(axis=1), len(levels) - 1).astype(float), flat
 
 
 def _chain(columns: list[_Column], y: np.ndarray, rng, tick) -> list[np.ndarray]:
@@ -298,6 +304,7 @@ def _chain(columns: list[_Column], y: np.ndarray, rng, tick) -> list[np.ndarray]
             observed = c.values[~c.missing]
             c.values[c.missing] = rng.choice(observed, int(c.missing.sum()))
     order = sorted((i for i, c in enumerate(state) if c.missing.any()), key=lambda i: state[i].missing.sum())
+    starts: dict = {}
     # With one incomplete column its imputation model never changes, so one cycle is the whole chain.
     for _ in range(ITERATIONS if len(order) > 1 else 1):
         feats = [_scaled(c) for c in state]
@@ -307,7 +314,8 @@ def _chain(columns: list[_Column], y: np.ndarray, rng, tick) -> list[np.ndarray]
             if c.kind == "number":
                 c.values[c.missing] = _draw_pmm(X, c.values, c.missing, rng)
             else:
-                c.values[c.missing] = _draw_logistic(c.name, X, c.values, c.missing, c.levels, rng)
+                c.values[c.missing], starts[i] = _draw_logistic(c.name, X, c.values, c.missing, c.levels, rng,
+                                                                starts.get(i))
             feats[i] = _scaled(c)
         tick()
     return [state[i].values[state[i].missing] for i in range(len(state))]
@@ -362,15 +370,18 @@ def impute(study, predictors, m: int | None = None, seed: int | None = None, aux
     done = [0]
     total = m * (ITERATIONS if len(methods) > 1 else 1)
 
+    lock = threading.Lock()  # a caller's progress may be shared between threads
+
     def tick():
-        done[0] += 1
-        if progress is not None and progress(done[0] / total) is False:
-            raise ImputationCancelled("Making the imputed copies was stopped; nothing was changed.")
+        with lock:
+            done[0] += 1
+            if progress is not None and progress(done[0] / total) is False:
+                raise ImputationCancelled("Making the imputed copies was stopped; nothing was changed.")
 
     draws = {c.name: [] for c in columns if c.missing.any()}
     if methods:
-        for j in range(m):
-            values = _chain(columns, y, np.random.default_rng(seeds[j]), tick)
+        chains = [_chain(columns, y, np.random.default_rng(seeds[j]), tick) for j in range(m)]
+        for values in chains:
             for c, v in zip(columns, values):
                 if c.name in draws:
                     draws[c.name].append(v if c.kind == "number" else np.array(c.levels, dtype=object)[v.astype(int)])

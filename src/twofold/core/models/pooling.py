@@ -318,6 +318,11 @@ class PooledFit(LogisticFit):
         return np.array([log_likelihood(f.design.y, f.used_X @ params) for f in self.fits])
 
     @cached_property
+    def llf_at_pooled(self) -> np.ndarray:
+        """Each copy's log-likelihood at the pooled coefficients (read by every D3 test of this model)."""
+        return self.log_likelihoods_at(self.params)
+
+    @cached_property
     def overall(self) -> PooledTest:
         """Against the constant model: D3 (D2 for penalised fits)."""
         k = self.n_params - 1
@@ -329,9 +334,11 @@ class PooledFit(LogisticFit):
         rate = float(y.mean())
         intercept = math.log(rate / (1.0 - rate))
         null = [f.null_llf for f in self.fits]
-        null_pooled = [log_likelihood(f.design.y, np.full(len(f.design.y), intercept)) for f in self.fits]
+        # The outcome is the same in every copy, so the constant model's estimate and likelihood are too.
+        n1, n = float(y.sum()), len(y)
+        null_pooled = [n1 * intercept - n * float(np.logaddexp(0.0, intercept))] * self.m
         own = [f.llf for f in self.fits]
-        return make_test("D3", d3(own, null, self.log_likelihoods_at(self.params), null_pooled, k), k,
+        return make_test("D3", d3(own, null, self.llf_at_pooled, null_pooled, k), k,
                          n_rows=self.n_used)
 
 
@@ -350,7 +357,7 @@ def pooled_nested(smaller: PooledFit, larger: PooledFit) -> PooledTest:
     if _penalised(larger.fits[0]):
         return make_test("D2", d2([t.g for t in tests], k), k, added, larger.n_used)
     return make_test("D3", d3([f.llf for f in larger.fits], [f.llf for f in smaller.fits],
-                              larger.log_likelihoods_at(larger.params), smaller.log_likelihoods_at(smaller.params),
+                              larger.llf_at_pooled, smaller.llf_at_pooled,
                               k), k, added, larger.n_used)
 
 
