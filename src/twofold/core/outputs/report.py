@@ -306,6 +306,9 @@ def _involves(name: str, withheld) -> bool:
     return name in withheld or any(part in withheld for part in str(name).split(":"))
 
 
+involves = _involves  # the same rule, for the report's missing-data section
+
+
 #: Text that looks like a date (year first or last, with - / or . between).
 _DATE_TEXT = re.compile(r"^\s*(\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4})([ T]\d{1,2}:\d{2}(:\d{2})?)?\s*$")
 

@@ -66,7 +66,7 @@ def _patterns(study, columns, rows) -> tuple[list[str], list[tuple[tuple, int]]]
 
 def missing_data_section(rep, result, threshold: int, check: ModelCheck, complete, complete_check) -> None:
     """Missing values and multiple imputation: pattern, method, m, pooled tests, complete rows beside pooled."""
-    from twofold.core.outputs.report import SEE_PRIVACY, WITHHELD, Heading, Para, Table, _involves
+    from twofold.core.outputs.report import SEE_PRIVACY, WITHHELD, Heading, Para, Table, involves
 
     record = result.record
     imp = record["imputation"]
@@ -94,7 +94,7 @@ def missing_data_section(rep, result, threshold: int, check: ModelCheck, complet
                       "Auxiliary columns (used only to impute): " + (", ".join(imp["auxiliary"]) or "none") + "."))
     pooled = [("The model against the event rate alone", record.get("overall"))]
     pooled += [(f"{t.get('label', t['column'])}, all its coefficients", t) for t in record.get("term_tests") or []
-               if not _involves(t["column"], check.withheld)]
+               if not involves(t["column"], check.withheld)]
     if record.get("nested"):
         pooled.append(("The smaller model against this one", record["nested"]))
     rows = [[what, POOLED_TEST_NAMES.get(t.get("kind"), ""), fmt_num(t.get("statistic"), 2), str(t["df"]),
@@ -113,7 +113,7 @@ def missing_data_section(rep, result, threshold: int, check: ModelCheck, complet
     by_label = {t["label"]: t for t in cc["terms"]}
     rows = []
     for t in record["terms"]:
-        if _involves(t["column"], check.withheld):
+        if involves(t["column"], check.withheld):
             rows.append([t["label"], WITHHELD, WITHHELD, ""])
             continue
         c = by_label.get(t["label"])
