@@ -188,3 +188,21 @@ def test_older_session_without_the_settings_still_opens(pooled, tmp_path, capsys
     bad.write_text(json.dumps(session))
     code, _, err = run(capsys, outputs.run_rerun, bad, "--json", "-")
     assert code == 2 and "'impute'" in err
+
+
+def test_predict_from_an_imputed_session_applies_the_pooled_coefficients(pooled, capsys):
+    from scipy.special import expit
+
+    folder, out = pooled
+    code, text, err = run(capsys, outputs.run_predict, folder / "s.json", "--value", "age=70", "--value", "sex=M",
+                          "--value", "comorbidity_score=2", "--value", "lives_alone=yes", "--value",
+                          "discharge_destination=care_home", "--json", "-")
+    assert code == 0, err
+    coef = {(t["column"], t["level"]): t["estimate"] for t in out["terms"]}
+    # Rubin's pooled coefficients applied by hand to the record.
+    lp = (out["intercept"]["estimate"] + 70 * coef[("age", None)] + coef[("sex", "M")]
+          + 2 * coef[("comorbidity_score", None)] + coef[("lives_alone", "yes")]
+          + coef[("discharge_destination", "care_home")])
+    answer = json.loads(text)
+    assert answer["linear_predictor"] == pytest.approx(lp, rel=1e-9)
+    assert answer["probability"] == pytest.approx(float(expit(lp)), rel=1e-9)

@@ -251,7 +251,9 @@ class PooledFit(LogisticFit):
         super().__init__(first.design, self.pooled.estimate, self.pooled.total, float(np.mean([f.llf for f in fits])),
                          all(f.converged for f in fits), max(f.iterations for f in fits), first.kept, first.dropped,
                          notices)
-        self.method = first.method
+        #: Said wherever the method is (JSON, text, report, tables, the saved model): "maximum likelihood,
+        #: pooled over 20 imputed copies".
+        self.method = f"{first.method}, pooled over {self.m} imputed copies"
         self.account = RowAccount(rows_read, missing_outcome, dict(missing_by_column), first.n_used)
         if _penalised(first):
             self.penalized_llf = float(np.mean([f.penalized_llf for f in fits]))
