@@ -206,3 +206,16 @@ def test_predict_from_an_imputed_session_applies_the_pooled_coefficients(pooled,
     answer = json.loads(text)
     assert answer["linear_predictor"] == pytest.approx(lp, rel=1e-9)
     assert answer["probability"] == pytest.approx(float(expit(lp)), rel=1e-9)
+
+
+def test_curves_interactions_and_the_decision_curve_are_pooled(capsys):
+    out = fit_json(capsys, *BASE[:3], "--predictor", "age", "sex", "comorbidity_score", "--spline", "age:4",
+                   "--interaction", "comorbidity_score:sex", "--impute", "3", "--seed", "4",
+                   "--net-benefit", "0.1:0.3:0.1", "--subgroups", "sex")
+    (curve,), (cross,) = out["nonlinearity"], out["interaction_tests"]
+    assert curve["kind"] == cross["kind"] == "D3" and curve["df"] == 2 and cross["df"] == 1
+    assert curve["g"] == pytest.approx(curve["statistic"] * curve["df"])
+    assert len(out["net_benefit"]) == 3 and [s["group"] for s in out["subgroups"]] == ["F", "M"]
+    code, text, err = run(capsys, main, "fit", *BASE[:3], "--predictor", "age", "comorbidity_score",
+                          "--spline", "age:3", "--impute", "3", "--seed", "4")
+    assert code == 0 and "curve against a straight line, on the same rows: Pooled likelihood-ratio test (D3" in text

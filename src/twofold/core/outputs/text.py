@@ -373,6 +373,13 @@ def interaction_reading(a: str, b: str, p) -> str:
             else f"The data do not clearly show the effect of {a} differing with {b}.")
 
 
+def _test_figures(t: dict) -> str:
+    """"G = 2.26 on 2 degrees of freedom, p-value 0.322.", or a pooled test's figures with its kind."""
+    if "df_denominator" in t:
+        return pooled_test_text(t) + "."
+    return f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}."
+
+
 def _shape_lines(record: dict, test_name: str) -> list[str]:
     from twofold.core.models.terms import TIMES
 
@@ -380,14 +387,13 @@ def _shape_lines(record: dict, test_name: str) -> list[str]:
     for t in record.get("nonlinearity") or []:
         knots = ", ".join(f"{v:g}" for v in t["knots"])
         out += ["", f"Is the effect of {t['column']} curved? (curve with {len(t['knots'])} knots, at {knots})",
-                f"  {test_name} test of the curve against a straight line, on the same rows: "
-                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                f"  {test_name} test of the curve against a straight line, on the same rows: " + _test_figures(t),
                 "  " + curve_reading(t["column"], t["p_value"])]
     for t in record.get("interaction_tests") or []:
         a, _, b = t["term"].partition(":")
         out += ["", f"Does the effect of {a} differ with {b}?",
                 f"  {test_name} test of the model with {a} {TIMES} {b} against the model without it: "
-                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                + _test_figures(t),
                 "  " + interaction_reading(a, b, t["p_value"])]
     return out
 
