@@ -55,3 +55,15 @@ def test_small_pattern_and_small_incomplete_count_are_not_printed(tmp_path):
     complete = int(frame[["age", "comorbidity_score", "lives_alone"]].notna().all(axis=1).sum())
     assert f"{complete:,}" not in text  # with the 800 rows used it would give away the 4 incomplete ones
     assert "Not described" in text
+
+
+def test_warnings_say_what_imputation_leaves_out(tmp_path):
+    frame = pd.read_csv(READMIT)
+    frame.loc[frame.index[:31], "readmitted_30d"] = np.nan
+    path = tmp_path / "some_without_outcome.csv"
+    frame.to_csv(path, index=False)
+    result, rep = imputed_report(path, 10, splines={"age": 3})
+    text = rep.text()
+    assert "31 rows were left out (31 with no outcome); an outcome is never imputed." in text
+    assert "complete rows only." not in text.split("The records")[0]
+    assert "pulled towards none" in text  # the imputation model has no curves (White, Royston & Wood 2011)

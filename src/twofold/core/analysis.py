@@ -440,6 +440,16 @@ def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=No
         fit = copies.fit(predictors, firth=spec.firth)
     for n in study.table.notices:
         fit.notices.insert(0, n)
+    shaped = [p for p in predictors if ":" in p or p in study.splines]
+    if shaped and imputation.cells_imputed:
+        from twofold.core.errors import Notice
+
+        # White, Royston & Wood (2011, section 6): an imputation model without the analysis model's curves and
+        # interactions pulls them towards none.
+        fit.notices.append(Notice("imputation_model", "Each column is imputed from the others as straight lines "
+                                  "without interactions, so the curves and interactions of this model ("
+                                  + ", ".join(shaped) + ") are pulled towards none in the imputed values; read "
+                                  "them with care, beside the complete rows.", tuple(shaped)))
     record = fit_record(fit, study.outcome, event, nested, smaller)
     record["assessment"] = pooled_assessment(fit)
     record["assessment"]["drop_one"] = pooled_drop_one(copies, fit)

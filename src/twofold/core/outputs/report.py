@@ -154,7 +154,8 @@ REDACTED = "[not shown]"
 #: Codes of warnings whose messages Twofold writes from column names and its own figures only.
 MODEL_CODES = frozenset({"separation", "not_converged", "collinear", "few_events", "profile", "drop_one",
                          "calibration", "hosmer_lemeshow", "pseudo_r2", "influence", "sample_size",
-                         "extrapolation", "column_missing", "auc_se_unavailable", "auc_ci_unavailable"})
+                         "extrapolation", "column_missing", "auc_se_unavailable", "auc_ci_unavailable",
+                         "imputation_model"})
 
 #: The report's own words for what reading the file noticed: the readers' messages may quote cells
 #: of the data (a title line, an error value), so none of them is printed.
@@ -466,9 +467,10 @@ def report_notices(notices, record: dict, threshold: int, check=None, reading_co
                 parts = [f"{_how_many(record['rows_missing_outcome'], threshold)} with no outcome"] \
                     if record["rows_missing_outcome"] else []
                 parts += [f"{_how_many(k, threshold)} missing '{c}'"
-                          for c, k in record["missing_by_column"].items() if k]
+                          for c, k in record["missing_by_column"].items() if k and not record.get("imputation")]
                 msg = (f"{_how_many(left, threshold)} rows were left out ({'; '.join(parts) or 'missing values'}); "
-                       "results describe the complete rows only.")
+                       + ("an outcome is never imputed." if record.get("imputation") else
+                          "results describe the complete rows only."))
         elif code in reading_codes or code in READING_WORDS or code not in MODEL_CODES:
             cols = [s for s in subjects if isinstance(s, str)]
             words = READING_WORDS.get(code)
