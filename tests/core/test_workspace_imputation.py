@@ -55,3 +55,12 @@ def test_refusal_leaves_the_analysis_unchanged(ws):
         ws.set_imputation(3, auxiliary=["admission_id"])
     assert ws.imputation is None
     assert ws.result().record["terms"] == before["terms"]
+
+
+def test_results_pane_says_which_results_it_shows(ws):
+    from twofold.gui.present import results_view
+
+    assert "imputed" not in results_view(ws).counts_text
+    ws.set_imputation(3, seed=1)
+    assert "shown here: complete rows only; reports, exports and the session pool over 3 imputed copies" in \
+        results_view(ws).counts_text

@@ -374,6 +374,9 @@ def results_view(ws) -> ResultsView | None:
                 if math.isfinite(epp) else "no coefficients besides the intercept")
     counts = (f"Rows used: {fit.n_used:,} of {rows_read:,}  \u00b7  with the event: {fit.events:,} "
               f"({share:.1f}%)  \u00b7  {epp_text}")
+    if ws.imputation:  # which results these are, when the analysis fills in missing values
+        counts += (f"  \u00b7  shown here: complete rows only; reports, exports and the session pool over "
+                   f"{ws.imputation['m']} imputed copies")
     event_label = value_label(study.event)
     title = f"Model {index + 1} of {len(ladder.rungs)}: the odds that {study.outcome} = {event_label}"
     parent = parents.get(index)
