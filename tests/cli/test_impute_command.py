@@ -183,11 +183,11 @@ def test_older_session_without_the_settings_still_opens(pooled, tmp_path, capsys
     code, out, err = run(capsys, outputs.run_rerun, old, "--json", "-")
     assert code == 0, err
     assert "imputation" not in json.loads(out)
-    session["impute"] = 1
     bad = tmp_path / "bad.json"
-    bad.write_text(json.dumps(session))
-    code, _, err = run(capsys, outputs.run_rerun, bad, "--json", "-")
-    assert code == 2 and "'impute'" in err
+    for key, value in (("impute", 1), ("impute", "5"), ("auxiliary", "lab"), ("impute_anyway", "yes")):
+        bad.write_text(json.dumps({**session, key: value}))
+        code, _, err = run(capsys, outputs.run_rerun, bad, "--json", "-")
+        assert code == 2 and f"'{key}'" in err and len(err.strip().splitlines()) == 1
 
 
 def test_predict_from_an_imputed_session_applies_the_pooled_coefficients(pooled, capsys):

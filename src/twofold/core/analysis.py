@@ -401,7 +401,8 @@ def complete_rows_summary(fit, overall=None) -> dict:
                         "p_value": clean_number(fit.overall.p_value)}}
 
 
-def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=None) -> AnalysisResult:
+def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=None,
+                         model_only: bool = False) -> AnalysisResult:
     """The analysis of :func:`run_analysis` on m imputed copies, pooled (``spec.impute`` copies, ``spec.seed``).
 
     The copies are made once (every predictor of the analysis, the smaller model's and the columns of
@@ -410,7 +411,8 @@ def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=No
     ``imputation`` (settings, methods, counts and the complete-rows fit for comparison).  Without a seed,
     one is drawn and written into ``spec.seed``, so the session and a re-run make the same copies.
     ``copies``: :class:`~twofold.core.models.pooling.ImputedCopies` already made for this analysis (the
-    workspace keeps them), else they are made here.
+    workspace keeps them), else they are made here.  ``model_only``: the pooled fit alone, with an empty
+    record (what a session file needs; no assessment or further tests).
     """
     from twofold.core.models.imputation import impute
     from twofold.core.models.pooling import (
@@ -438,6 +440,10 @@ def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=No
         nested = pooled_nested(smaller_fit, fit)
     else:
         fit = copies.fit(predictors, firth=spec.firth)
+    if model_only:
+        result = AnalysisResult(spec, study, fit, nested, smaller_fit, None, {})
+        result.imputation = imputation
+        return result
     for n in study.table.notices:
         fit.notices.insert(0, n)
     shaped = [p for p in predictors if ":" in p or p in study.splines]

@@ -674,7 +674,7 @@ class Workspace:
             from twofold.core.analysis import run_imputed_analysis
 
             return run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
-                                        copies=self.imputed_copies())
+                                        copies=self.imputed_copies(), model_only=not with_record)
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
             assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))
