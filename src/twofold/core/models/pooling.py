@@ -386,8 +386,10 @@ class ImputedCopies:
         fits = []
         with one_blas_thread():
             for j, s in enumerate(self.studies):
-                fits.append(s.fit(predictors, rows=self.rows, firth=firth, linear=linear,
-                                  start=None if start is None else start.fits[j]))
+                # The copies differ only in their imputed cells, so the same model's fit on the copy before
+                # starts Newton nearer the maximum than the smaller model's fit on this copy does.
+                begin = fits[-1] if fits and not firth else None if start is None else start.fits[j]
+                fits.append(s.fit(predictors, rows=self.rows, firth=firth, linear=linear, start=begin))
         y = self.study.outcome_values()
         has_outcome = ~np.isnan(y)
         own = [p for p in fits[0].design.predictors if ":" not in p]
