@@ -130,8 +130,9 @@ def test_identical_copies_give_g_over_k_and_wald_over_k_exactly():
     wald = single_big.term_tests["ward"]
     assert big.term_tests["ward"].kind == "D1"
     assert big.term_tests["ward"].statistic == pytest.approx(wald.statistic / wald.df, rel=1e-9)
-    # No between-copy variance: no missing information beyond the df term, chi-square reference.
-    assert math.isinf(big.term_tests["ward"].df_denominator)
+    # No between-copy variance (beyond the round-off of fits started from different points): the chi-square
+    # reference, in effect.
+    assert big.term_tests["ward"].df_denominator > 1e12
     assert big.term_tests["ward"].p_value == pytest.approx(wald.p_value, rel=1e-9)
 
 
