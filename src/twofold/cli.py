@@ -158,9 +158,11 @@ def _spec(args):
 
 
 def _fit(args):
-    from twofold.core.analysis import run_analysis
+    from twofold.core.analysis import refuse_unpooled_options, run_analysis
 
-    return run_analysis(_spec(args))
+    spec = _spec(args)
+    refuse_unpooled_options(spec)
+    return run_analysis(spec)
 
 
 def run_gui(argv: list[str]) -> int:

@@ -64,3 +64,21 @@ def test_results_pane_says_which_results_it_shows(ws):
     ws.set_imputation(3, seed=1)
     assert "shown here: complete rows only; reports, exports and the session pool over 3 imputed copies" in \
         results_view(ws).counts_text
+
+
+def test_a_session_saved_from_the_workspace_reruns_to_the_same_pooled_figures(ws, tmp_path):
+    import json
+
+    from twofold import commands
+
+    ws.set_predictors(["lives_alone", "age"])  # a ladder whose columns come in another order than the file's
+    ws.set_imputation(3, seed=8)
+    shown = ws.result().record
+    path = tmp_path / "s.json"
+    from twofold.core.outputs.session import save_session
+
+    save_session(ws.to_session(), path)
+    out = tmp_path / "r.json"
+    assert commands.run_rerun([str(path), "--json", str(out)]) == 0
+    again = json.loads(out.read_text())
+    assert again["terms"] == shown["terms"] and again["overall"] == shown["overall"]

@@ -310,9 +310,6 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         if term not in predictors:
             predictors.append(term)
     if spec.impute is not None:
-        for option, words in NOT_POOLED.items():
-            if getattr(spec, option):
-                raise ModelError(f"{words} cannot be combined with imputation; leave one of the two out.")
         return run_imputed_analysis(spec, study, event, predictors)
     nested = smaller_fit = None
     smaller = None
@@ -379,6 +376,19 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
     return result
+
+
+def refuse_unpooled_options(spec: AnalysisSpec) -> None:
+    """Refuse, in one sentence, an option asked for together with imputation that is not pooled (command line).
+
+    A session saved by the window keeps its threshold and profile setting for the window's own use; a pooled
+    analysis leaves them aside instead of refusing them.
+    """
+    if spec.impute is None:
+        return
+    for option, words in NOT_POOLED.items():
+        if getattr(spec, option):
+            raise ModelError(f"{words} cannot be combined with imputation; leave one of the two out.")
 
 
 #: Options a pooled analysis does not offer, with the reason given when they are asked for together.

@@ -350,7 +350,10 @@ def impute(study, predictors, m: int | None = None, seed: int | None = None, aux
     y_all = study.outcome_values()
     rows = np.flatnonzero(~np.isnan(y_all))
     own, extra = imputation_columns(study, predictors, auxiliary)
-    names = own + extra
+    # In the file's order, whoever asks: the same columns, m and seed always give the same copies (the window's
+    # ladder and a re-run of its session name the same columns in different orders).
+    chosen = set(own + extra)
+    names = [c for c in study.columns if c in chosen]
     check_missing(study, own + extra, rows, allow_large)
     columns = _prepare(study, names, rows)
     incomplete = np.zeros(len(rows), dtype=bool)
