@@ -62,8 +62,10 @@ def test_results_pane_says_which_results_it_shows(ws):
 
     assert "imputed" not in results_view(ws).counts_text
     ws.set_imputation(3, seed=1)
-    assert "shown here: complete rows only; reports, exports and the session pool over 3 imputed copies" in \
-        results_view(ws).counts_text
+    view = results_view(ws)
+    assert "missing values filled in: pooled over 3 imputed copies (seed 1)" in view.counts_text
+    assert view.rows_used == 5000  # every row with an outcome
+    assert "Pooled likelihood-ratio test (D3" in view.overall.text
 
 
 def test_a_session_saved_from_the_workspace_reruns_to_the_same_pooled_figures(ws, tmp_path):

@@ -142,6 +142,7 @@ class Workspace:
         #: Multiple imputation in force: {"m", "seed", "auxiliary", "anyway"}, or None (complete rows only).
         self.imputation: dict | None = None
         self._copies = None               # (key, ImputedCopies) made for the settings and columns in force
+        self._pooled: dict = {}           # (copies, predictors, penalised) -> PooledFit
 
     # ---- reading -----------------------------------------------------------------
     @property
@@ -488,7 +489,12 @@ class Workspace:
 
     # ---- derived figures ---------------------------------------------------------------
     def fit_of(self, index: int):
-        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen."""
+        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen.
+
+        With multiple imputation on: its fits on every imputed copy, pooled (penalised when chosen).
+        """
+        if self.imputation:
+            return self.pooled_fit(index)
         rung = self.ladder.rungs[index]
         if not self.penalised:
             return rung.fit
@@ -513,8 +519,10 @@ class Workspace:
         """The (penalised, when chosen) likelihood-ratio test between rungs i and j, or None if not nested."""
         from twofold.core.models.fit import LikelihoodRatioTest, nested_test
 
-        if not self.penalised:
+        if not self.penalised and not self.imputation:
             return self.ladder.nested(i, j)
+        if self.imputation:
+            from twofold.core.models.pooling import pooled_nested as nested_test  # D3 (D2 for penalised fits)
         si, sj = set(self.ladder.rungs[i].predictors), set(self.ladder.rungs[j].predictors)
         a, b = self.fit_of(i), self.fit_of(j)
         if si == sj:
@@ -523,6 +531,10 @@ class Workspace:
             return nested_test(a, b)
         if sj <= si:
             t = nested_test(b, a)
+            if self.imputation:
+                from dataclasses import replace
+
+                return replace(t, added=(), removed=tuple(sorted(si - sj)))
             return LikelihoodRatioTest(t.g, t.df, t.p_value, removed=tuple(sorted(si - sj)), n_rows=t.n_rows)
         return None
 
@@ -540,6 +552,12 @@ class Workspace:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""
         from twofold.core.models.modelling import interaction_tests, nonlinearity_tests
 
+        if self.imputation:
+            from twofold.core.models import pooling
+
+            copies = self.imputed_copies()
+            nonlinearity_tests = lambda _study, f: pooling.pooled_nonlinearity_tests(copies, f)  # noqa: E731
+            interaction_tests = lambda _study, f: pooling.pooled_interaction_tests(copies, f)  # noqa: E731
         try:
             curves = nonlinearity_tests(self.study, fit)
         except TwofoldError:
@@ -551,8 +569,9 @@ class Workspace:
         return curves, crossings
 
     def wants_profile(self, fit) -> bool:
-        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked)."""
-        return fit is not None and (self.profile_always or profile_auto(fit))
+        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked; never
+        for pooled fits, whose intervals are Rubin's)."""
+        return fit is not None and not self.imputation and (self.profile_always or profile_auto(fit))
 
     def profile_intervals(self, fit) -> dict:
         """Profile-likelihood intervals of the odds ratios of a read-only fit (cached; any thread)."""
@@ -616,6 +635,25 @@ class Workspace:
                           f"{settings['seed']}).", frozenset(("ladder",)))
 
         return self._operate("missing values", run)
+
+    def pooled_fit(self, index: int):
+        """Rung ``index`` fitted on every imputed copy and pooled (penalised when chosen); kept until the copies change."""
+        copies = self.imputed_copies()
+        rung = self.ladder.rungs[index]
+        key = (copies, tuple(rung.predictors), self.penalised)  # the copies themselves: an id could be reused
+        kept = {k: v for k, v in self._pooled.items() if k[0] is copies}
+        if key not in kept:
+            kept[key] = copies.fit(list(rung.predictors), firth=self.penalised)
+        self._pooled = kept
+        return kept[key]
+
+    def pooled_assessment(self, fit) -> dict:
+        """The pooled assessment of a pooled fit of this analysis, with its pooled drop-one tests."""
+        from twofold.core.models.pooling import pooled_assessment, pooled_drop_one
+
+        out = pooled_assessment(fit)
+        out["drop_one"] = pooled_drop_one(self.imputed_copies(), fit)
+        return out
 
     def imputed_copies(self, progress=None):
         """The imputed copies for the settings in force and every column of the ladder (made once, then kept)."""

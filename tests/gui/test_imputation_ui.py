@@ -1,0 +1,91 @@
+"""Missing values filled in by multiple imputation, chosen in the window by the keyboard, as a user does.
+
+The figures the window shows are the workspace's (the pooled fit's) and the same as `twofold rerun` of the
+session the window saves; pooling itself is checked against outside sources in tests/core/test_imputation.py.
+"""
+
+from __future__ import annotations
+
+import json
+
+from PySide6.QtCore import Qt
+
+from gui_helpers import READMISSION, WAIT_MS, choose_outcome, idle, load, tick
+
+
+def choose_missing_values(qtbot, window, index):
+    combo = window.model_pane.missing_combo
+    combo.setFocus()
+    while combo.currentIndex() != index:
+        qtbot.keyClick(combo, Qt.Key.Key_Down if combo.currentIndex() < index else Qt.Key.Key_Up)
+
+
+def set_spin(qtbot, spin, value):
+    spin.setFocus()
+    spin.selectAll()
+    qtbot.keyClicks(spin, str(value))
+    qtbot.keyClick(spin, Qt.Key.Key_Tab)
+
+
+def test_imputation_chosen_in_the_window_pools_the_results(qtbot, window, tmp_path):
+    load(qtbot, window, READMISSION)
+    choose_outcome(qtbot, window, "readmitted_30d")
+    view = tick(qtbot, window, ["age", "comorbidity_score"])
+    assert view.rows_used == 4783 and view.imputed is None
+    pane = window.model_pane
+    set_spin(qtbot, pane.copies_spin, 4)
+    set_spin(qtbot, pane.seed_spin, 11)
+    choose_missing_values(qtbot, window, 1)
+    qtbot.waitUntil(lambda: idle(window) and window.results_pane.view is not None
+                    and window.results_pane.view.imputed == (4, 11), timeout=WAIT_MS)
+    shown = window.results_pane.counts.text()
+    assert "Rows used: 5,000 of 5,000" in shown and "pooled over 4 imputed copies (seed 11)" in shown
+    assert "Pooled likelihood-ratio test (D3" in window.results_pane.view.overall.text
+    # Tests first, then the pooled assessment.
+    box = window.results_pane.assessment_box
+    qtbot.waitUntil(lambda: box.view is not None and "pooled" in box.view.title, timeout=WAIT_MS)
+    assert "pooled on the logit scale" in box.auc.text()
+    # The session the window saves re-runs to the same pooled figures.
+    session = tmp_path / "s.json"
+    window.session.call("save", lambda ws: __import__("twofold.core.outputs.session", fromlist=["x"]).save_session(
+        ws.to_session(), session))
+    qtbot.waitUntil(lambda: idle(window) and session.exists(), timeout=WAIT_MS)
+    from twofold import commands
+
+    out = tmp_path / "r.json"
+    assert commands.run_rerun([str(session), "--json", str(out)]) == 0
+    record = json.loads(out.read_text())
+    assert record["imputation"]["m"] == 4 and record["imputation"]["seed"] == 11
+    from twofold.core.outputs.text import fmt_or
+
+    lines = [line for line in window.results_pane.view.lines if "odds_ratio" in line.texts]
+    assert [line.texts["odds_ratio"] for line in lines][:2] == [fmt_or(t["odds_ratio"]) for t in record["terms"]]
+    # Back to complete rows.
+    choose_missing_values(qtbot, window, 0)
+    qtbot.waitUntil(lambda: idle(window) and window.results_pane.view.imputed is None, timeout=WAIT_MS)
+    assert window.results_pane.view.rows_used == 4783
+
+
+def test_a_refused_imputation_leaves_the_choice_and_the_analysis_as_they_were(qtbot, window, tmp_path):
+    import pandas as pd
+
+    frame = pd.read_csv(READMISSION).head(800)
+    frame.loc[frame.index[:500], "comorbidity_score"] = None
+    path = tmp_path / "gappy_synthetic.csv"
+    frame.to_csv(path, index=False)
+    load(qtbot, window, path)
+    choose_outcome(qtbot, window, "readmitted_30d")
+    tick(qtbot, window, ["age", "comorbidity_score"])
+    errors = []
+    window.session.failed.connect(lambda failure: errors.append(failure.message))
+    choose_missing_values(qtbot, window, 1)
+    qtbot.waitUntil(lambda: idle(window) and bool(errors), timeout=WAIT_MS)
+    assert "'comorbidity_score' is missing in" in errors[-1] and "tick 'impute anyway'" in errors[-1]
+    assert window.model_pane.missing_combo.currentIndex() == 0
+    complete = int(frame[["age", "comorbidity_score"]].notna().all(axis=1).sum())
+    assert window.results_pane.view.imputed is None and window.results_pane.view.rows_used == complete
+    # Confirmed by ticking 'impute anyway', then chosen again.
+    qtbot.mouseClick(window.model_pane.anyway_check, Qt.MouseButton.LeftButton)
+    choose_missing_values(qtbot, window, 1)
+    qtbot.waitUntil(lambda: idle(window) and window.results_pane.view.imputed is not None, timeout=WAIT_MS)
+    assert window.results_pane.view.rows_used == 800
