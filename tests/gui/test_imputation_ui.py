@@ -85,7 +85,11 @@ def test_a_refused_imputation_leaves_the_choice_and_the_analysis_as_they_were(qt
     complete = int(frame[["age", "comorbidity_score"]].notna().all(axis=1).sum())
     assert window.results_pane.view.imputed is None and window.results_pane.view.rows_used == complete
     # Confirmed by ticking 'impute anyway', then chosen again.
-    qtbot.mouseClick(window.model_pane.anyway_check, Qt.MouseButton.LeftButton)
+    check = window.model_pane.anyway_check
+    assert check.isVisible() and check.isEnabled()
+    check.setFocus()
+    qtbot.keyClick(check, Qt.Key.Key_Space)
+    assert check.isChecked()
     choose_missing_values(qtbot, window, 1)
     qtbot.waitUntil(lambda: idle(window) and window.results_pane.view.imputed is not None, timeout=WAIT_MS)
     assert window.results_pane.view.rows_used == 800
