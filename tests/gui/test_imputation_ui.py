@@ -93,3 +93,32 @@ def test_a_refused_imputation_leaves_the_choice_and_the_analysis_as_they_were(qt
     choose_missing_values(qtbot, window, 1)
     qtbot.waitUntil(lambda: idle(window) and window.results_pane.view.imputed is not None, timeout=WAIT_MS)
     assert window.results_pane.view.rows_used == 800
+
+
+def test_side_by_side_view_of_imputed_and_complete_rows(qtbot, window):
+    import statsmodels.api as sm
+    import pandas as pd
+
+    from twofold.core.outputs.text import fmt_or
+
+    load(qtbot, window, READMISSION)
+    choose_outcome(qtbot, window, "readmitted_30d")
+    tick(qtbot, window, ["age", "comorbidity_score"])
+    pane = window.model_pane
+    assert not pane.side_button.isEnabled()
+    set_spin(qtbot, pane.copies_spin, 3)
+    choose_missing_values(qtbot, window, 1)
+    qtbot.waitUntil(lambda: idle(window) and window.results_pane.view.imputed is not None, timeout=WAIT_MS)
+    assert pane.side_button.isEnabled()
+    qtbot.mouseClick(pane.side_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: getattr(pane, "side_dialog", None) is not None and pane.side_dialog.isVisible(),
+                    timeout=WAIT_MS)
+    table = pane.side_dialog.table
+    assert table.rowCount() == 2
+    # The complete-rows column against statsmodels' Logit on the rows pandas keeps.
+    frame = pd.read_csv(READMISSION)[["readmitted_30d", "age", "comorbidity_score"]].dropna()
+    ref = sm.Logit(frame["readmitted_30d"], sm.add_constant(frame[["age", "comorbidity_score"]])).fit(disp=0)
+    for r, name in enumerate(("age", "comorbidity_score")):
+        assert table.item(r, 2).text().startswith(fmt_or(float(__import__("math").exp(ref.params[name]))))
+    assert "imputed and pooled over 3 copies (5,000 rows)" in pane.side_dialog.title.text()
+    assert "complete rows only (4,783 rows)" in pane.side_dialog.title.text()

@@ -13,9 +13,9 @@ from html import escape as esc
 from PySide6.QtCore import QSignalBlocker, Qt, Signal
 from PySide6.QtGui import QAction, QFontMetrics, QPixmap
 from PySide6.QtWidgets import (
-    QAbstractItemView, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
+    QAbstractItemView, QCheckBox, QComboBox, QDialog, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
     QListWidget, QListWidgetItem, QMenu, QProgressBar, QPushButton, QScrollArea, QSizePolicy, QSpinBox, QSplitter,
-    QTableView, QVBoxLayout, QWidget,
+    QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget,
 )
 
 from twofold.core.data.tidy import plural
@@ -419,6 +419,28 @@ class DataPane(QWidget):
 
 
 # ---------------------------------------------------------------------------
+class SideBySideDialog(QDialog):
+    """The shown model's pooled odds ratios beside its complete-rows ones (display only)."""
+
+    def __init__(self, payload: dict, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Imputed beside complete rows")
+        self.title = QLabel(payload["title"])
+        self.title.setTextFormat(Qt.TextFormat.PlainText)
+        self.title.setWordWrap(True)
+        self.table = QTableWidget(len(payload["rows"]), len(payload["headers"]))
+        self.table.setHorizontalHeaderLabels(list(payload["headers"]))
+        self.table.setAccessibleName("Odds ratios, imputed and pooled beside complete rows only")
+        for r, row in enumerate(payload["rows"]):
+            for c, text in enumerate(row):
+                self.table.setItem(r, c, QTableWidgetItem(text))
+        self.table.resizeColumnsToContents()
+        lay = QVBoxLayout(self)
+        lay.addWidget(self.title)
+        lay.addWidget(self.table, 1)
+        self.resize(900, 360)
+
+
 class ModelPane(QWidget):
     """Choose the outcome and its event value, and tick the predictors."""
 
@@ -515,7 +537,7 @@ class ModelPane(QWidget):
         self.anyway_check.setAccessibleName("Impute columns missing in more than half the rows")
         self.anyway_check.setToolTip("Also impute a column missing in more than half the rows with an outcome.")
         settings.addStretch(1)
-        label = QLabel("&Missing values:")
+        label = QLabel("Missing &values:")
         label.setBuddy(self.missing_combo)
         form.addRow(label, self.missing_combo)
         form.addRow("", settings)
@@ -525,7 +547,14 @@ class ModelPane(QWidget):
         self.impute_stop = QPushButton("Stop imputing")
         self.impute_stop.setAccessibleName("Stop making the imputed copies")
         self.impute_stop.clicked.connect(self._stop_imputing)
+        self.side_button = QPushButton("Beside comple&te rows\u2026")
+        self.side_button.setAccessibleName("Show the imputed results beside the complete rows'")
+        self.side_button.setToolTip("The model shown, pooled over the imputed copies, beside its fit on complete "
+                                    "rows only (reviewers ask for both).")
+        self.side_button.clicked.connect(self._show_side_by_side)
+        self.side_button.setEnabled(False)
         form.addRow("", self.anyway_check)
+        form.addRow("", self.side_button)
         progress = QHBoxLayout()
         progress.addWidget(self.impute_bar, 1)
         progress.addWidget(self.impute_stop)
@@ -552,6 +581,15 @@ class ModelPane(QWidget):
         if self.missing_combo.currentIndex() == 1 and self.impute_request is None:
             self._imputation_chosen(1)
 
+    def _show_side_by_side(self) -> None:
+        from twofold.gui import present
+
+        self.session.call("side by side", present.side_by_side, done=self._side_by_side_ready)
+
+    def _side_by_side_ready(self, payload) -> None:
+        self.side_dialog = SideBySideDialog(payload, self)
+        self.side_dialog.show()
+
     def _stop_imputing(self) -> None:
         self.session.cancel_imputation()
 
@@ -561,6 +599,7 @@ class ModelPane(QWidget):
         self.impute_request = None
         self.impute_progress.hide()
         self._imputing = self._wanted
+        self.side_button.setEnabled(self._imputing)
 
     def _imputation_failed(self, failure) -> None:
         if failure.kind != "imputation":
@@ -797,6 +836,7 @@ class ModelPane(QWidget):
         self.counts.setText(view.counts_text.replace("  \u00b7  ", "\n"))
         if self.impute_request is None:  # the choice shown follows the analysis (a session opened, an undo)
             self._imputing = self._wanted = view.imputed is not None
+            self.side_button.setEnabled(self._imputing)
             with QSignalBlocker(self.missing_combo):
                 self.missing_combo.setCurrentIndex(1 if view.imputed else 0)
             if view.imputed:
