@@ -438,7 +438,7 @@ class SideBySideDialog(QDialog):
         lay = QVBoxLayout(self)
         lay.addWidget(self.title)
         lay.addWidget(self.table, 1)
-        self.resize(900, 360)
+        self.resize(1000, 360)
 
 
 class ModelPane(QWidget):
@@ -1262,7 +1262,7 @@ class AssessmentSection(QFrame):
         row.addWidget(self.threshold)
         row.addStretch(1)
         b.addLayout(row)
-        self.classification = _wrapped("", "Classification table")
+        self.classification = _wrapped("", "Classification table", rich=True)  # its parts are escaped
         b.addWidget(self.classification)
 
         self.plots = {}

@@ -408,7 +408,7 @@ def results_view(ws) -> ResultsView | None:
         log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(ws, fit),
         stated_effects=stated_lines(fit),
         penalised=penalised, method_text=PENALISED_TEXT if penalised else "", separation=separation,
-        profile_auto=profile_auto(fit),
+        profile_auto=profile_auto(fit) and not ws.imputation,  # no profile intervals for pooled fits
         imputed=(ws.imputation["m"], ws.imputation["seed"]) if ws.imputation else None,
     )
 
@@ -575,6 +575,8 @@ def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
                         f"Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, "
                         f"Tjur {fmt_num(a['tjur_r2'], 3)}."),
         drop_one=drop, sample_size_text="Minimum sample size: not worked out for pooled fits.",
+        classification_text="Classification at a risk threshold: not pooled (it would count imputed values).",
+        threshold_note="The pooled figures above do not depend on the threshold.",
         notes=(a["pooled_note"],), values={"auc": auc, "auc_ci_low": lo, "auc_ci_high": hi},
         penalised=is_penalised(fit),
     )

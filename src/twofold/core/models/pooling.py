@@ -427,7 +427,7 @@ def pooled_drop_one(copies: ImputedCopies, fit: PooledFit) -> list[dict]:
         much_lower = available and lr.g > 3.841 and stat * len(idx) < 0.5 * lr.g
         out.append({"column": column, "label": total_label(column, within.get(column, ())),
                     "includes": list(within.get(column, ())), "g": num(lr.g if lr else None), "df": int(len(idx)),
-                    "p_value": num(p), "kind": lr.kind if lr else None,
+                    "p_value": num(p), "kind": lr.kind if lr else None, "statistic": num(lr.statistic if lr else None),
                     "df_denominator": num(lr.df_denominator) if lr else None,
                     "wald": num(stat * len(idx)), "wald_p_value": num(wald_p), "wald_kind": "D1",
                     "wald_df_denominator": num(den), "prefer_lr": bool(disagree or much_lower),
