@@ -122,3 +122,18 @@ def test_side_by_side_view_of_imputed_and_complete_rows(qtbot, window):
         assert table.item(r, 2).text().startswith(fmt_or(float(__import__("math").exp(ref.params[name]))))
     assert "imputed and pooled over 3 copies (5,000 rows)" in pane.side_dialog.title.text()
     assert "complete rows only (4,783 rows)" in pane.side_dialog.title.text()
+
+
+def test_stop_imputing_leaves_the_analysis_as_it_was(qtbot, window):
+    load(qtbot, window, READMISSION)
+    choose_outcome(qtbot, window, "readmitted_30d")
+    tick(qtbot, window, ["age", "comorbidity_score", "lives_alone", "discharge_destination"])
+    pane = window.model_pane
+    set_spin(qtbot, pane.copies_spin, 100)
+    choose_missing_values(qtbot, window, 1)
+    qtbot.waitUntil(lambda: pane.impute_progress.isVisible() and pane.impute_bar.value() > 0, timeout=WAIT_MS)
+    qtbot.mouseClick(pane.impute_stop, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: idle(window) and pane.missing_combo.currentIndex() == 0, timeout=WAIT_MS)
+    assert not pane.impute_progress.isVisible()
+    assert "stopped; nothing was changed" in window.message.text()
+    assert window.results_pane.view.imputed is None and window.results_pane.view.rows_used == 4627
