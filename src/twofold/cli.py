@@ -60,6 +60,9 @@ def _fit_parser() -> argparse.ArgumentParser:
     add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
     p.add_argument("--subgroups", metavar="COLUMN", help="show AUC and calibration within the groups of a column "
                                                          "(sex, age band, site)")
+    p.add_argument("--shrink", action="store_true",
+                   help="with --validate: when the corrected calibration slope is below 1, shrink every coefficient "
+                        "by it and re-estimate the intercept (the shrunk model is saved and used by predict)")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -106,6 +109,9 @@ def run_fit(argv: list[str]) -> int:
     if args.impute is None and (args.auxiliary or args.impute_anyway):
         parser.error(f"{'--auxiliary' if args.auxiliary else '--impute-anyway'} works with --impute M; "
                      "add --impute M, or leave it out")
+    if args.shrink and not args.validate:
+        parser.error("--shrink uses the corrected calibration slope of a bootstrap validation, so it needs "
+                     "--validate B; add --validate 200 or leave --shrink out")
     from twofold.core.errors import TwofoldError
 
     try:
@@ -152,7 +158,7 @@ def _spec(args):
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
         missing=parse_missing(getattr(args, "missing", [])),
-        net_benefit=args.net_benefit, subgroups=args.subgroups,
+        net_benefit=args.net_benefit, subgroups=args.subgroups, shrink=args.shrink,
         impute=args.impute, auxiliary=list(args.auxiliary), impute_anyway=args.impute_anyway,
     )
 

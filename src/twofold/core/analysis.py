@@ -85,6 +85,12 @@ class AnalysisSpec:
     auxiliary: list = field(default_factory=list)
     #: Impute columns missing in more than half the rows with an outcome (the user confirmed).
     impute_anyway: bool = False
+    #: Predictors of a second model whose decision curve is drawn beside this one's (fitted on the same rows).
+    net_benefit_versus: list | None = None
+    #: A column naming each record's unit (ward, hospital): adds ``units`` (risk-adjusted comparison).
+    unit_column: str | None = None
+    #: With ``validate``: shrink the coefficients by the corrected calibration slope when it is below 1.
+    shrink: bool = False
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -104,6 +110,10 @@ class AnalysisResult:
     validation: object = None
     #: The imputed copies' description (:class:`~twofold.core.models.imputation.Imputation`), or None.
     imputation: object = None
+    #: A :class:`~twofold.core.models.updating.Shrinkage` when the model was shrunk (sessions save its model).
+    shrinkage: object = None
+    #: The risks of the second model of the decision curve on the same rows (``net_benefit_versus``), or None.
+    other_risks: object = None
 
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
@@ -375,6 +385,7 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
                       fit.fitted, fit.linear_predictor)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
+    add_usefulness(result, thresholds)
     return result
 
 
@@ -489,3 +500,72 @@ def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=No
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, record["assessment"], record)
     result.imputation = imputation
     return result
+def add_usefulness(result: AnalysisResult, thresholds=None) -> None:
+    """The second model's decision curve, the comparison of units and the shrunk model a spec asks for.
+
+    ``net_benefit_versus``: a second model fitted on the same rows, whose net
+    benefit joins each ``net_benefit`` entry as ``other_model``;
+    ``unit_column``: ``units`` (:func:`add_units`); ``shrink``: ``shrinkage``
+    (:func:`add_shrinkage`).
+    """
+    spec, study, fit, record = result.spec, result.study, result.fit, result.record
+    if thresholds is not None and spec.net_benefit_versus:
+        from twofold.core.errors import TwofoldError
+
+        try:
+            other = study.fit([study.column(p) for p in spec.net_benefit_versus], rows=fit.design.rows,
+                              firth=spec.firth)
+        except TwofoldError as exc:  # a column of it missing from this extract, say: the curve goes without it
+            record["net_benefit_summary"]["other_note"] = f"The second model's curve is left out: {exc}"
+        else:
+            add_other_curve(record, fit.design.y, other.fitted, list(other.design.predictors))
+            result.other_risks = other.fitted
+    if spec.unit_column is not None:
+        add_units(record, study.frame, study.column(str(spec.unit_column)), fit, study.outcome)
+    if spec.shrink:
+        add_shrinkage(result)
+
+
+def add_other_curve(record: dict, y, p_other, predictors) -> None:
+    """Add a second model's net benefit (``other_model`` in each entry) to a record that has ``net_benefit``."""
+    from twofold.core.assessing.decision import net_benefit_values
+    from twofold.core.outputs.summary import clean_number
+
+    thresholds = [e["threshold"] for e in record["net_benefit"]]
+    for entry, nb in zip(record["net_benefit"], net_benefit_values(y, p_other, thresholds)):
+        entry["other_model"] = clean_number(nb)
+    record["net_benefit_summary"]["other_predictors"] = list(predictors)
+
+
+def add_units(record: dict, frame, column: str, fit, outcome: str) -> None:
+    """Add ``units``: the risk-adjusted comparison of the units named in ``column`` on the fit's rows."""
+    from twofold.core.assessing.units import check_unit_column, compare_units
+
+    check_unit_column(column, outcome, [p for t in fit.design.predictors for p in str(t).split(":")])
+    values = frame[column].iloc[fit.design.rows].to_numpy(dtype=object)
+    record["units"] = compare_units(values, fit.design.y, fit.fitted, column).as_record()
+
+
+def add_shrinkage(result: AnalysisResult) -> None:
+    """Shrink the model by its bootstrap's corrected calibration slope (``shrinkage`` in the record).
+
+    Without a validation, or with a corrected slope not below 1, ``shrinkage``
+    says why nothing was shrunk (``factor`` null) and the model is unchanged.
+    """
+    from twofold.core.models.updating import shrink_model, shrinkage_refusal
+    from twofold.core.outputs.predict import frozen_model
+
+    v = result.validation
+    if v is None:
+        result.record["shrinkage"] = {"factor": None, "intercept": None, "coefficients": None,
+                                      "reading": "Shrinking needs a bootstrap validation; add --validate B."}
+        return
+    why = shrinkage_refusal(v.calibration_slope_corrected)
+    if why is not None:
+        result.record["shrinkage"] = {"factor": None, "intercept": None, "coefficients": None, "reading": why}
+        return
+    fit = result.fit
+    model = frozen_model(fit, result.study.outcome, result.study.event)
+    result.shrinkage = shrink_model(model, fit.design.X[:, fit.kept], fit.design.y, v.calibration_slope_corrected,
+                                    source=str(result.study.source))
+    result.record["shrinkage"] = result.shrinkage.as_dict()

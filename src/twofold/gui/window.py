@@ -208,6 +208,16 @@ class MainWindow(QMainWindow):
         shape_menu.addAction(self.model_shape_action)
         self.model_shape_dialog = None
 
+        # ---- "Usefulness" menu (twofold.gui.usefulness_ui) ----
+        use_menu = bar.addMenu("&Usefulness")
+        self.usefulness_action = QAction("Decision curve, units, subgroups and &shrinkage\u2026", self)
+        self.usefulness_action.triggered.connect(lambda _=False: self.open_usefulness())
+        use_menu.addAction(self.usefulness_action)
+        self.check_file_action = QAction("&Check a saved model on a new file\u2026", self)
+        self.check_file_action.triggered.connect(lambda _=False: self.open_usefulness("Check on a new file"))
+        use_menu.addAction(self.check_file_action)
+        self.usefulness_dialog = None
+
         # ---- "Risk" menu (twofold.gui.calculator) ----
         risk_menu = bar.addMenu("&Risk")
         self.calculator_action = QAction("Risk for one &patient\u2026", self)
@@ -492,6 +502,17 @@ class MainWindow(QMainWindow):
         from twofold.gui.modelling_ui import ModelShapeDialog
 
         return self._show_one("model_shape_dialog", ModelShapeDialog)
+
+    def open_usefulness(self, tab: str | None = None):
+        """Show the usefulness dialog (one per window), at the tab named ``tab`` when given."""
+        from twofold.gui.usefulness_ui import UsefulnessDialog
+
+        dialog = self._show_one("usefulness_dialog", UsefulnessDialog)
+        for i in range(dialog.tabs.count()):
+            if dialog.tabs.tabText(i) == tab:
+                dialog.tabs.setCurrentIndex(i)
+        dialog.refresh()
+        return dialog
 
     def explain(self, topic: str | None = None):
         """Show "What does this mean?" at ``topic`` (the first topic when None); returns the dialog."""

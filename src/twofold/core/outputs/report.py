@@ -1129,6 +1129,8 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         ``title``, ``authors`` and ``question`` typed by the user, printed on
         the first page.
     """
+    from twofold.core.outputs.report_usefulness import usefulness_sections
+
     threshold = int(suppress_below)
     record = result.record
     frozen = bool(getattr(result, "frozen", False))
@@ -1147,6 +1149,7 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
             withheld_notes.append(f"How the saved model performs on these records, because {check.whole_model}.")
         _assessment_section(rep, a, result.assessment, record, threshold, True, include_records, check,
                             withheld_notes)
+        withheld_notes += usefulness_sections(rep, result, record, threshold, True, check)
         _methods(rep, record, True, False, False, False)
         promise = _closing(rep, record, threshold, withheld_notes)
         return _finish(rep, set(), promise)
@@ -1200,6 +1203,7 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
     elif a:
         _assessment_section(rep, a, result.assessment, record, threshold, False, include_records, check,
                             withheld_notes)
+    withheld_notes += usefulness_sections(rep, result, record, threshold, False, check)
     _methods(rep, record, False, bool(result.spec.firth), any("or_pl_low" in t for t in record["terms"]),
              lad is not None)
     promise = _closing(rep, record, threshold, withheld_notes)

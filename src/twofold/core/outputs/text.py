@@ -233,6 +233,7 @@ def describe(record: dict, source: str = "") -> str:
     out.extend(_validation_lines(record))
     out.extend(decision_lines(record))
     out.extend(subgroup_lines(record))
+    out.extend(usefulness_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -484,7 +485,8 @@ def decision_lines(record: dict) -> list[str]:
         return []
     summary = record.get("net_benefit_summary") or {}
     corrected = "model_corrected" in curve[0]
-    smaller = "smaller_model" in curve[0]
+    smaller = "smaller_model" in curve[0] or "other_model" in curve[0]
+    second = "smaller_model" if "smaller_model" in curve[0] else "other_model"
     out = ["", "Decision curve (net benefit per person; treating no one is 0)"]
     if summary.get("reading"):
         out.append("  " + summary["reading"])
@@ -499,7 +501,7 @@ def decision_lines(record: dict) -> list[str]:
         if corrected:
             row += f"  {fmt_num(e['model_corrected'], 4):>9}"
         if smaller:
-            row += f"  {fmt_num(e['smaller_model'], 4):>8}"
+            row += f"  {fmt_num(e[second], 4):>8}"
         out.append(row + f"  {fmt_num(e['treat_all'], 4):>9}")
     if len(shown) < len(curve):
         out.append(f"    ({len(shown)} of {len(curve)} thresholds shown; every one is in the JSON)")
@@ -561,10 +563,13 @@ def adaptation_lines(record: dict) -> list[str]:
     a = record.get("adaptation")
     if not a:
         return []
-    out = ["", "Adapting the saved model to these records (closed testing, each step at the 5% level)"]
+    from twofold.core.models.updating import STEP_WORDS
+
+    out = ["", "Adapting the saved model to these records (closed testing, Vergouwe et al. 2017, each step at the "
+           "5% level)"]
     for t in a["tests"]:
-        out.append(f"  {t['step']}: G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. "
-                   f"{t['reading']}")
+        out.append(f"  {STEP_WORDS.get(t['step'], t['step'])}: likelihood-ratio G = {fmt_num(t['g'], 2)} on "
+                   f"{degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. {t['reading']}")
     out.append("  " + a["reading"])
     out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
                                                      for c in a["coefficients"]) + ".")
@@ -596,3 +601,19 @@ def subgroup_lines(record: dict) -> list[str]:
         out.append("  " + record["subgroups_note"])
     return out
 
+
+
+def usefulness_lines(record: dict) -> list[str]:
+    """The comparison of units (``units``) and the shrunk model (``shrinkage``) of a record; [] when neither."""
+    out = []
+    units = record.get("units")
+    if units:
+        out.append("")
+        out.extend(describe_units(units).rstrip("\n").split("\n"))
+    shrinkage = record.get("shrinkage")
+    if shrinkage:
+        out += ["", "Shrinkage", "  " + shrinkage["reading"]]
+        if shrinkage.get("coefficients"):
+            out.append("  Shrunk coefficients (saved and used by predict): " + ", ".join(
+                f"{c['name']} {fmt_num(c['estimate'], 4)}" for c in shrinkage["coefficients"]) + ".")
+    return out
