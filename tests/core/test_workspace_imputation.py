@@ -84,3 +84,12 @@ def test_a_session_saved_from_the_workspace_reruns_to_the_same_pooled_figures(ws
     assert commands.run_rerun([str(path), "--json", str(out)]) == 0
     again = json.loads(out.read_text())
     assert again["terms"] == shown["terms"] and again["overall"] == shown["overall"]
+
+
+def test_bootstrap_validation_is_refused_while_imputing(ws):
+    from twofold.core.errors import ModelError
+
+    assert ws.fit_for_validation() is ws.shown_fit()
+    ws.set_imputation(3, seed=1)
+    with pytest.raises(ModelError, match="not combined with multiple imputation"):
+        ws.fit_for_validation()

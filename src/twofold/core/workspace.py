@@ -685,6 +685,14 @@ class Workspace:
         self._pooled = kept
         return kept[key]
 
+    def fit_for_validation(self):
+        """The model shown, for a bootstrap validation; refused while missing values are imputed (not combined)."""
+        self.require_model()
+        if self.imputation:
+            raise ModelError("Bootstrap validation is not combined with multiple imputation here; choose 'leave out "
+                             "incomplete rows' under missing values to validate the model on complete rows.")
+        return self.shown_fit()
+
     def pooled_assessment(self, fit) -> dict:
         """The pooled assessment of a pooled fit of this analysis, with its pooled drop-one tests."""
         from twofold.core.models.pooling import pooled_assessment, pooled_drop_one
