@@ -168,6 +168,10 @@ class Workspace:
         self._saved_revision = 0
         #: The last change made (what the window says after an operation).
         self.last_change = Change("")
+        #: Multiple imputation in force: {"m", "seed", "auxiliary", "anyway"}, or None (complete rows only).
+        self.imputation: dict | None = None
+        self._copies = None               # (key, ImputedCopies) made for the settings and columns in force
+        self._pooled: dict = {}           # (copies, predictors, penalised) -> PooledFit
 
     # ---- reading -----------------------------------------------------------------
     @property
@@ -209,7 +213,8 @@ class Workspace:
     # ---- the machinery of operations -------------------------------------------------
     def _memento(self) -> dict:
         return {"study": self.study.settings(), "ladder": self.ladder.state(), "parents": dict(self.parents),
-                "awaiting": self.awaiting_event, "penalised": self.penalised, "shrinkage": self.shrinkage}
+                "awaiting": self.awaiting_event, "penalised": self.penalised, "shrinkage": self.shrinkage,
+                "imputation": self.imputation}
 
     def _put_back(self, m: dict) -> None:
         self.study.restore_settings(m["study"])
@@ -217,6 +222,7 @@ class Workspace:
         self.parents = dict(m["parents"])
         self.awaiting_event = m["awaiting"]
         self.penalised = m["penalised"]
+        self.imputation = m.get("imputation")
         self.shrinkage = m.get("shrinkage")
 
     def _operate(self, label: str, fn, undoable: bool = True) -> Change:
@@ -526,7 +532,12 @@ class Workspace:
 
     # ---- derived figures ---------------------------------------------------------------
     def fit_of(self, index: int):
-        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen."""
+        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen.
+
+        With multiple imputation on: its fits on every imputed copy, pooled (penalised when chosen).
+        """
+        if self.imputation:
+            return self.pooled_fit(index)
         rung = self.ladder.rungs[index]
         if not self.penalised:
             return rung.fit
@@ -551,8 +562,10 @@ class Workspace:
         """The (penalised, when chosen) likelihood-ratio test between rungs i and j, or None if not nested."""
         from twofold.core.models.fit import LikelihoodRatioTest, nested_test
 
-        if not self.penalised:
+        if not self.penalised and not self.imputation:
             return self.ladder.nested(i, j)
+        if self.imputation:
+            from twofold.core.models.pooling import pooled_nested as nested_test  # D3 (D2 for penalised fits)
         si, sj = set(self.ladder.rungs[i].predictors), set(self.ladder.rungs[j].predictors)
         a, b = self.fit_of(i), self.fit_of(j)
         if si == sj:
@@ -561,6 +574,10 @@ class Workspace:
             return nested_test(a, b)
         if sj <= si:
             t = nested_test(b, a)
+            if self.imputation:
+                from dataclasses import replace
+
+                return replace(t, added=(), removed=tuple(sorted(si - sj)))
             return LikelihoodRatioTest(t.g, t.df, t.p_value, removed=tuple(sorted(si - sj)), n_rows=t.n_rows)
         return None
 
@@ -578,6 +595,12 @@ class Workspace:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""
         from twofold.core.models.modelling import interaction_tests, nonlinearity_tests
 
+        if self.imputation:
+            from twofold.core.models import pooling
+
+            copies = self.imputed_copies()
+            nonlinearity_tests = lambda _study, f: pooling.pooled_nonlinearity_tests(copies, f)  # noqa: E731
+            interaction_tests = lambda _study, f: pooling.pooled_interaction_tests(copies, f)  # noqa: E731
         try:
             curves = nonlinearity_tests(self.study, fit)
         except TwofoldError:
@@ -589,8 +612,9 @@ class Workspace:
         return curves, crossings
 
     def wants_profile(self, fit) -> bool:
-        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked)."""
-        return fit is not None and (self.profile_always or profile_auto(fit))
+        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked; never
+        for pooled fits, whose intervals are Rubin's)."""
+        return fit is not None and not self.imputation and (self.profile_always or profile_auto(fit))
 
     def profile_intervals(self, fit) -> dict:
         """Profile-likelihood intervals of the odds ratios of a read-only fit (cached; any thread)."""
@@ -631,6 +655,78 @@ class Workspace:
             return kept  # restored from a session: the same model fitted again
         return None
 
+    # ---- multiple imputation ----------------------------------------------------------------
+    def set_imputation(self, m: int | None, seed: int | None = None, auxiliary=(), anyway: bool = False,
+                       progress=None) -> Change:
+        """Fill in missing predictor values by multiple imputation (``m`` copies), or go back to complete rows (None).
+
+        The copies are made now (``progress(fraction)`` may return False to cancel), so a refusal (a column
+        missing in more than half the rows without ``anyway``, an auxiliary column that cannot be used, an
+        imputation model that fails) leaves the analysis as it was.  Without a seed, one is drawn and kept.
+        """
+        import secrets
+
+        settings = None
+        if m is not None:
+            settings = {"m": int(m), "seed": secrets.randbelow(2 ** 31) if seed is None else int(seed),
+                        "auxiliary": [str(a) for a in auxiliary], "anyway": bool(anyway)}
+
+        def run():
+            self.imputation = settings
+            if settings is not None and self.has_model:
+                self.imputed_copies(progress)
+            if settings is None:
+                return Change("Incomplete rows are left out.", frozenset(("ladder",)))
+            return Change(f"Missing values are filled in by multiple imputation ({settings['m']} copies, seed "
+                          f"{settings['seed']}).", frozenset(("ladder",)))
+
+        return self._operate("missing values", run)
+
+    def pooled_fit(self, index: int):
+        """Rung ``index`` fitted on every imputed copy and pooled (penalised when chosen); kept until the copies change."""
+        copies = self.imputed_copies()
+        rung = self.ladder.rungs[index]
+        key = (copies, tuple(rung.predictors), self.penalised)  # the copies themselves: an id could be reused
+        kept = {k: v for k, v in self._pooled.items() if k[0] is copies}
+        if key not in kept:
+            kept[key] = copies.fit(list(rung.predictors), firth=self.penalised)
+        self._pooled = kept
+        return kept[key]
+
+    def fit_for_validation(self):
+        """The model shown, for a bootstrap validation; refused while missing values are imputed (not combined)."""
+        self.require_model()
+        if self.imputation:
+            raise ModelError("Bootstrap validation is not combined with multiple imputation here; choose 'leave out "
+                             "incomplete rows' under missing values to validate the model on complete rows.")
+        return self.shown_fit()
+
+    def pooled_assessment(self, fit) -> dict:
+        """The pooled assessment of a pooled fit of this analysis, with its pooled drop-one tests."""
+        from twofold.core.models.pooling import pooled_assessment, pooled_drop_one
+
+        out = pooled_assessment(fit)
+        out["drop_one"] = pooled_drop_one(self.imputed_copies(), fit)
+        return out
+
+    def imputed_copies(self, progress=None):
+        """The imputed copies for the settings in force and every column of the ladder (made once, then kept)."""
+        from twofold.core.analysis import columns_of
+        from twofold.core.models.imputation import impute
+        from twofold.core.models.pooling import ImputedCopies
+
+        if not self.imputation:
+            raise ModelError("Multiple imputation is not switched on; choose it under missing values first.")
+        study = self.study
+        columns = columns_of(study, self.ladder.used_predictors)
+        s = self.imputation
+        key = (tuple(columns), s["m"], s["seed"], tuple(s["auxiliary"]), s["anyway"], id(study.frame),
+               tuple((n, c.role) for n, c in study.columns.items()), study.outcome, study.event)
+        if self._copies is None or self._copies[0] != key:
+            made = impute(study, columns, s["m"], s["seed"], s["auxiliary"], s["anyway"], progress=progress)
+            self._copies = (key, ImputedCopies(study, made))
+        return self._copies[1]
+
     # ---- the whole analysis as a record -----------------------------------------------------
     def spec(self):
         """The :class:`~twofold.core.analysis.AnalysisSpec` of the model shown (for sessions and re-runs)."""
@@ -646,9 +742,12 @@ class Workspace:
             event=study.event, roles=roles, sheet=study.table.sheet, firth=is_penalised(fit),
             profile_ci=self.wants_profile(fit), threshold=self.threshold_for(fit), splines=dict(study.splines),
             missing={k: list(v) for k, v in study.missing_values.items()},
-            validate=None if v is None else v.repetitions, seed=None if v is None else v.seed,
+            validate=None if v is None or self.imputation else v.repetitions,
+            seed=self.imputation["seed"] if self.imputation else None if v is None else v.seed,
             rows_complete_in=columns_of(study, self.ladder.used_predictors),
-            **self._usefulness_spec(fit))
+            **self._usefulness_spec(fit),
+            **({} if not self.imputation else {"impute": self.imputation["m"], "auxiliary": list(self.imputation[
+                "auxiliary"]), "impute_anyway": self.imputation["anyway"]}))
 
     def result(self, with_assessment: bool = True, assessment=None, with_record: bool = True):
         """The full analysis of the model shown, exactly as shown: fit, tests, assessment, profile, validation.
@@ -664,6 +763,11 @@ class Workspace:
         from twofold.core.outputs.summary import add_study_records, fit_record
 
         spec = self.spec()
+        if self.imputation:
+            from twofold.core.analysis import run_imputed_analysis
+
+            return run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
+                                        copies=self.imputed_copies(), model_only=not with_record)
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
             assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))
@@ -743,6 +847,10 @@ class Workspace:
             ws.threshold = float(session["threshold"])
         ws.report_options = dict(session["report"])
         ws.profile_always = bool(session["profile_ci"]) and not profile_auto(ws.shown_fit())
+        if session.get("impute"):
+            ws.imputation = {"m": int(session["impute"]), "seed": session["seed"],
+                             "auxiliary": list(session.get("auxiliary") or []),
+                             "anyway": bool(session.get("impute_anyway"))}
         saved = session.get("validation_result")
         if saved and session.get("validate"):
             from twofold.core.models.modelling import Validation

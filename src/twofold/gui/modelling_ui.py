@@ -76,8 +76,7 @@ def interaction_job(focus: str, other: str, at=None):
 
 def current_fit_job(ws):
     """A job returning the fit of the model shown (for the bootstrap, which only reads it)."""
-    ws.require_model()
-    return {"kind": "current", "fit": ws.shown_fit(), "thresholds": ws.decision_thresholds()}
+    return {"kind": "current", "fit": ws.fit_for_validation(), "thresholds": ws.decision_thresholds()}
 
 
 # ---- the bootstrap thread ---------------------------------------------------------

@@ -68,6 +68,7 @@ class Session(QObject):
     requestFinished = Signal(int)     # id of every request that completed (shown or not)
     loadStarted = Signal(str)         # a file is being opened: ticks would apply to the old one
     loadProgress = Signal(float)      # share of the file read so far, 0 to 1
+    imputeProgress = Signal(float)    # share of the imputed copies made so far, 0 to 1
     payloadReady = Signal(int, object)  # (request id, payload) of a call()
     profileReady = Signal(object)     # ProfileView of the model shown
     ladderChanged = Signal(object)    # LadderView: the shown results' ladder, its passed-over models now fitted
@@ -103,6 +104,7 @@ class Session(QObject):
         #: The analysis (worker side: touch it only inside jobs run by :meth:`call`).
         self.workspace = Workspace()
         self._load_generation = 0
+        self._impute_generation = 0
         self._assessor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-assess")
         self._profiler = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-profile")
         self._assessment_of = None      # (fit, core Assessment, figures) of the last assessment worked out
@@ -254,6 +256,27 @@ class Session(QObject):
             return self._views(())
 
         return self._submit("assess", job, facets=("history",), assess=True)
+
+    def set_imputation(self, m: int | None, seed: int | None = None, anyway: bool = False) -> int:
+        """Fill in missing values by multiple imputation (``m`` copies, ``seed``), or leave incomplete rows out
+        (None); progress goes to :attr:`imputeProgress` and :meth:`cancel_imputation` stops it (the analysis stays
+        as it was).  Returns the id."""
+        self._impute_generation += 1
+        generation = self._impute_generation
+
+        def progress(fraction):
+            self.imputeProgress.emit(fraction)
+            return generation == self._impute_generation
+
+        def job():
+            self.workspace.set_imputation(m, seed, anyway=anyway, progress=progress)
+            return self._views(("results",))
+
+        return self._submit("imputation", job, facets=("results",), on_error=self._snapshot_results)
+
+    def cancel_imputation(self) -> None:
+        """Stop making the imputed copies (the analysis stays as it was)."""
+        self._impute_generation += 1
 
     def set_penalised(self, on: bool) -> int:
         """Show Firth's penalised fit of each model (True) or the ordinary fit (False); returns the id."""
@@ -499,6 +522,12 @@ class Session(QObject):
         fit = ws.shown_fit() if ws.study is not None else None
         if fit is None:
             self._assessed.emit(job_id, None, None)
+            return None
+        if ws.imputation:  # pooled: worked out here on the worker, after the tests were sent (tests first)
+            from twofold.gui import present
+
+            self._assessed.emit(job_id, present.pooled_assessment_view(ws.ladder.current, ws.pooled_assessment(fit),
+                                                                       fit), None)
             return None
         index, study, threshold = ws.ladder.current, ws.study, ws.threshold_for(fit)
         self._assessor.submit(self._assess, job_id, study, fit, index, threshold)

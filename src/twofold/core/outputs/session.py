@@ -507,6 +507,14 @@ class _Checker:
             self.fail(missing.format(absent[0]))
 
 
+def _check_imputation(c, session) -> None:
+    """``impute`` (null, or copies 2 to 100), ``auxiliary`` (column names), ``impute_anyway`` (true or false)."""
+    if session["impute"] is not None:
+        c.integer(session["impute"], "impute", 2, 100)
+    c.names(session["auxiliary"], "auxiliary", cap=MAX_PREDICTORS)
+    c.boolean(session["impute_anyway"], "impute_anyway")
+
+
 def _validate_net_benefit_optimism(c, v: dict) -> None:
     """A kept bootstrap's decision-curve thresholds (risks in (0, 1), rising) and the optimism at each: lists of
     the same length, at most the number of thresholds a decision curve may have."""
@@ -623,6 +631,7 @@ def validate_session(session, path=None) -> dict:
     for column, values in missing.items():
         c.name(column, "a column of 'missing'")
         c.names(values, f"the values that mean missing in {column[:40]!r}", cap=100)
+    _check_imputation(c, session)
     for key in SPEC_KEYS:
         if key not in CHECKED_SPEC_KEYS + ("missing",):
             _plain_json(c, session[key], key)
