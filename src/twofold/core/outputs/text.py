@@ -255,7 +255,8 @@ POOLED_TEST_NAMES = {
 def pooled_test_text(t: dict) -> str:
     """"Pooled likelihood-ratio test (D3, ...): F = 38.6 on 7 and 120,680 degrees of freedom (G scale 270.5), p-value ..."."""
     den = t.get("df_denominator")
-    den_text = "infinite" if den is None else fmt_num(den, 1)
+    # Beyond 10,000 the F reference is the chi-square one to the digits printed; the exact figure is in the JSON.
+    den_text = ("infinitely many" if den is None else "more than 10,000" if den > 10_000 else fmt_num(den, 1))
     stat = t.get("statistic")
     g = t.get("g", None if stat is None else stat * t["df"])
     return (f"{POOLED_TEST_NAMES.get(t.get('kind'), 'Pooled test')}: F = {fmt_num(t.get('statistic'), 2)} on "
