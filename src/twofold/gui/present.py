@@ -275,37 +275,86 @@ def nested_view(ws, parent: int, index: int) -> TestView:
 PENDING = "being fitted\u2026"
 
 
+#: The ladder table's headings and tips when it lists pooled fits (column key -> (heading, tip)).
+POOLED_LADDER_HEADERS = {
+    "log_likelihood": ("Log-likelihood\n(copies' mean)", "Each copy's maximum log-likelihood, averaged over the "
+                       "imputed copies (higher fits better)"),
+    "aic": ("AIC", "Not defined for models pooled over imputed copies: see the note above the table"),
+    "g": ("Pooled test against\nthe model before (F)", "The pooled likelihood-ratio statistic D3 (Meng & Rubin "
+          "1992) against the model it was built from, on its F distribution (D2 for penalised fits)"),
+    "df": ("Degrees of\nfreedom (F)", "The F distribution's two degrees of freedom: the coefficients added, and "
+           "the denominator's (Li, Raghunathan & Rubin 1991)"),
+    "p_value": ("p-value", "p-value of the pooled test on its F distribution"),
+}
+
+#: Why the ladder shows no AIC for pooled fits.
+POOLED_LADDER_NOTE = (
+    "Missing values are filled in: each row is its model fitted on every one of the {m} imputed copies and pooled. "
+    "The log-likelihood is the copies' average, and the test against the model before is the pooled "
+    "likelihood-ratio test (D3; D2 for penalised fits) on its F distribution, as in the results pane. No AIC is "
+    "shown: the copies' likelihoods are those of filled-in values, not of the values observed, and averaging them "
+    "counts every imputed value as if it had been seen, so their average is not the AIC of the data and its "
+    "differences between models have no known scale; compare pooled models by the pooled tests instead."
+)
+
+
+def _pooled_cells(test) -> dict:
+    """A pooled test's cells in the ladder table: 'F (kind)', 'k and denominator', p."""
+    den = test.df_denominator
+    return {"g": f"{fmt_num(test.statistic, 2)} ({test.kind})",
+            "df": f"{test.df} and " + ("infinite" if not math.isfinite(den) else fmt_num(den, 1)),
+            "p_value": fmt_p(test.p_value)}
+
+
 def ladder_view(ws) -> LadderView:
+    """The ladder table: each rung's fit and its test against the rung it was built from.
+
+    With multiple imputation on, each row is the rung's pooled fit (those not yet made on the copies in force say
+    "being fitted" until :meth:`Workspace.complete` makes them) and its pooled nested test.
+    """
     ladder, parents, study, penalised = ws.ladder, ws.parents, ws.study, ws.penalised
+    pooled = bool(ws.imputation)
     rows = []
     for k, rung in enumerate(ladder.rungs):
         # A model passed over by quicker ticks is fitted just after the newest is shown: it is not waited for.
-        fit = rung.fit if rung.fitted else None
+        fit = ws.known_fit(k)
         g = df = p = None
         parent = parents.get(k)
         texts = {"n_params": "", "log_likelihood": PENDING, "aic": "", "g": "", "df": "", "p_value": ""}
         if fit is not None:
-            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2), aic=fmt_num(fit.aic, 1))
+            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2),
+                         aic="not defined" if pooled else fmt_num(fit.aic, 1))
         change = "first model"
+        extra = {}
         if parent is not None:
             change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
-            test = ladder.nested(parent, k) if fit is not None and ladder.rungs[parent].fitted else PENDING
+            ready = fit is not None and ws.known_fit(parent) is not None
+            test = PENDING if not ready else ws.nested_between(parent, k) if pooled else ladder.nested(parent, k)
             if test is PENDING:
                 texts.update(g=PENDING if fit is not None else "")
             elif test is not None:
                 g, df, p = test.g, test.df, test.p_value
-                texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
+                if pooled:
+                    texts.update(_pooled_cells(test))
+                    extra = {"statistic": test.statistic, "df_denominator": test.df_denominator, "kind": test.kind}
+                else:
+                    texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
             else:
                 texts.update(g="not nested")
+        figures = (fit.n_params, fit.llf, None if pooled else fit.aic) if fit is not None else (None, None, None)
         rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors, study), change,
-                              *((fit.n_params, fit.llf, fit.aic) if fit is not None else (None, None, None)),
-                              g, df, p, texts, k == ladder.current))
+                              *figures, g, df, p, texts, k == ladder.current, **extra))
     n = len(ladder.rows) if ladder.rows is not None else 0
     notices = [x.message for x in ladder.notices]
-    if penalised:
+    if pooled:
+        # Every row with an outcome (the rows of the complete-rows ladder and its notices do not apply).
+        n = next((f.n_used for f in map(ws.known_fit, range(len(ladder.rungs))) if f is not None), 0)
+        notices = [POOLED_LADDER_NOTE.format(m=ws.imputation["m"])]
+    elif penalised:
         notices.append("The ladder lists the ordinary (maximum-likelihood) fits, so its log-likelihoods, AIC and "
                        "tests differ from the penalised ones the results pane shows for the model chosen.")
-    return LadderView(tuple(rows), ladder.current, n, tuple(notices))
+    return LadderView(tuple(rows), ladder.current, n, tuple(notices),
+                      headers=dict(POOLED_LADDER_HEADERS) if pooled else {})
 
 
 #: What the results pane says once the penalised fit is chosen.

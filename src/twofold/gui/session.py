@@ -542,7 +542,7 @@ class Session(QObject):
         otherwise the finished ladder is sent for the same request.
         """
         ws = self.workspace
-        if ws.ladder is None or not ws.ladder.pending:
+        if ws.ladder is None or not ws.pending:
             return None
 
         def newer():
