@@ -392,3 +392,37 @@ def test_identical_copies_pool_to_the_single_fits_assessment():
     # With no between-copy variance the interval is DeLong's on the logit scale, with t on the complete-data
     # Barnard-Rubin df (nearly normal here).
     assert a["auc_ci"] == pytest.approx([ref.ci_low, ref.ci_high], rel=2e-3)
+
+
+def test_pooled_curves_are_those_of_the_averaged_linear_predictor():
+    """The pooled ROC curve and risk groups: scikit-learn's ROC and pandas' deciles of the risks made by averaging,
+    over statsmodels' fits of each copy, the linear predictors under the mean of the copies' estimates."""
+    from sklearn.metrics import roc_auc_score, roc_curve
+
+    from twofold.core.models.pooling import pooled_curves
+
+    frame = mar_frame(5, n=900)
+    st = make_study(frame)
+    imp = impute(st, ["x1", "x2"], m=5, seed=2)
+    fit = ImputedCopies(st, imp).fit(["x1", "x2"])
+    frames = [imp.frame(frame, j).iloc[imp.rows] for j in range(imp.m)]
+    fits = _copies_by_statsmodels(frames, ["x1", "x2"])
+    q = np.mean([r.params for _, r in fits], axis=0)  # Rubin's rules: the pooled estimate is the mean
+    p = expit(np.mean([model.exog @ q for model, _ in fits], axis=0))
+    y = frames[0]["y"].to_numpy(dtype=float)
+    curves = pooled_curves(fit)
+    assert curves.auc == pytest.approx(roc_auc_score(y, p), rel=1e-9)
+    fpr, tpr, _ = roc_curve(y, p, drop_intermediate=False)
+    # Every point of scikit-learn's curve lies on ours (ours may start at (0, 0) and step the same way).
+    ours = sorted(zip(np.round(curves.roc.fpr, 12), np.round(curves.roc.tpr, 12)))
+    assert set(zip(np.round(fpr, 12), np.round(tpr, 12))) <= set(ours) | {(0.0, 0.0)}
+    # Ten groups of about equal size by predicted risk (no ties among these risks): pandas' deciles.
+    deciles = pd.qcut(p, 10, labels=False)
+    observed = pd.Series(y).groupby(deciles).mean().to_numpy()
+    mean_p = pd.Series(p).groupby(deciles).mean().to_numpy()
+    assert curves.groups.observed == pytest.approx(observed, abs=1e-12)
+    assert curves.groups.mean_predicted == pytest.approx(mean_p, rel=1e-9)
+    # Invariance: the pooled predictions do not depend on the order of the copies.
+    shuffled = ImputedCopies(st, imp)
+    shuffled.studies = shuffled.studies[::-1]
+    assert pooled_curves(shuffled.fit(["x1", "x2"])).auc == pytest.approx(curves.auc, rel=1e-9)

@@ -222,3 +222,11 @@ def test_ladder_rows_show_pooled_fits_and_d3_while_imputing(qtbot, window):
         assert cell(row, 4) == fmt_num(llf, 2)
     # The results pane's nested test is the same pooled test as the ladder's last row.
     assert f"F = {cell(2, 6).split(' ')[0]} on 1 and" in window.results_pane.view.previous.text
+    # The pooled assessment follows, with the ROC curve and calibration plot of the pooled predictions.
+    box = window.results_pane.assessment_box
+    qtbot.waitUntil(lambda: box.view is not None and "pooled" in box.view.title and box.view.rung == 2,
+                    timeout=WAIT_MS)
+    for key in ("roc", "calibration"):
+        assert not box.plots[key].isHidden() and not box.plots[key].pixmap().isNull()
+    assert box.plots["influence"].isHidden()
+    assert not box.plot_note.isHidden() and "are of the pooled predictions" in box.plot_note.text()

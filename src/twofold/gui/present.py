@@ -610,9 +610,15 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     )
 
 
-def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
-    """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded; no figures."""
+def pooled_assessment_view(index: int, a: dict, fit, figures=None, curves=None) -> AssessmentView:
+    """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded, with the figures of
+    the pooled predictions (``curves``: :func:`twofold.core.models.pooling.pooled_curves`; ``figures``: their PNG
+    bytes) when given."""
     lo, hi = a["auc_ci"]
+    plot_note = ""
+    if curves is not None:
+        unsteady = curves.smooth is not None and bool(curves.smooth.unreliable)
+        plot_note = curves.note + (" " + SMOOTH_UNRELIABLE_NOTE if unsteady else "")
     auc = a["auc"]
     drop = tuple(
         (t["label"], pooled_test_text({**t, "g": t["g"]}) if t["available"] else "not available",
@@ -636,7 +642,7 @@ def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
         classification_text="Classification at a risk threshold: not pooled (it would count imputed values).",
         threshold_note="The pooled figures above do not depend on the threshold.",
         notes=(a["pooled_note"],), values={"auc": auc, "auc_ci_low": lo, "auc_ci_high": hi},
-        penalised=is_penalised(fit),
+        penalised=is_penalised(fit), figures=dict(figures or {}), calibration_plot_note=plot_note,
     )
 
 

@@ -497,6 +497,53 @@ def pooled_assessment(fit: PooledFit) -> dict:
 
 
 
+#: How the figures of a pooled fit name what they draw (window and report alike).
+POOLED_LABEL = "pooled predictions"
+
+#: What the pooled ROC curve and calibration plot show, said beside them in the window and the report.
+POOLED_CURVES_NOTE = (
+    "The ROC curve and the calibration plot are of the pooled predictions: each record's linear predictor under the "
+    "pooled coefficients, averaged over the imputed copies, then turned into a risk (as the risk calculator and "
+    "the saved model predict). The area under that curve can differ a little from the pooled area above, which "
+    "pools each copy's area on the logit scale."
+)
+
+
+@dataclass(frozen=True)
+class PooledCurves:
+    """The ROC curve and calibration of a pooled fit's pooled predictions (see :func:`pooled_curves`)."""
+
+    roc: object          # discrimination.RocCurve
+    auc: float           # the area under that curve
+    groups: object       # calibration.CalibrationGroups, or None when they cannot be formed
+    smooth: object       # calibration.SmoothedCalibration, or None
+    note: str = POOLED_CURVES_NOTE
+
+
+def pooled_curves(fit: PooledFit) -> PooledCurves:
+    """ROC points, risk groups and the smoothed calibration curve of the pooled predictions ``fit.fitted``.
+
+    The outcome is never imputed, so it is the same in every copy; the predictions are the copies' linear
+    predictors under the pooled coefficients, averaged (:attr:`PooledFit.linear_predictor`), then the risk taken.
+    One curve of the predictions the pooled model makes, rather than m curves to be pooled (a curve has no
+    Rubin's rules), drawn by the same routines as a single fit's.
+    """
+    from twofold.core.assessing.calibration import calibration_groups, smoothed_calibration
+    from twofold.core.assessing.discrimination import auc_delong, roc_points
+    from twofold.core.errors import TwofoldError
+
+    y, p = fit.design.y, fit.fitted
+    try:
+        groups = calibration_groups(y, p)
+    except TwofoldError:
+        groups = None
+    try:
+        smooth = smoothed_calibration(y, p)
+    except TwofoldError:
+        smooth = None
+    return PooledCurves(roc_points(y, p), float(auc_delong(y, p).auc), groups, smooth)
+
+
 @dataclass(frozen=True)
 class PooledTermLRTest(TermLRTest):
     """A curve or interaction test pooled over the copies (``statistic`` on F(df, df_denominator))."""
