@@ -315,9 +315,33 @@ class PooledFit(LogisticFit):
                                          within.get(column, ()), df_den)
         return out
 
+    @cached_property
+    def imputed_rows(self) -> tuple:
+        """(rows the same in every copy, rows with an imputed cell in some copy), as positions among the rows used.
+
+        The copies differ only in their imputed cells (the same levels, knots and outcome), so a row with no
+        imputed cell has the same design row and outcome in every copy.
+        """
+        rows = self.design.rows
+        imputed = [np.asarray(c, dtype=np.int64) for c in getattr(self.imputation, "cells", {}).values()]
+        differ = np.isin(rows, np.concatenate(imputed)) if imputed else np.zeros(len(rows), dtype=bool)
+        return np.flatnonzero(~differ), np.flatnonzero(differ)
+
     def log_likelihoods_at(self, params) -> np.ndarray:
-        """Each copy's log-likelihood at the same coefficients."""
-        return np.array([log_likelihood(f.design.y, f.used_X @ params) for f in self.fits])
+        """Each copy's log-likelihood at the same coefficients.
+
+        The rows without an imputed cell add the same to every copy's, so they are summed once (on the first
+        copy) and only the rows with an imputed cell are evaluated on each copy: at 100,000 rows with a fifth of
+        them imputed, a fifth of the work of evaluating every copy in full.
+        """
+        same, differ = self.imputed_rows
+        if not len(same):
+            return np.array([log_likelihood(f.design.y, f.used_X @ params) for f in self.fits])
+        first = self.fits[0]
+        y = first.design.y
+        common = log_likelihood(y[same], (first.used_X @ params)[same])
+        y_differ = y[differ]
+        return np.array([common + log_likelihood(y_differ, f.used_X[differ] @ params) for f in self.fits])
 
     @cached_property
     def llf_at_pooled(self) -> np.ndarray:
