@@ -442,3 +442,32 @@ def test_likelihoods_at_pooled_estimates_equal_statsmodels_on_each_whole_copy():
     params = fit.params + 0.05  # any coefficients, not only the pooled ones
     expected = [sm.Logit(f.design.y, f.used_X).loglike(params) for f in fit.fits]
     assert fit.log_likelihoods_at(params) == pytest.approx(expected, rel=1e-12)
+
+
+def test_copies_fitted_on_two_threads_agree_with_one_at_a_time(monkeypatch):
+    """The same pooled fit whichever way the copies are fitted (invariance); and a copy's separation, which
+    statsmodels says by a warning, still reaches its fit when the copies are fitted on two threads."""
+    from twofold.core.models import pooling
+
+    st = make_study(mixed_frame(n=900))
+    imp = impute(st, ["age", "ward", "smoker"], m=6, seed=4)
+    monkeypatch.setattr(pooling, "TWO_THREADS_FROM", 10 ** 9)
+    one = ImputedCopies(st, imp).fit(["age", "ward", "smoker"])
+    monkeypatch.setattr(pooling, "TWO_THREADS_FROM", 1)
+    two = ImputedCopies(st, imp).fit(["age", "ward", "smoker"])
+    assert two.params == pytest.approx(one.params, rel=1e-7, abs=1e-9)
+    assert two.cov == pytest.approx(one.cov, rel=1e-6, abs=1e-12)
+    assert two.overall.statistic == pytest.approx(one.overall.statistic, rel=1e-7)
+    # x separates the outcome completely in every copy (statsmodels warns of perfect separation).
+    rng = np.random.default_rng(2)
+    x = rng.standard_normal(300)
+    frame = pd.DataFrame({"y": (x > 0).astype(float), "x": x, "z": np.where(rng.random(300) < 0.2, np.nan,
+                                                                            rng.standard_normal(300))})
+    st = make_study(frame)
+    results = {}
+    for limit in (10 ** 9, 1):
+        monkeypatch.setattr(pooling, "TWO_THREADS_FROM", limit)
+        fit = ImputedCopies(st, impute(st, ["x", "z"], m=4, seed=1)).fit(["x", "z"])
+        results[limit] = [n.code for n in fit.notices]
+    assert "separation" in results[1]
+    assert results[1] == results[10 ** 9]
