@@ -222,6 +222,16 @@ def test_ladder_rows_show_pooled_fits_and_d3_while_imputing(qtbot, window):
         assert cell(row, 4) == fmt_num(llf, 2)
     # The results pane's nested test is the same pooled test as the ladder's last row.
     assert f"F = {cell(2, 6).split(' ')[0]} on 1 and" in window.results_pane.view.previous.text
+    # So is "Compare" of models 1 and 3 (D3 of the two added predictors together), with no AIC.
+    ladder = window.ladder_pane
+    ladder.first.setCurrentIndex(0)
+    ladder.second.setCurrentIndex(2)
+    qtbot.mouseClick(ladder.compare_button, Qt.MouseButton.LeftButton)
+    qtbot.waitUntil(lambda: "compared with model 3" in ladder.comparison.text(), timeout=WAIT_MS)
+    stat, k, v, p, _ = _d3_reference(frames, y, ["age"], ["age", "comorbidity_score", "lives_alone"])
+    shown = ladder.comparison.text()
+    assert f"F = {fmt_num(stat, 2)} on 2 and {fmt_num(v, 1)} degrees of freedom" in shown
+    assert f"p-value {fmt_p(p)}" in shown and "No AIC or BIC" in shown
     # The pooled assessment follows, with the ROC curve and calibration plot of the pooled predictions.
     box = window.results_pane.assessment_box
     qtbot.waitUntil(lambda: box.view is not None and "pooled" in box.view.title and box.view.rung == 2,

@@ -623,7 +623,25 @@ class Workspace:
             raise ModelError("Choose two models of the ladder to compare.")
         if i == j:
             raise ModelError(f"Model {i + 1} was chosen twice; choose two different models to compare.")
+        if self.imputation:
+            return self._compare_pooled(i, j)
         return self.ladder.compare(i, j)
+
+    def _compare_pooled(self, i: int, j: int):
+        """Rungs i and j pooled over the imputed copies: the pooled nested test (D3; D2 for penalised fits) when
+        one is nested in the other; no AIC or BIC (not defined for pooled fits) and no paired AUC test."""
+        from twofold.core.models.ladder import Comparison
+
+        test = self.nested_between(i, j)
+        same = set(self.ladder.rungs[i].predictors) == set(self.ladder.rungs[j].predictors)
+        if test is not None:
+            note = "One model is nested in the other, so the pooled likelihood-ratio test applies."
+        elif same:
+            note = "The two models have the same predictors."
+        else:
+            note = ("Neither model contains the other, so no pooled likelihood-ratio test applies; AIC is not defined "
+                    "for models pooled over imputed copies, so these two cannot be compared here.")
+        return Comparison(i, j, test is not None, test, float("nan"), float("nan"), note)
 
     def shape_tests(self, fit) -> tuple[list, list]:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""

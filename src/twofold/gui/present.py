@@ -484,6 +484,8 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
     a, b = i + 1, j + 1
     diffs = (f"AIC difference (model {b} minus model {a}): {fmt_num(c.aic_difference, 2)}; "
              f"BIC difference: {fmt_num(c.bic_difference, 2)}; lower is better.")
+    if ws.imputation:
+        diffs = "No AIC or BIC: they are not defined for models pooled over imputed copies."
     auc = getattr(c, "auc_test", None)
     if auc is not None:
         diffs += (f" Area under the ROC curve (c statistic): model {a} {fmt_num(auc.auc_a, 3)}, model {b} "
@@ -499,9 +501,9 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
         small, large, which = a, b, list(t.added)
     else:
         small, large, which = b, a, list(t.removed)
-    text = (f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). "
-            f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
-            + diffs)
+    test_text = (_pooled_text(t) or f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, "
+                 f"p-value {fmt_p(t.p_value)}")
+    text = f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). {test_text}. " + diffs
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return ComparisonView(i, j, True, text, reading, c.note, t.g, t.df, t.p_value,
                           c.aic_difference, c.bic_difference)
