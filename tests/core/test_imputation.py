@@ -392,3 +392,82 @@ def test_identical_copies_pool_to_the_single_fits_assessment():
     # With no between-copy variance the interval is DeLong's on the logit scale, with t on the complete-data
     # Barnard-Rubin df (nearly normal here).
     assert a["auc_ci"] == pytest.approx([ref.ci_low, ref.ci_high], rel=2e-3)
+
+
+def test_pooled_curves_are_those_of_the_averaged_linear_predictor():
+    """The pooled ROC curve and risk groups: scikit-learn's ROC and pandas' deciles of the risks made by averaging,
+    over statsmodels' fits of each copy, the linear predictors under the mean of the copies' estimates."""
+    from sklearn.metrics import roc_auc_score, roc_curve
+
+    from twofold.core.models.pooling import pooled_curves
+
+    frame = mar_frame(5, n=900)
+    st = make_study(frame)
+    imp = impute(st, ["x1", "x2"], m=5, seed=2)
+    fit = ImputedCopies(st, imp).fit(["x1", "x2"])
+    frames = [imp.frame(frame, j).iloc[imp.rows] for j in range(imp.m)]
+    fits = _copies_by_statsmodels(frames, ["x1", "x2"])
+    q = np.mean([r.params for _, r in fits], axis=0)  # Rubin's rules: the pooled estimate is the mean
+    p = expit(np.mean([model.exog @ q for model, _ in fits], axis=0))
+    y = frames[0]["y"].to_numpy(dtype=float)
+    curves = pooled_curves(fit)
+    assert curves.auc == pytest.approx(roc_auc_score(y, p), rel=1e-9)
+    fpr, tpr, _ = roc_curve(y, p, drop_intermediate=False)
+    # Every point of scikit-learn's curve lies on ours (ours may start at (0, 0) and step the same way).
+    ours = sorted(zip(np.round(curves.roc.fpr, 12), np.round(curves.roc.tpr, 12)))
+    assert set(zip(np.round(fpr, 12), np.round(tpr, 12))) <= set(ours) | {(0.0, 0.0)}
+    # Ten groups of about equal size by predicted risk (no ties among these risks): pandas' deciles.
+    deciles = pd.qcut(p, 10, labels=False)
+    observed = pd.Series(y).groupby(deciles).mean().to_numpy()
+    mean_p = pd.Series(p).groupby(deciles).mean().to_numpy()
+    assert curves.groups.observed == pytest.approx(observed, abs=1e-12)
+    assert curves.groups.mean_predicted == pytest.approx(mean_p, rel=1e-9)
+    # Invariance: the pooled predictions do not depend on the order of the copies.
+    shuffled = ImputedCopies(st, imp)
+    shuffled.studies = shuffled.studies[::-1]
+    assert pooled_curves(shuffled.fit(["x1", "x2"])).auc == pytest.approx(curves.auc, rel=1e-9)
+
+
+def test_likelihoods_at_pooled_estimates_equal_statsmodels_on_each_whole_copy():
+    """The D3 likelihoods sum the rows never imputed once; statsmodels' Logit.loglike of each whole copy agrees,
+    for a model with a curve, groups and an interaction (whose design rows could differ between copies)."""
+    import statsmodels.api as sm
+
+    st = make_study(mixed_frame(n=700))
+    st.set_spline("age", 4)
+    copies = ImputedCopies(st, impute(st, ["age", "ward", "smoker", "lab"], m=4, seed=8))
+    fit = copies.fit(["age", "ward", "smoker", "lab", "smoker:lab"])
+    same, differ = fit.imputed_rows
+    assert len(same) and len(differ)  # both kinds of rows are present, so the shortcut is exercised
+    params = fit.params + 0.05  # any coefficients, not only the pooled ones
+    expected = [sm.Logit(f.design.y, f.used_X).loglike(params) for f in fit.fits]
+    assert fit.log_likelihoods_at(params) == pytest.approx(expected, rel=1e-12)
+
+
+def test_copies_fitted_on_two_threads_agree_with_one_at_a_time(monkeypatch):
+    """The same pooled fit whichever way the copies are fitted (invariance); and a copy's separation, which
+    statsmodels says by a warning, still reaches its fit when the copies are fitted on two threads."""
+    from twofold.core.models import pooling
+
+    st = make_study(mixed_frame(n=900))
+    imp = impute(st, ["age", "ward", "smoker"], m=6, seed=4)
+    monkeypatch.setattr(pooling, "TWO_THREADS_FROM", 10 ** 9)
+    one = ImputedCopies(st, imp).fit(["age", "ward", "smoker"])
+    monkeypatch.setattr(pooling, "TWO_THREADS_FROM", 1)
+    two = ImputedCopies(st, imp).fit(["age", "ward", "smoker"])
+    assert two.params == pytest.approx(one.params, rel=1e-7, abs=1e-9)
+    assert two.cov == pytest.approx(one.cov, rel=1e-6, abs=1e-12)
+    assert two.overall.statistic == pytest.approx(one.overall.statistic, rel=1e-7)
+    # x separates the outcome completely in every copy (statsmodels warns of perfect separation).
+    rng = np.random.default_rng(2)
+    x = rng.standard_normal(300)
+    frame = pd.DataFrame({"y": (x > 0).astype(float), "x": x, "z": np.where(rng.random(300) < 0.2, np.nan,
+                                                                            rng.standard_normal(300))})
+    st = make_study(frame)
+    results = {}
+    for limit in (10 ** 9, 1):
+        monkeypatch.setattr(pooling, "TWO_THREADS_FROM", limit)
+        fit = ImputedCopies(st, impute(st, ["x", "z"], m=4, seed=1)).fit(["x", "z"])
+        results[limit] = [n.code for n in fit.notices]
+    assert "separation" in results[1]
+    assert results[1] == results[10 ** 9]

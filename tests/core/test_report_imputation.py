@@ -6,6 +6,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.outputs.report import Table, build_report
@@ -67,3 +68,22 @@ def test_warnings_say_what_imputation_leaves_out(tmp_path):
     assert "31 rows were left out (31 with no outcome); an outcome is never imputed." in text
     assert "complete rows only." not in text.split("The records")[0]
     assert "pulled towards none" in text  # the imputation model has no curves (White, Royston & Wood 2011)
+
+
+def test_report_draws_the_pooled_predictions_roc_and_calibration_as_the_window_does():
+    from sklearn.metrics import roc_auc_score
+
+    from twofold.core.models.pooling import POOLED_CURVES_NOTE
+    from twofold.core.outputs.report import Figure
+
+    result, rep = imputed_report(READMIT, 0)
+    figures = {b.kind: b for b in rep.blocks if isinstance(b, Figure)}
+    roc, cal = figures["roc"], figures["calibration"]
+    assert roc.data["label"] == cal.data["label"] == "pooled predictions"
+    assert "ROC curve of the pooled predictions" in roc.caption and cal.caption.startswith("Of the pooled predictions")
+    assert POOLED_CURVES_NOTE in rep.text()
+    # The area drawn is scikit-learn's area of the pooled fit's risks (the copies' linear predictors averaged).
+    # Records with the same values get risks that differ only by rounding (their linear predictors are averages of
+    # sums taken in other orders), so they are tied at 12 digits before scikit-learn ranks them.
+    fit = result.fit
+    assert roc.data["auc"] == pytest.approx(roc_auc_score(fit.design.y, np.round(fit.fitted, 12)), rel=1e-9)

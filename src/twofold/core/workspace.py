@@ -527,8 +527,42 @@ class Workspace:
         return change
 
     def complete(self, stop=None) -> int:
-        """Make the fits of the ladder that were put off (newest first) until ``stop()`` is true; how many."""
-        return self.ladder.complete(stop) if self.ladder is not None else 0
+        """Make the fits of the ladder that were put off (newest first) until ``stop()`` is true; how many.
+
+        With multiple imputation on, these are the pooled fits of the rungs not yet fitted on the copies in force
+        (the ladder table shows pooled figures then; the complete-rows fits are made only when read)."""
+        if self.ladder is None:
+            return 0
+        if not self.imputation:
+            return self.ladder.complete(stop)
+        made = 0
+        for k in reversed(self.pending):
+            if stop is not None and stop():
+                break
+            self.pooled_fit(k)
+            made += 1
+        return made
+
+    @property
+    def pending(self) -> list[int]:
+        """Indices of the rungs whose shown fit is still to be made (pooled fits on the copies in force when
+        imputing; else the fits the ladder put off)."""
+        if self.ladder is None:
+            return []
+        if not self.imputation:
+            return self.ladder.pending
+        return [k for k in range(len(self.ladder.rungs)) if self.known_fit(k) is None]
+
+    def known_fit(self, index: int):
+        """The fit the ladder table lists for rung ``index`` if it is already made, else None (never fits or imputes):
+        the pooled fit when imputing, else the rung's own (maximum-likelihood) fit."""
+        if not self.imputation:
+            rung = self.ladder.rungs[index]
+            return rung.fit if rung.fitted else None
+        copies = self._copies[1] if self._copies is not None and self._copies[0] == self._copies_key() else None
+        if copies is None:
+            return None
+        return self._pooled.get((copies, tuple(self.ladder.rungs[index].predictors), self.penalised))
 
     # ---- derived figures ---------------------------------------------------------------
     def fit_of(self, index: int):
@@ -589,7 +623,25 @@ class Workspace:
             raise ModelError("Choose two models of the ladder to compare.")
         if i == j:
             raise ModelError(f"Model {i + 1} was chosen twice; choose two different models to compare.")
+        if self.imputation:
+            return self._compare_pooled(i, j)
         return self.ladder.compare(i, j)
+
+    def _compare_pooled(self, i: int, j: int):
+        """Rungs i and j pooled over the imputed copies: the pooled nested test (D3; D2 for penalised fits) when
+        one is nested in the other; no AIC or BIC (not defined for pooled fits) and no paired AUC test."""
+        from twofold.core.models.ladder import Comparison
+
+        test = self.nested_between(i, j)
+        same = set(self.ladder.rungs[i].predictors) == set(self.ladder.rungs[j].predictors)
+        if test is not None:
+            note = "One model is nested in the other, so the pooled likelihood-ratio test applies."
+        elif same:
+            note = "The two models have the same predictors."
+        else:
+            note = ("Neither model contains the other, so no pooled likelihood-ratio test applies; AIC is not defined "
+                    "for models pooled over imputed copies, so these two cannot be compared here.")
+        return Comparison(i, j, test is not None, test, float("nan"), float("nan"), note)
 
     def shape_tests(self, fit) -> tuple[list, list]:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""
@@ -711,21 +763,26 @@ class Workspace:
 
     def imputed_copies(self, progress=None):
         """The imputed copies for the settings in force and every column of the ladder (made once, then kept)."""
-        from twofold.core.analysis import columns_of
         from twofold.core.models.imputation import impute
         from twofold.core.models.pooling import ImputedCopies
 
         if not self.imputation:
             raise ModelError("Multiple imputation is not switched on; choose it under missing values first.")
-        study = self.study
-        columns = columns_of(study, self.ladder.used_predictors)
-        s = self.imputation
-        key = (tuple(columns), s["m"], s["seed"], tuple(s["auxiliary"]), s["anyway"], id(study.frame),
-               tuple((n, c.role) for n, c in study.columns.items()), study.outcome, study.event)
+        key = self._copies_key()
         if self._copies is None or self._copies[0] != key:
-            made = impute(study, columns, s["m"], s["seed"], s["auxiliary"], s["anyway"], progress=progress)
+            s, study = self.imputation, self.study
+            made = impute(study, list(key[0]), s["m"], s["seed"], s["auxiliary"], s["anyway"], progress=progress)
             self._copies = (key, ImputedCopies(study, made))
         return self._copies[1]
+
+    def _copies_key(self) -> tuple:
+        """What the imputed copies depend on: the columns of the ladder, the settings, the data and its roles."""
+        from twofold.core.analysis import columns_of
+
+        study, s = self.study, self.imputation
+        columns = columns_of(study, self.ladder.used_predictors)
+        return (tuple(columns), s["m"], s["seed"], tuple(s["auxiliary"]), s["anyway"], id(study.frame),
+                tuple((n, c.role) for n, c in study.columns.items()), study.outcome, study.event)
 
     # ---- the whole analysis as a record -----------------------------------------------------
     def spec(self):

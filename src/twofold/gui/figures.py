@@ -2,4 +2,4 @@
 
 from __future__ import annotations
 
-from twofold.render.assessed import assessment_figures  # noqa: F401  (the window's name for it)
+from twofold.render.assessed import assessment_figures, pooled_figures  # noqa: F401  (the window's names for them)

@@ -1437,7 +1437,7 @@ class LadderPane(QWidget):
         """The same models, with those passed over by quicker ticks now fitted."""
         if len(ladder.rows) == self.model.rowCount():
             with QSignalBlocker(self.table.selectionModel()):
-                self.model.set_rows(ladder.rows)
+                self.model.set_rows(ladder.rows, ladder.headers)
                 if ladder.current is not None:
                     self.table.selectRow(ladder.current)
 
@@ -1447,7 +1447,7 @@ class LadderPane(QWidget):
                 self.model.set_rows(())
                 self.notices.hide()
             else:
-                self.model.set_rows(view.ladder.rows)
+                self.model.set_rows(view.ladder.rows, view.ladder.headers)
                 header = self.table.horizontalHeader()
                 header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
                 # The predictor lists share what is left; the numbers always show in full.

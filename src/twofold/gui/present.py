@@ -275,37 +275,86 @@ def nested_view(ws, parent: int, index: int) -> TestView:
 PENDING = "being fitted\u2026"
 
 
+#: The ladder table's headings and tips when it lists pooled fits (column key -> (heading, tip)).
+POOLED_LADDER_HEADERS = {
+    "log_likelihood": ("Log-likelihood\n(copies' mean)", "Each copy's maximum log-likelihood, averaged over the "
+                       "imputed copies (higher fits better)"),
+    "aic": ("AIC", "Not defined for models pooled over imputed copies: see the note above the table"),
+    "g": ("Pooled test against\nthe model before (F)", "The pooled likelihood-ratio statistic D3 (Meng & Rubin "
+          "1992) against the model it was built from, on its F distribution (D2 for penalised fits)"),
+    "df": ("Degrees of\nfreedom (F)", "The F distribution's two degrees of freedom: the coefficients added, and "
+           "the denominator's (Li, Raghunathan & Rubin 1991)"),
+    "p_value": ("p-value", "p-value of the pooled test on its F distribution"),
+}
+
+#: Why the ladder shows no AIC for pooled fits.
+POOLED_LADDER_NOTE = (
+    "Missing values are filled in: each row is its model fitted on every one of the {m} imputed copies and pooled. "
+    "The log-likelihood is the copies' average, and the test against the model before is the pooled "
+    "likelihood-ratio test (D3; D2 for penalised fits) on its F distribution, as in the results pane. No AIC is "
+    "shown: the copies' likelihoods are those of filled-in values, not of the values observed, and averaging them "
+    "counts every imputed value as if it had been seen, so their average is not the AIC of the data and its "
+    "differences between models have no known scale; compare pooled models by the pooled tests instead."
+)
+
+
+def _pooled_cells(test) -> dict:
+    """A pooled test's cells in the ladder table: 'F (kind)', 'k and denominator', p."""
+    den = test.df_denominator
+    return {"g": f"{fmt_num(test.statistic, 2)} ({test.kind})",
+            "df": f"{test.df} and " + ("infinite" if not math.isfinite(den) else fmt_num(den, 1)),
+            "p_value": fmt_p(test.p_value)}
+
+
 def ladder_view(ws) -> LadderView:
+    """The ladder table: each rung's fit and its test against the rung it was built from.
+
+    With multiple imputation on, each row is the rung's pooled fit (those not yet made on the copies in force say
+    "being fitted" until :meth:`Workspace.complete` makes them) and its pooled nested test.
+    """
     ladder, parents, study, penalised = ws.ladder, ws.parents, ws.study, ws.penalised
+    pooled = bool(ws.imputation)
     rows = []
     for k, rung in enumerate(ladder.rungs):
         # A model passed over by quicker ticks is fitted just after the newest is shown: it is not waited for.
-        fit = rung.fit if rung.fitted else None
+        fit = ws.known_fit(k)
         g = df = p = None
         parent = parents.get(k)
         texts = {"n_params": "", "log_likelihood": PENDING, "aic": "", "g": "", "df": "", "p_value": ""}
         if fit is not None:
-            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2), aic=fmt_num(fit.aic, 1))
+            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2),
+                         aic="not defined" if pooled else fmt_num(fit.aic, 1))
         change = "first model"
+        extra = {}
         if parent is not None:
             change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
-            test = ladder.nested(parent, k) if fit is not None and ladder.rungs[parent].fitted else PENDING
+            ready = fit is not None and ws.known_fit(parent) is not None
+            test = PENDING if not ready else ws.nested_between(parent, k) if pooled else ladder.nested(parent, k)
             if test is PENDING:
                 texts.update(g=PENDING if fit is not None else "")
             elif test is not None:
                 g, df, p = test.g, test.df, test.p_value
-                texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
+                if pooled:
+                    texts.update(_pooled_cells(test))
+                    extra = {"statistic": test.statistic, "df_denominator": test.df_denominator, "kind": test.kind}
+                else:
+                    texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
             else:
                 texts.update(g="not nested")
+        figures = (fit.n_params, fit.llf, None if pooled else fit.aic) if fit is not None else (None, None, None)
         rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors, study), change,
-                              *((fit.n_params, fit.llf, fit.aic) if fit is not None else (None, None, None)),
-                              g, df, p, texts, k == ladder.current))
+                              *figures, g, df, p, texts, k == ladder.current, **extra))
     n = len(ladder.rows) if ladder.rows is not None else 0
     notices = [x.message for x in ladder.notices]
-    if penalised:
+    if pooled:
+        # Every row with an outcome (the rows of the complete-rows ladder and its notices do not apply).
+        n = next((f.n_used for f in map(ws.known_fit, range(len(ladder.rungs))) if f is not None), 0)
+        notices = [POOLED_LADDER_NOTE.format(m=ws.imputation["m"])]
+    elif penalised:
         notices.append("The ladder lists the ordinary (maximum-likelihood) fits, so its log-likelihoods, AIC and "
                        "tests differ from the penalised ones the results pane shows for the model chosen.")
-    return LadderView(tuple(rows), ladder.current, n, tuple(notices))
+    return LadderView(tuple(rows), ladder.current, n, tuple(notices),
+                      headers=dict(POOLED_LADDER_HEADERS) if pooled else {})
 
 
 #: What the results pane says once the penalised fit is chosen.
@@ -435,6 +484,8 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
     a, b = i + 1, j + 1
     diffs = (f"AIC difference (model {b} minus model {a}): {fmt_num(c.aic_difference, 2)}; "
              f"BIC difference: {fmt_num(c.bic_difference, 2)}; lower is better.")
+    if ws.imputation:
+        diffs = "No AIC or BIC: they are not defined for models pooled over imputed copies."
     auc = getattr(c, "auc_test", None)
     if auc is not None:
         diffs += (f" Area under the ROC curve (c statistic): model {a} {fmt_num(auc.auc_a, 3)}, model {b} "
@@ -450,9 +501,9 @@ def comparison_view(ws, i: int, j: int) -> ComparisonView:
         small, large, which = a, b, list(t.added)
     else:
         small, large, which = b, a, list(t.removed)
-    text = (f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). "
-            f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}. "
-            + diffs)
+    test_text = (_pooled_text(t) or f"Likelihood-ratio test: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, "
+                 f"p-value {fmt_p(t.p_value)}")
+    text = f"Model {small} is nested in model {large} (both on the same {t.n_rows:,} rows). {test_text}. " + diffs
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return ComparisonView(i, j, True, text, reading, c.note, t.g, t.df, t.p_value,
                           c.aic_difference, c.bic_difference)
@@ -561,9 +612,15 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     )
 
 
-def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
-    """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded; no figures."""
+def pooled_assessment_view(index: int, a: dict, fit, figures=None, curves=None) -> AssessmentView:
+    """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded, with the figures of
+    the pooled predictions (``curves``: :func:`twofold.core.models.pooling.pooled_curves`; ``figures``: their PNG
+    bytes) when given."""
     lo, hi = a["auc_ci"]
+    plot_note = ""
+    if curves is not None:
+        unsteady = curves.smooth is not None and bool(curves.smooth.unreliable)
+        plot_note = curves.note + (" " + SMOOTH_UNRELIABLE_NOTE if unsteady else "")
     auc = a["auc"]
     drop = tuple(
         (t["label"], pooled_test_text({**t, "g": t["g"]}) if t["available"] else "not available",
@@ -587,7 +644,7 @@ def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
         classification_text="Classification at a risk threshold: not pooled (it would count imputed values).",
         threshold_note="The pooled figures above do not depend on the threshold.",
         notes=(a["pooled_note"],), values={"auc": auc, "auc_ci_low": lo, "auc_ci_high": hi},
-        penalised=is_penalised(fit),
+        penalised=is_penalised(fit), figures=dict(figures or {}), calibration_plot_note=plot_note,
     )
 
 

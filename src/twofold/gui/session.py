@@ -524,10 +524,11 @@ class Session(QObject):
             self._assessed.emit(job_id, None, None)
             return None
         if ws.imputation:  # pooled: worked out here on the worker, after the tests were sent (tests first)
-            from twofold.gui import present
+            from twofold.core.models.pooling import pooled_curves
 
-            self._assessed.emit(job_id, present.pooled_assessment_view(ws.ladder.current, ws.pooled_assessment(fit),
-                                                                       fit), None)
+            assessment, curves = ws.pooled_assessment(fit), pooled_curves(fit)
+            # Drawn on the assessment thread, so the worker is free for the next request meanwhile.
+            self._assessor.submit(self._draw_pooled, job_id, ws.ladder.current, assessment, curves, fit)
             return None
         index, study, threshold = ws.ladder.current, ws.study, ws.threshold_for(fit)
         self._assessor.submit(self._assess, job_id, study, fit, index, threshold)
@@ -542,7 +543,7 @@ class Session(QObject):
         otherwise the finished ladder is sent for the same request.
         """
         ws = self.workspace
-        if ws.ladder is None or not ws.ladder.pending:
+        if ws.ladder is None or not ws.pending:
             return None
 
         def newer():
@@ -604,6 +605,23 @@ class Session(QObject):
         except Exception as exc:  # never lose a failure silently
             self._emit(self._assessed, job_id, None,
                        Failure("assess", f"{type(exc).__name__}: {exc}", True, log_exception(exc), type(exc).__name__))
+
+    def _draw_pooled(self, job_id, index, assessment, curves, fit) -> None:
+        """Assessment thread: the pooled assessment with the figures of the pooled predictions, unless superseded."""
+        from twofold.gui import present
+        from twofold.gui.figures import pooled_figures
+
+        if self._floor["assessment"] > job_id:
+            return
+        try:
+            pictures = pooled_figures(curves)
+        except Exception as exc:  # a drawing failure loses the pictures only: logged, the numbers still shown
+            log_exception(exc)
+            pictures = {}
+        if self._floor["assessment"] > job_id:
+            return
+        self._emit(self._assessed, job_id, present.pooled_assessment_view(index, assessment, fit, pictures, curves),
+                   None)
 
     def _work_out(self, job_id, study, fit, threshold, checkpoint):
         """Assessment thread: ``(Assessment, figures)`` of ``fit``, from the assessment process when there is one.

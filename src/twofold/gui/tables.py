@@ -328,12 +328,16 @@ class LadderModel(QAbstractTableModel):
     def __init__(self, parent=None):
         super().__init__(parent)
         self.rows: tuple = ()
+        self.headers: dict = {}
         self._bold = QFont()
         self._bold.setBold(True)
 
-    def set_rows(self, rows) -> None:
+    def set_rows(self, rows, headers=None) -> None:
+        """Show ``rows``; ``headers`` (column key -> (heading, tip)) replaces the table's own headings."""
         self.beginResetModel()
         self.rows = tuple(rows)
+        if headers is not None:
+            self.headers = dict(headers)
         self.endResetModel()
 
     def rowCount(self, parent=QModelIndex()):
@@ -341,6 +345,9 @@ class LadderModel(QAbstractTableModel):
 
     def columnCount(self, parent=QModelIndex()):
         return 0 if parent.isValid() else len(self.HEADERS)
+
+    def _header(self, section: int) -> tuple:
+        return self.headers.get(self.KEYS[section], (self.HEADERS[section], self.TIPS[section]))
 
     def data(self, index, role=Qt.ItemDataRole.DisplayRole):
         if not index.isValid():
@@ -370,9 +377,9 @@ class LadderModel(QAbstractTableModel):
         if orientation != Qt.Orientation.Horizontal:
             return None
         if role == Qt.ItemDataRole.DisplayRole:
-            return self.HEADERS[section]
+            return self._header(section)[0]
         if role == Qt.ItemDataRole.ToolTipRole:
-            return self.TIPS[section]
+            return self._header(section)[1]
         if role == Qt.ItemDataRole.TextAlignmentRole:
             return LEFT if section in (1, 2) else RIGHT
         return None

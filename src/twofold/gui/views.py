@@ -165,6 +165,11 @@ class LadderRow:
     p_value: float | None
     texts: dict = field(default_factory=dict)
     current: bool = False
+    #: For a pooled test against the model before: its F statistic, the F's denominator degrees of freedom and
+    #: its kind ("D3", "D2"); ``g`` is then the statistic times ``df``.
+    statistic: float | None = None
+    df_denominator: float | None = None
+    kind: str | None = None
 
 
 @dataclass(frozen=True)
@@ -173,6 +178,8 @@ class LadderView:
     current: int | None = None
     n_rows_compared: int = 0
     notices: tuple = ()
+    #: Headings and tips that replace the table's own (column key -> (heading, tip)), e.g. for pooled fits.
+    headers: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

@@ -19,9 +19,23 @@ def assessment_figures(result) -> dict:
 
     Keys ``roc`` and ``calibration``, and ``influence`` when influence was computed.
     """
-    roc = result.roc
-    out = {"roc": shared.roc_figure(roc.fpr, roc.tpr, float(result.auc.auc))}
-    groups, smooth = result.groups, result.smooth
+    out = curve_figures(result.roc, float(result.auc.auc), result.groups, result.smooth)
+    if result.influence is not None:
+        out["influence"] = shared.influence_figure(result.influence.cooks_distance, result.rows)
+    return out
+
+
+def pooled_figures(curves) -> dict:
+    """PNG bytes of the ROC curve and calibration plot of a pooled fit's pooled predictions
+    (:func:`twofold.core.models.pooling.pooled_curves`), each labelled as such; keys ``roc`` and ``calibration``."""
+    from twofold.core.models.pooling import POOLED_LABEL
+
+    return curve_figures(curves.roc, curves.auc, curves.groups, curves.smooth, label=POOLED_LABEL)
+
+
+def curve_figures(roc, auc: float, groups, smooth, label: str | None = None) -> dict:
+    """PNG bytes of an ROC curve and a calibration plot (risk groups, smoothed curve), keys ``roc``, ``calibration``."""
+    out = {"roc": shared.roc_figure(roc.fpr, roc.tpr, auc, label=label)}
     cal = {}
     if groups is not None and len(groups.n):
         cal = {"mean_predicted": groups.mean_predicted, "observed": groups.observed,
@@ -29,9 +43,7 @@ def assessment_figures(result) -> dict:
     if smooth is not None:
         cal.update(smooth_predicted=smooth.predicted, smooth_observed=smooth.observed,
                    smooth_unsteady=bool(smooth.unreliable))
-    out["calibration"] = shared.calibration_figure(**cal)
-    if result.influence is not None:
-        out["influence"] = shared.influence_figure(result.influence.cooks_distance, result.rows)
+    out["calibration"] = shared.calibration_figure(**cal, label=label)
     return out
 
 

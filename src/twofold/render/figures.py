@@ -109,24 +109,27 @@ finish_axes = _finish
 # ---------------------------------------------------------------------------
 
 
-def draw_roc(ax, fpr, tpr, auc: float, *, title: bool = True, square: bool = False) -> None:
-    """ROC curve: share of events flagged against share of non-events flagged, over every threshold."""
+def draw_roc(ax, fpr, tpr, auc: float, *, label: str | None = None, title: bool = True,
+             square: bool = False) -> None:
+    """ROC curve: share of events flagged against share of non-events flagged, over every threshold.
+
+    ``label`` names the predictions drawn when they are not simply the model's ("pooled predictions")."""
     fpr, tpr = np.asarray(fpr, float), np.asarray(tpr, float)
     idx = thin(len(fpr), keep=(0, len(fpr) - 1)) if len(fpr) else np.arange(0)
     ax.plot([0, 1], [0, 1], linestyle="--", color=BLACK, linewidth=REFERENCE_WIDTH, label="no better than chance")
-    ax.plot(fpr[idx], tpr[idx], color=BLUE, linewidth=CURVE_WIDTH, label=f"this model (area {auc:.3f})")
+    ax.plot(fpr[idx], tpr[idx], color=BLUE, linewidth=CURVE_WIDTH, label=f"{label or 'this model'} (area {auc:.3f})")
     ax.set_xlim(0, 1)
     ax.set_ylim(0, 1.01)
     ax.set_xlabel("1 - specificity (share of non-events flagged)")
     ax.set_ylabel("Sensitivity (share of events flagged)")
     ax.legend(loc="lower right", fontsize="small", frameon=False)
-    _finish(ax, "ROC curve" if title else None, square)
+    _finish(ax, ("ROC curve" + (f", {label}" if label else "")) if title else None, square)
 
 
-def roc_figure(fpr, tpr, auc: float, size=SIZE, dpi: float = DPI, title: bool = True) -> bytes:
+def roc_figure(fpr, tpr, auc: float, size=SIZE, dpi: float = DPI, title: bool = True, label: str | None = None) -> bytes:
     """PNG bytes of :func:`draw_roc`."""
     fig = new_figure(size, dpi)
-    draw_roc(fig.add_subplot(), fpr, tpr, auc, title=title)
+    draw_roc(fig.add_subplot(), fpr, tpr, auc, label=label, title=title)
     return png_bytes(fig)
 
 
@@ -140,8 +143,10 @@ SMOOTH_UNSTEADY_TEXT = "Smoothed curve unsteady:\nfewer than 200 events\nor non-
 
 def draw_calibration(ax, mean_predicted=(), observed=(), ci_low=(), ci_high=(), *, smooth_predicted=None,
                      smooth_observed=None, smooth_unsteady: bool = False, hidden_groups: int = 0,
-                     title: bool = True, square: bool = False) -> None:
+                     label: str | None = None, title: bool = True, square: bool = False) -> None:
     """Observed share with the event against predicted risk: risk groups with 95% intervals.
+
+    ``label`` names the predictions drawn when they are not simply the model's ("pooled predictions").
 
     Parameters
     ----------
@@ -184,17 +189,17 @@ def draw_calibration(ax, mean_predicted=(), observed=(), ci_low=(), ci_high=(), 
     if remarks:
         ax.text(0.98, 0.02, "\n".join(remarks), transform=ax.transAxes, ha="right", va="bottom",
                 fontsize="x-small", color=VERMILLION if smooth_unsteady else GREY)
-    _finish(ax, "Calibration" if title else None, square)
+    _finish(ax, ("Calibration" + (f", {label}" if label else "")) if title else None, square)
 
 
 def calibration_figure(mean_predicted=(), observed=(), ci_low=(), ci_high=(), *, smooth_predicted=None,
                        smooth_observed=None, smooth_unsteady: bool = False, hidden_groups: int = 0,
-                       size=SIZE, dpi: float = DPI, title: bool = True) -> bytes:
+                       size=SIZE, dpi: float = DPI, title: bool = True, label: str | None = None) -> bytes:
     """PNG bytes of :func:`draw_calibration`."""
     fig = new_figure(size, dpi)
     draw_calibration(fig.add_subplot(), mean_predicted, observed, ci_low, ci_high,
                      smooth_predicted=smooth_predicted, smooth_observed=smooth_observed,
-                     smooth_unsteady=smooth_unsteady, hidden_groups=hidden_groups, title=title)
+                     smooth_unsteady=smooth_unsteady, hidden_groups=hidden_groups, label=label, title=title)
     return png_bytes(fig)
 
 

@@ -542,7 +542,8 @@ def from_working(a: np.ndarray, cov_a: np.ndarray, centre: np.ndarray, spread: n
     return T @ a, T @ cov_a @ T.T
 
 
-def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None) -> LogisticFit:
+def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None,
+                 watch_warnings: bool = True) -> LogisticFit:
     """Fit a logistic model by maximum likelihood (statsmodels ``Logit``, Newton).
 
     Parameters
@@ -558,6 +559,12 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
     dropped : list of int, optional
         Aliased columns when already known for this design (skips the rank
         check); default: found by :func:`~twofold.core.models.design.aliased_columns`.
+    watch_warnings : bool
+        Read statsmodels' warnings (its word on separation) inside a
+        ``warnings.catch_warnings`` of its own.  False for fits run on
+        several threads at once, whose caller watches the warnings around
+        all of them (the warning filters are one per process, so entries
+        and exits on two threads would restore each other's).
 
     Returns
     -------
@@ -608,8 +615,12 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
     scaling = working_scale(X)
     Xw = X if scaling is None else scaled_columns(X, *scaling)
     start_w = b0 if scaling is None else to_working(b0, *scaling)
-    with one_blas_thread(), warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
-        warnings.simplefilter("always")
+    import contextlib
+
+    watch = warnings.catch_warnings(record=True) if watch_warnings else contextlib.nullcontext([])
+    with one_blas_thread(), watch as caught, np.errstate(all="ignore"):
+        if watch_warnings:
+            warnings.simplefilter("always")
         # hasconst=False skips statsmodels' constant search (a pass over the data); nothing we read depends on it.
         model = Logit(y, Xw, check_rank=False, hasconst=False)
         try:

@@ -336,7 +336,7 @@ class Study:
         return assemble([self.block(p, linear=p in linear) for p in predictors], self._require_outcome(), rows)
 
     def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False,
-            linear=()) -> LogisticFit:
+            linear=(), watch_warnings: bool = True) -> LogisticFit:
         """Fit the logistic model of the outcome on the named predictors.
 
         Parameters
@@ -350,6 +350,8 @@ class Study:
             Fit by Firth's penalised likelihood instead of maximum likelihood.
         linear : collection of str
             Predictors to enter as straight lines even if a spline is set.
+        watch_warnings : bool
+            See :func:`~twofold.core.models.fit.fit_logistic` (False only for fits on several threads at once).
         """
         predictors = [self.column(p) for p in predictors]
         if self.outcome in predictors:
@@ -371,7 +373,7 @@ class Study:
         else:
             if isinstance(start, LogisticFit):
                 start = start.start_for(design)
-            fit = fit_logistic(design, start=start, dropped=dropped)
+            fit = fit_logistic(design, start=start, dropped=dropped, watch_warnings=watch_warnings)
         account = self.account([p for p in predictors if ":" not in p], design.rows)
         fit.account = account
         lost = self.n_rows - account.rows_used

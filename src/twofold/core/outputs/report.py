@@ -780,8 +780,10 @@ def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False
     return hidden
 
 
-def _calibration_groups(rep: Report, groups, threshold: int) -> bool:
+def _calibration_groups(rep: Report, groups, threshold: int, label: str | None = None) -> bool:
     """The risk-group table and plot; True when some group's counts are suppressed.
+
+    ``label`` names the predictions grouped when they are not simply the model's ("pooled predictions").
 
     Counts of people pass the suppression (with complements, and a zero
     beside a group's count hidden too); the observed
@@ -810,8 +812,8 @@ def _calibration_groups(rep: Report, groups, threshold: int) -> bool:
                     "observed": _floats(np.asarray(groups.observed)[keep]),
                     "ci_low": _floats(np.asarray(groups.ci_low)[keep]),
                     "ci_high": _floats(np.asarray(groups.ci_high)[keep]),
-                    "hidden_groups": int((~keep).sum())},
-                   f"Observed against predicted risk in {groups.groups_used} groups of predicted risk "
+                    "hidden_groups": int((~keep).sum()), **({"label": label} if label else {})},
+                   (f"Of the {label}: o" if label else "O") + f"bserved against predicted risk in {groups.groups_used} groups of predicted risk "
                    "(about equal numbers of people each), with 95% Wilson intervals; points on the dashed "
                    "line are perfectly calibrated.",
                    "Calibration plot: observed share with the event against mean predicted risk, by risk group."))
@@ -824,6 +826,29 @@ def _calibration_groups(rep: Report, groups, threshold: int) -> bool:
     rep.add(Table(["risk group", "people", "mean predicted risk", "events", "non-events", "observed share",
                    "95% interval of the share"], rows, caption=caption))
     return prot.any_hidden
+
+
+def _roc_figure(rep: Report, roc, auc, record: dict, threshold: int, label: str | None = None) -> None:
+    """The ROC curve, thinned so that it shows no small count; ``label`` names predictions other than the model's."""
+    fpr, tpr = coarse_roc(roc.fpr, roc.tpr, record["nonevents"], record["events"], threshold)
+    rep.add(Figure("roc", {"fpr": _floats(fpr), "tpr": _floats(tpr), "auc": float(auc or float("nan")), **({"label": label} if label else {})},
+                   "ROC curve" + (f" of the {label}" if label else "") + " over all risk thresholds"
+                   + (f", drawn through points at least {threshold + 1} events and {threshold + 1} non-events "
+                      "apart so that it shows no small count." if threshold > 0 and len(fpr) < len(roc.fpr)
+                      else "."),
+                   f"ROC curve of the {label or 'model'}; area under the curve {fmt_num(auc, 3)}."))
+
+
+def _pooled_curves(rep: Report, fit, record: dict, threshold: int) -> None:
+    """The ROC curve and the risk groups of a pooled fit's pooled predictions, as the window draws them (each count
+    suppressed as a single fit's)."""
+    from twofold.core.models.pooling import POOLED_LABEL, pooled_curves
+
+    curves = pooled_curves(fit)
+    _roc_figure(rep, curves.roc, curves.auc, record, threshold, label=POOLED_LABEL)
+    if curves.groups is not None:
+        _calibration_groups(rep, curves.groups, threshold, label=POOLED_LABEL)
+    rep.add(Para(curves.note, "note"))
 
 
 def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshold: int, frozen: bool,
@@ -842,14 +867,7 @@ def _assessment_section(rep: Report, a: dict, assessment, record: dict, threshol
     rep.add(Para(f"Area under the ROC curve (c statistic) {fmt_num(a['auc'], 3)}, 95% interval {fmt_num(lo, 3)} to "
                  f"{fmt_num(hi, 3)} (DeLong et al. 1988): the chance that a randomly chosen person with the event "
                  "has a higher predicted risk than one without; 0.5 is a coin toss and 1 perfect."))
-    roc = assessment.roc
-    fpr, tpr = coarse_roc(roc.fpr, roc.tpr, record["nonevents"], record["events"], threshold)
-    rep.add(Figure("roc", {"fpr": _floats(fpr), "tpr": _floats(tpr), "auc": float(a["auc"] or float("nan"))},
-                   "ROC curve over all risk thresholds"
-                   + (f", drawn through points at least {threshold + 1} events and {threshold + 1} non-events "
-                      "apart so that it shows no small count." if threshold > 0 and len(fpr) < len(roc.fpr)
-                      else "."),
-                   f"ROC curve of the model; area under the curve {fmt_num(a['auc'], 3)}."))
+    _roc_figure(rep, assessment.roc, a["auc"], record, threshold)
     rep.add(Heading("Calibration", 3))
     cal_text = (f"Calibration slope {fmt_num(a['calibration_slope'], 3)} and calibration-in-the-large "
                 f"{fmt_num(a['calibration_intercept'], 3)}")
@@ -1200,6 +1218,8 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
     _coefficient_section(rep, record, fit, check, nameless, smaller_check)
     if a and imputed:
         ri.pooled_assessment_section(rep, a, check)
+        if check.whole_model is None:
+            _pooled_curves(rep, fit, record, threshold)
     elif a:
         _assessment_section(rep, a, result.assessment, record, threshold, False, include_records, check,
                             withheld_notes)
