@@ -64,6 +64,8 @@ def test_json_carries_the_imputation_and_pooled_fields(pooled):
     assert out["overall"]["df"] == 7 and out["nested"]["df"] == 5
     assert [t["kind"] for t in out["term_tests"]] == ["D1"]
     assert out["assessment"]["pooled"] is True and 0.5 < out["assessment"]["auc"] < 1
+    # No AIC or BIC for a pooled fit (an average of filled-in likelihoods is not the data's), and the note says why.
+    assert out["aic"] is None and out["bic"] is None and "imputed copies" in out["aic_note"]
     assert imp["complete_rows"]["rows_used"] == int(frame[["readmitted_30d", "age", "sex", *cols,
                                                            "discharge_destination"]].notna().all(axis=1).sum())
 
@@ -102,6 +104,7 @@ def test_text_says_pooled(capsys):
     assert "pooled over 5 imputed copies" in out
     assert "Pooled likelihood-ratio test (D3, Meng & Rubin 1992)" in out
     assert "on the 4,627 complete rows only" in out
+    assert "No AIC or BIC is given" in out and "AIC n/a" not in out
 
 
 def test_same_seed_same_result_other_seed_other(capsys):

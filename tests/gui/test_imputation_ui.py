@@ -199,7 +199,7 @@ def test_ladder_rows_show_pooled_fits_and_d3_while_imputing(qtbot, window):
                                                          for r in range(3) for c in range(3, 9)), timeout=WAIT_MS)
     assert model.headerData(6, Qt.Orientation.Horizontal) == "Pooled test against\nthe model before (F)"
     assert all(cell(r, 5) == "not defined" for r in range(3))
-    assert "No AIC is shown" in window.ladder_pane.notices.text()
+    assert "No AIC or BIC is given" in window.ladder_pane.notices.text()
     # Against D3 worked out in this test over statsmodels' fits of the copies the workspace made.
     copies = window.session.workspace.imputed_copies()
     frames = []

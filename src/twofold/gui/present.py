@@ -287,14 +287,11 @@ POOLED_LADDER_HEADERS = {
     "p_value": ("p-value", "p-value of the pooled test on its F distribution"),
 }
 
-#: Why the ladder shows no AIC for pooled fits.
+#: Why the ladder shows no AIC for pooled fits (the reason is the core's, :attr:`PooledFit.AIC_NOTE`).
 POOLED_LADDER_NOTE = (
     "Missing values are filled in: each row is its model fitted on every one of the {m} imputed copies and pooled. "
     "The log-likelihood is the copies' average, and the test against the model before is the pooled "
-    "likelihood-ratio test (D3; D2 for penalised fits) on its F distribution, as in the results pane. No AIC is "
-    "shown: the copies' likelihoods are those of filled-in values, not of the values observed, and averaging them "
-    "counts every imputed value as if it had been seen, so their average is not the AIC of the data and its "
-    "differences between models have no known scale; compare pooled models by the pooled tests instead."
+    "likelihood-ratio test (D3; D2 for penalised fits) on its F distribution, as in the results pane. "
 )
 
 
@@ -349,7 +346,9 @@ def ladder_view(ws) -> LadderView:
     if pooled:
         # Every row with an outcome (the rows of the complete-rows ladder and its notices do not apply).
         n = next((f.n_used for f in map(ws.known_fit, range(len(ladder.rungs))) if f is not None), 0)
-        notices = [POOLED_LADDER_NOTE.format(m=ws.imputation["m"])]
+        from twofold.core.models.pooling import PooledFit
+
+        notices = [POOLED_LADDER_NOTE.format(m=ws.imputation["m"]) + PooledFit.AIC_NOTE]
     elif penalised:
         notices.append("The ladder lists the ordinary (maximum-likelihood) fits, so its log-likelihoods, AIC and "
                        "tests differ from the penalised ones the results pane shows for the model chosen.")

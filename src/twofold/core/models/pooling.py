@@ -257,7 +257,22 @@ class PooledFit(LogisticFit):
         self.account = RowAccount(rows_read, missing_outcome, dict(missing_by_column), first.n_used)
         if _penalised(first):
             self.penalized_llf = float(np.mean([f.penalized_llf for f in fits]))
-            self.AIC_NOTE = first.AIC_NOTE
+
+    #: Why a pooled fit has no AIC or BIC (JSON ``aic_note``, the text account, the report, the ladder).
+    AIC_NOTE = ("No AIC or BIC is given for a model pooled over imputed copies: the copies' likelihoods are those "
+                "of filled-in values, not of the values observed, and averaging them counts every imputed value as "
+                "if it had been seen, so their average is not the AIC of the data and its differences between "
+                "models have no known scale; compare pooled models by the pooled tests instead.")
+
+    @property
+    def aic(self) -> float:
+        """Not defined for a pooled fit (see :attr:`AIC_NOTE`): NaN."""
+        return float("nan")
+
+    @property
+    def bic(self) -> float:
+        """Not defined for a pooled fit (see :attr:`AIC_NOTE`): NaN."""
+        return float("nan")
 
     # ---- coefficients -------------------------------------------------
     @cached_property

@@ -634,9 +634,11 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
                      f"{fmt_num(record['penalized_log_likelihood'], 2)}; the tests are penalised likelihood-ratio "
                      f"tests. {record['aic_note']} {per}"))
     else:
+        aic = (record["aic_note"] if "aic_note" in record
+               else f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)};")
         rep.add(Para(f"Log-likelihood {fmt_num(record['log_likelihood'], 2)} (event rate alone "
                      f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
-                     f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; {per}"))
+                     f"{aic} {per}"))
     profile = any("or_pl_low" in t for t in record["terms"])
     headers = ["predictor", "group", "odds ratio", "95% Wald interval"] \
         + (["95% profile-likelihood interval"] if profile else []) \

@@ -158,8 +158,10 @@ def describe(record: dict, source: str = "") -> str:
     else:
         add(("  Averaged over the imputed copies: l" if imputed else "  L") + f"og-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only "
             f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
-            f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
-            f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
+            + ("" if "aic_note" in record else f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; ")
+            + f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
+        if "aic_note" in record:
+            add(f"  {record['aic_note']}")
     add("")
     add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)" if not imputed
         else "Each predictor, pooled by Rubin's rules (odds ratio with 95% interval and t test on the Barnard-Rubin "
