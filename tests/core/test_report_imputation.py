@@ -10,6 +10,7 @@ import pytest
 
 from twofold.core.analysis import AnalysisSpec, run_analysis
 from twofold.core.outputs.report import Table, build_report
+from twofold.core.outputs.text import fmt_p
 
 READMIT = Path(__file__).resolve().parents[2] / "sample_studies" / "readmission_synthetic.csv"
 
@@ -87,3 +88,42 @@ def test_report_draws_the_pooled_predictions_roc_and_calibration_as_the_window_d
     # sums taken in other orders), so they are tied at 12 digits before scikit-learn ranks them.
     fit = result.fit
     assert roc.data["auc"] == pytest.approx(roc_auc_score(fit.design.y, np.round(fit.fitted, 12)), rel=1e-9)
+
+
+def test_models_tried_in_a_report_of_an_imputed_analysis_are_pooled_as_the_ladder_lists_them():
+    import statsmodels.api as sm
+    from scipy.stats import f
+
+    from twofold.core.workspace import Workspace
+
+    ws = Workspace()
+    ws.open(READMIT)
+    ws.set_outcome("readmitted_30d")
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "comorbidity_score"])
+    ws.set_imputation(3, seed=5)
+    result = ws.result(with_assessment=False)
+    rep = build_report(result, ladder=ws.ladder, suppress_below=10)
+    table = next(t for t in tables(rep) if t.headers[-1] == "pooled test against that model")
+    assert "No AIC or BIC is given" in table.caption and "AIC" not in table.headers
+    # D3 written from Meng & Rubin (1992) with the Li, Raghunathan & Rubin (1991) denominator, over statsmodels'
+    # own fits of the workspace's imputed copies (an independent route to the pooled test the row prints).
+    copies = ws.imputed_copies()
+    frames = [s.frame.iloc[copies.rows] for s in copies.studies]
+    y = frames[0]["readmitted_30d"].to_numpy(float)
+    small = [sm.Logit(y, sm.add_constant(fr[["age"]].astype(float))).fit(disp=0, tol=1e-12) for fr in frames]
+    large = [sm.Logit(y, sm.add_constant(fr[["age", "comorbidity_score"]].astype(float))).fit(disp=0, tol=1e-12)
+             for fr in frames]
+    m, k = 3, 1
+    qs = np.mean([r.params for r in small], axis=0)
+    ql = np.mean([r.params for r in large], axis=0)
+    d_bar = np.mean([2 * (a.llf - b.llf) for a, b in zip(large, small)])
+    d_tilde = np.mean([2 * (a.model.loglike(ql) - b.model.loglike(qs)) for a, b in zip(large, small)])
+    r3 = max((m + 1) / (k * (m - 1)) * (d_bar - d_tilde), 0.0)
+    t = k * (m - 1)
+    v = t * (1 + 1 / k) * (1 + 1 / r3) ** 2 / 2  # t = 2, not above 4
+    stat = d_tilde / (k * (1 + r3))
+    row = table.rows[1]
+    assert row[0] == "2 (chosen)" and row[1] == "age, comorbidity_score"
+    assert f"F = {stat:.2f} on 1 and" in row[-1] and "(D3)" in row[-1]
+    assert f"p-value {fmt_p(float(f.sf(stat, k, v)))}" in row[-1]

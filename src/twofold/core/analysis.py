@@ -114,6 +114,9 @@ class AnalysisResult:
     shrinkage: object = None
     #: The risks of the second model of the decision curve on the same rows (``net_benefit_versus``), or None.
     other_risks: object = None
+    #: While imputing, the models tried as the ladder lists them: (pooled fit, pooled test against the model it was
+    #: built from, or None) per rung (:meth:`Workspace.pooled_ladder`); None otherwise.
+    ladder_fits: list | None = None
 
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):

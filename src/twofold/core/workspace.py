@@ -553,6 +553,15 @@ class Workspace:
             return self.ladder.pending
         return [k for k in range(len(self.ladder.rungs)) if self.known_fit(k) is None]
 
+    def pooled_ladder(self) -> list:
+        """Each rung's pooled fit and its pooled test against the rung it was built from (None for the first), as
+        the ladder table lists them while imputing (fits every rung not yet pooled)."""
+        out = []
+        for k, rung in enumerate(self.ladder.rungs):
+            test = None if rung.previous is None else self.nested_between(rung.previous, k)
+            out.append((self.fit_of(k), test))
+        return out
+
     def known_fit(self, index: int):
         """The fit the ladder table lists for rung ``index`` if it is already made, else None (never fits or imputes):
         the pooled fit when imputing, else the rung's own (maximum-likelihood) fit."""
@@ -823,8 +832,11 @@ class Workspace:
         if self.imputation:
             from twofold.core.analysis import run_imputed_analysis
 
-            return run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
-                                        copies=self.imputed_copies(), model_only=not with_record)
+            res = run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
+                                       copies=self.imputed_copies(), model_only=not with_record)
+            if with_record:  # the models tried, as the ladder lists them: pooled, with pooled tests
+                res.ladder_fits = self.pooled_ladder()
+            return res
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
             assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))

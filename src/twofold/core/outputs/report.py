@@ -743,8 +743,13 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
                          f"p-value {fmt_p(nested['p_value'])}."))
 
 
-def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False) -> list[str]:
-    """The models tried; returns the numbers (from 1) of models whose figures are withheld."""
+def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False, pooled=None) -> list[str]:
+    """The models tried; returns the numbers (from 1) of models whose figures are withheld.
+
+    ``pooled`` (while missing values are filled in): each rung's pooled fit and pooled test against the rung it
+    was built from, listed instead of the complete-rows figures (as the window's ladder lists them)."""
+    if pooled is not None:
+        return _pooled_ladder_section(rep, ladder, threshold, pooled)
     rep.add(Heading("Models tried"))
     checks = [model_check(rung.fit.design, threshold) for rung in ladder.rungs]
     rows, hidden = [], []
@@ -779,6 +784,40 @@ def _ladder_section(rep: Report, ladder, threshold: int, penalised: bool = False
                  "penalised fit, so its AIC there differs from the one in this table.")
     rep.add(Table(["model", "predictors", "coefficients", "AIC", "BIC", "change from the model it was built from",
                    "likelihood-ratio test against that model"], rows, "llrrrll", note))
+    return hidden
+
+
+def _pooled_ladder_section(rep: Report, ladder, threshold: int, pooled) -> list[str]:
+    """The models tried while imputing: pooled tests against the model each was built from (D3, or D2), no AIC."""
+    from twofold.core.models.pooling import PooledFit
+
+    rep.add(Heading("Models tried"))
+    rows, hidden = [], []
+    # What the complete rows or the first imputed copy would give away is withheld (either check suffices).
+    checks = [model_check(rung.fit.design, threshold).whole_model or model_check(fit.design, threshold).whole_model
+              for rung, (fit, _) in zip(ladder.rungs, pooled)]
+    for k, (rung, (fit, test)) in enumerate(zip(ladder.rungs, pooled)):
+        if checks[k]:
+            hidden.append(str(k + 1))
+        shown = ""
+        if test is not None:
+            blocked = checks[k] or checks[rung.previous]
+            shown = WITHHELD if blocked else (f"F = {fmt_num(test.statistic, 2)} on {test.df} and "
+                                              f"{fmt_num(test.df_denominator, 1)} df ({test.kind}), "
+                                              f"p-value {fmt_p(test.p_value)}")
+        change = "; ".join(x for x in (("added " + ", ".join(rung.added)) if rung.added else "",
+                                        ("removed " + ", ".join(rung.removed)) if rung.removed else "") if x)
+        if change and rung.previous is not None and rung.previous != k - 1:
+            change += f" (from model {rung.previous + 1})"
+        rows.append([f"{k + 1}{' (chosen)' if k == ladder.current else ''}", ", ".join(rung.predictors) or "none",
+                     str(fit.n_params), change, shown])
+    note = (f"Every model was fitted on the same {pooled[0][0].m} imputed copies of the {pooled[0][0].n_used:,} rows "
+            "with an outcome and pooled; each is tested against the model it was built from by the pooled "
+            "likelihood-ratio test (D3; D2 for penalised fits) on its F distribution. " + PooledFit.AIC_NOTE)
+    if hidden:
+        note += f" Figures marked '{WITHHELD}' would reveal small groups ({SEE_PRIVACY})."
+    rep.add(Table(["model", "predictors", "coefficients", "change from the model it was built from",
+                   "pooled test against that model"], rows, "llrll", note))
     return hidden
 
 
@@ -1207,7 +1246,8 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         withheld_notes.append(f"The names of the groups of {_quoted(sorted(nameless))}, because their values "
                               "look like record identifiers or dates.")
     if lad is not None:
-        hidden = _ladder_section(rep, lad, threshold, penalised=bool(result.spec.firth))
+        hidden = _ladder_section(rep, lad, threshold, penalised=bool(result.spec.firth),
+                                 pooled=getattr(result, "ladder_fits", None) if imputed else None)
         if hidden:
             withheld_notes.append(f"The AIC, BIC and tests of model{'s' if len(hidden) > 1 else ''} "
                                   f"{', '.join(hidden)} of the models tried, whose predictors are all groupings "
