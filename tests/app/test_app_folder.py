@@ -315,3 +315,14 @@ def test_build_time_and_size_are_reported(app):
                      "QtQml.abi3.so", "pytest", "hypothesis", "sklearn"):
         assert unwanted not in names
     assert size > 50e6  # a real folder, not an empty shell
+    # ICU's data is the empty library the spec compiles (where a C compiler is at hand), and a library two
+    # wheels ship as identical copies is there once (the other a link).
+    icu = [p for p in app["folder"].rglob("libicudata.so*") if not p.is_symlink()]
+    if shutil.which("cc") or shutil.which("gcc"):
+        assert icu and all(p.stat().st_size < 100_000 for p in icu)
+    copies: dict = {}
+    for p in app["folder"].rglob("*.so*"):
+        if p.is_file() and not p.is_symlink():
+            copies.setdefault((p.name, p.stat().st_size), []).append(p)
+    same = [ps for ps in copies.values() if len(ps) > 1 and len({q.read_bytes() for q in ps}) == 1]
+    assert same == []
