@@ -64,6 +64,10 @@ class SheetScan:
     merges: list = field(default_factory=list)
     formulas: list = field(default_factory=list)
     errors: list = field(default_factory=list)
+    #: Set by :func:`scan_reach` when no block of the rows holds a formula or an error cell: the part of
+    #: the XML after the rows (where merged ranges are kept) and its patterns, so :func:`scan_details`
+    #: need not read the sheet again.
+    rest: tuple | None = field(default=None, repr=False)
 
     @property
     def cells(self) -> int:
@@ -436,16 +440,21 @@ def scan_reach(path: Path, part: str, progress) -> SheetScan:
     other sheet is walked element by element as the reader walks it (:func:`_reach_walked`).
     """
     scan = SheetScan()
-    walked = False
-    for chunk, tags, _last in _sheet_blocks(path, part, progress, 0.25, ahead=True):
+    walked = details = False
+    for chunk, tags, last in _sheet_blocks(path, part, progress, 0.25, ahead=True):
         if tags.prefix or _PREFIXED_CELL.search(chunk):  # the reader takes cells with any prefix as cells
             walked = True
             break
         if not _reach_of_chunk(chunk, tags, scan):
             walked = True
             break
+        # Most sheets hold no formula and no error cell: noticing that here spares a second pass.
+        details = details or tags.formula_start in chunk or b't="e"' in chunk
+        if last and not details:
+            scan.rest = (chunk, tags)
     if walked:
         scan.rows, scan.columns = _reach_walked(path, part)
+        scan.rest = None
     return scan
 
 
@@ -527,15 +536,20 @@ def _place(ref: bytes):
 def scan_details(path: Path, part: str, scan: SheetScan, progress_at) -> None:
     """Fill in ``scan``'s merged ranges, formulas without a saved result and error cells.
 
+    When :func:`scan_reach` found no formula and no error cell (``scan.rest``), only the part
+    after the rows is searched, for merged ranges.
+
     ``progress_at`` (or None) is called after each block, to report progress and to give a
     chance to cancel.
     """
     merges = set()
-    for chunk, tags, last in _sheet_blocks(path, part, None, 0.0):
+    blocks = [(*scan.rest, True)] if scan.rest is not None else _sheet_blocks(path, part, None, 0.0)
+    for chunk, tags, last in blocks:
         _details_of_chunk(chunk, tags, scan, merges if last else None)
         if progress_at is not None:
             progress_at()
     scan.merges = sorted(merges)
+    scan.rest = None
 
 
 def _too_big(path: Path) -> DataFileError:
