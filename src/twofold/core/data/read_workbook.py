@@ -642,6 +642,16 @@ def _column_values(values):
     import pandas as pd
 
     kind = pd.api.types.infer_dtype(values, skipna=True)
+    if kind == "string":  # text, empty cells (empty text) among it: numbered, with the empty text as missing
+        codes, uniques = pd.factorize(values)
+        empty = np.flatnonzero(uniques == "")
+        if len(empty):
+            codes = np.where(codes == empty[0], -1, codes - (codes > empty[0]))
+            uniques = np.delete(uniques, empty[0])
+        if len(uniques):
+            return pd.Categorical.from_codes(codes, categories=pd.Index(np.asarray(uniques, dtype=object)))
+        values[:] = None
+        return values
     if kind not in ("floating", "integer", "mixed-integer-float", "empty", "boolean", "datetime", "date"):
         values[values == ""] = None  # empty cells come as empty text; a column of numbers has none
         kind = pd.api.types.infer_dtype(values, skipna=True)
