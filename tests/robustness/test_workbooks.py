@@ -253,3 +253,31 @@ def test_a_crafted_far_cell_is_refused_before_it_is_parsed(tmp_path, kind):
     assert res.returncode == 2, res.stderr
     assert "more than the 30,000,000 Twofold reads from a workbook" in res.stderr
     assert len(res.stderr.strip().splitlines()) == 1
+
+
+def test_the_reach_of_randomly_placed_cells_matches_the_compiled_reader(tmp_path):
+    import random
+    import re
+
+    import python_calamine
+
+    # Reference: python-calamine's own placing. Sheets written the usual way (references first, rows in
+    # order) but with cells at random places, some just beyond the furthest cell seen before them, some far
+    # below or right, some within.
+    rng = random.Random(19)
+    for trial in range(25):
+        rows = []
+        for r in range(1, rng.randint(2, 40)):
+            cells = [(r, c) for c in range(1, rng.randint(1, 30))]
+            if rng.random() < 0.3:
+                cells.append((rng.choice([r, r + 1, rng.randint(1, 3000)]), rng.choice([1, 27, rng.randint(1, 80)])))
+            rows.append((r, cells))
+        data = "".join(
+            f'<row r="{r}">' + "".join(f'<c r="{read_workbook.column_letters(c)}{rr}"><v>1</v></c>' for rr, c in cells)
+            + "</row>" for r, cells in rows)
+        path = _rewritten(tmp_path, f"random{trial}.xlsx",
+                          lambda s, data=data: re.sub(r"<sheetData>.*</sheetData>", f"<sheetData>{data}</sheetData>", s))
+        scan = read_workbook.scan_reach(path, "xl/worksheets/sheet1.xml", None)
+        book = python_calamine.CalamineWorkbook.from_path(str(path))
+        end = book.get_sheet_by_name(book.sheet_names[0]).end
+        assert (scan.rows, scan.columns) == (end[0] + 1, end[1] + 1), trial

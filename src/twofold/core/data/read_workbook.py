@@ -300,36 +300,40 @@ class _Tags:
     def beyond(self, rows: int, columns: int):
         """A pattern for the cells that matter to the reach, given that it is at least (rows, columns) so far.
 
-        It matches a cell written the usual way (``<c r="B12"``, the reference first, 1 to 3 capital
-        letters and 1 to 7 digits) only when it lies below row ``rows`` or right of column ``columns``
-        (groups 1 and 2: its letters and digits), and a cell written any other way (group 1 empty).
-        Every other cell fails after a few characters, so one pass over a chunk costs about what
-        finding its cells costs.
+        It matches every cell element except those written the usual way (``<c r="B12"``, the
+        reference first, in double quotes, capital letters then digits) within row ``rows`` and
+        column ``columns``: so it matches a cell further down or right, and a cell written any
+        other way.  A cell within the reach fails after a few characters (the possessive and
+        ordered alternatives never step back), so one pass over a block costs little more than
+        finding its cells.
         """
         key = (rows, columns)
         if key not in self._beyond:
             letters = column_letters(columns) if columns else ""
             digits = str(rows) if rows else ""
-            right = [f"[A-Z]{{{len(letters) + 1},}}"] + _greater(letters, "ABCDEFGHIJKLMNOPQRSTUVWXYZ")
-            below = [f"\\d{{{len(digits) + 1},}}"] + _greater(digits, "0123456789")
-            far = "(?:" + "|".join(r + r"\d" for r in right) + r"|[A-Z]+(?:" + "|".join(below) + ')")'
+            fewer_letters = [f"[A-Z]{{1,{len(letters) - 1}}}+"] if len(letters) > 1 else []
+            fewer_digits = [f"\\d{{1,{len(digits) - 1}}}+"] if len(digits) > 1 else []
+            near = ("(?:" + "|".join(fewer_letters + _not_after(letters, _LETTERS)) + ")(?:"
+                    + "|".join(fewer_digits + _not_after(digits, "0123456789")) + ')"')
             p = re.escape(self.prefix)
-            self._beyond[key] = re.compile(
-                rb"<" + p + rb'c(?: r="(?=' + far.encode() + rb')([A-Z]+)(\d+)"'
-                rb'|(?! r="[A-Z]{1,3}\d{1,7}")[\s/>])')
+            self._beyond[key] = re.compile(rb"<" + p + rb'c(?! r="' + near.encode() + rb")[\s/>]")
         return self._beyond[key]
 
 
-def _greater(text: str, alphabet: str) -> list[str]:
-    """Regular expressions for the strings as long as ``text``, over ``alphabet`` (in order), that come after it."""
+_LETTERS = "ABCDEFGHIJKLMNOPQRSTUVWXYZ"
+
+
+def _not_after(text: str, alphabet: str) -> list[str]:
+    """Regular expressions for the strings as long as ``text``, over ``alphabet`` (in order), up to it."""
     out = []
-    last = alphabet[-1]
+    first = alphabet[0]
     for i, ch in enumerate(text):
-        if ch != last:
-            after = alphabet[alphabet.index(ch) + 1]
+        if ch != first:
+            before = alphabet[alphabet.index(ch) - 1]
             rest = len(text) - i - 1
-            tail = f"[{alphabet[0]}-{last}]{{{rest}}}" if rest else ""
-            out.append(re.escape(text[:i]) + f"[{after}-{last}]" + tail)
+            tail = f"[{first}-{alphabet[-1]}]{{{rest}}}" if rest else ""
+            out.append(re.escape(text[:i]) + f"[{first}-{before}]" + tail)
+    out.append(re.escape(text))
     return out
 
 
@@ -470,10 +474,11 @@ def _reach_of_chunk(chunk: bytes, tags: _Tags, scan: SheetScan) -> bool:
     pattern = tags.beyond(scan.rows, scan.columns)
     rows, columns = scan.rows, scan.columns
     for m in pattern.finditer(chunk):
-        if m.group(1) is None:
+        ref = tags.ref.match(chunk, m.start())
+        if ref is None:  # written some other way
             return False
-        rows = max(rows, int(m.group(2)))
-        columns = max(columns, _column_number(m.group(1)))
+        rows = max(rows, int(ref.group(2)))
+        columns = max(columns, _column_number(ref.group(1)))
     scan.rows, scan.columns = rows, columns
     return True
 
