@@ -49,10 +49,20 @@ def _fit_parser() -> argparse.ArgumentParser:
     p.add_argument("--interaction", action="append", default=[], metavar="A:B",
                    help="add the interaction of two predictors")
     p.add_argument("--validate", type=_repetitions, metavar="B", help="bootstrap optimism correction with B resamples")
-    p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap")
+    p.add_argument("--seed", type=int, metavar="S", help="seed of the bootstrap and of the imputations")
+    p.add_argument("--impute", type=_imputations, metavar="M",
+                   help="fill in missing predictor values by multiple imputation with M copies (2 to 100) and "
+                        "pool the results, instead of leaving incomplete rows out")
+    p.add_argument("--auxiliary", action="extend", nargs="+", default=[], metavar="COLUMN",
+                   help="a column used only to impute (with --impute; repeat for more)")
+    p.add_argument("--impute-anyway", action="store_true",
+                   help="impute columns missing in more than half the rows (with --impute)")
     add_net_benefit_option(p, "with the optimism-corrected curve when --validate is given")
     p.add_argument("--subgroups", metavar="COLUMN", help="show AUC and calibration within the groups of a column "
                                                          "(sex, age band, site)")
+    p.add_argument("--shrink", action="store_true",
+                   help="with --validate: when the corrected calibration slope is below 1, shrink every coefficient "
+                        "by it and re-estimate the intercept (the shrunk model is saved and used by predict)")
     p.add_argument("--session-out", metavar="PATH", help="save this analysis as a session file")
     p.add_argument("--report", metavar="PATH.html|PATH.pdf", help="write a report of aggregate figures")
     add_report_options(p, "saved with --session-out for later reports")
@@ -67,6 +77,17 @@ def _repetitions(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the number of resamples, e.g. 200") from None
     if not 1 <= value <= 100_000:
         raise argparse.ArgumentTypeError(f"{text} resamples is out of range; give between 1 and 100000, e.g. 200")
+    return value
+
+
+def _imputations(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; give the number of imputed copies, "
+                                         "from 2 to 100, e.g. 20") from None
+    if not 2 <= value <= 100:
+        raise argparse.ArgumentTypeError(f"{text} imputed copies is out of range; give from 2 to 100, e.g. 20")
     return value
 
 
@@ -85,6 +106,12 @@ def run_fit(argv: list[str]) -> int:
     parser = _fit_parser()
     args = parser.parse_args(argv)
     report_options_need_a_place(parser, args, {"--report": args.report, "--session-out": args.session_out})
+    if args.impute is None and (args.auxiliary or args.impute_anyway):
+        parser.error(f"{'--auxiliary' if args.auxiliary else '--impute-anyway'} works with --impute M; "
+                     "add --impute M, or leave it out")
+    if args.shrink and not args.validate:
+        parser.error("--shrink uses the corrected calibration slope of a bootstrap validation, so it needs "
+                     "--validate B; add --validate 200 or leave --shrink out")
     from twofold.core.errors import TwofoldError
 
     try:
@@ -131,14 +158,17 @@ def _spec(args):
         profile_ci=args.profile_ci, threshold=args.threshold, splines=parse_splines(args.spline),
         interactions=parse_interactions(args.interaction), validate=args.validate, seed=args.seed,
         missing=parse_missing(getattr(args, "missing", [])),
-        net_benefit=args.net_benefit, subgroups=args.subgroups,
+        net_benefit=args.net_benefit, subgroups=args.subgroups, shrink=args.shrink,
+        impute=args.impute, auxiliary=list(args.auxiliary), impute_anyway=args.impute_anyway,
     )
 
 
 def _fit(args):
-    from twofold.core.analysis import run_analysis
+    from twofold.core.analysis import refuse_unpooled_options, run_analysis
 
-    return run_analysis(_spec(args))
+    spec = _spec(args)
+    refuse_unpooled_options(spec)
+    return run_analysis(spec)
 
 
 def run_gui(argv: list[str]) -> int:

@@ -294,10 +294,9 @@ def _rerun(args):
 
 def _adapt(result, session, data, args) -> None:
     """Add ``adaptation`` to a frozen result's record and, with ``--session-out``, save the adapted model."""
-    from twofold.core.models.updating import adapt_model
+    from twofold.core.outputs.predict import add_adaptation
 
-    adaptation = adapt_model(result.model, result.X, result.y, source=result.source)
-    result.record["adaptation"] = adaptation.as_dict()
+    adaptation = add_adaptation(result)
     if args.session_out:
         from twofold.core.outputs.session import adapted_session
         from twofold.core.outputs.storage import save_session
@@ -417,9 +416,8 @@ def run_units(argv: list[str]) -> int:
 
 def units_record(session_file, unit: str, data=None, json_target=None) -> dict:
     """The JSON of ``twofold units``: the saved model's expected events by unit, with funnel limits."""
-    from twofold.core.assessing.units import compare_units
+    from twofold.core.assessing.units import check_unit_column, compare_units
     from twofold.core.data.checks import require_column
-    from twofold.core.errors import ColumnError
     from twofold.core.outputs import session as ses
     from twofold.core.outputs.predict import score_file
 
@@ -431,12 +429,7 @@ def units_record(session_file, unit: str, data=None, json_target=None) -> dict:
     scored = score_file(model, path, sheet=session["sheet"])
     frame, source = scored.study.frame, scored.study.source
     column = require_column(frame.columns, unit, source)
-    if column == model.outcome:
-        raise ColumnError(f"'{column}' is the outcome of the model, not a unit; give --unit the column naming each "
-                          "record's ward, hospital or team.")
-    if column in model.columns:
-        raise ColumnError(f"'{column}' is a predictor of the model, so differences between its groups are already "
-                          "adjusted away; give --unit a column that is not a predictor (a ward, hospital or team).")
+    check_unit_column(column, model.outcome, model.columns)
     values = frame[column].iloc[scored.rows].to_numpy(dtype=object)
     comparison = compare_units(values, scored.y, scored.predicted, column)
     from twofold.core.outputs.summary import plain_value

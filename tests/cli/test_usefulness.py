@@ -283,6 +283,14 @@ def test_rerun_adapt_chooses_and_saves_the_adapted_model(saved, tmp_path, capsys
     assert json.loads(out)["probability"] == pytest.approx(expit(b[0] + 60 * b[1] + b[2] + b[3]), rel=1e-12)
     code, out, _ = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--adapt")
     assert code == 0 and "Adapting the saved model" in out and a["reading"] in out
+    # The report has the same tests, to the printed digit, and the choice; never the adapted coefficients.
+    report = tmp_path / "adapt.html"
+    code, _, err = run(capsys, outputs.run_rerun, saved / "s.json", "--data", new, "--adapt", "--report", report)
+    assert code == 0, err
+    html = report.read_text()
+    assert "Adapting the saved model to these records" in html and a["reading"] in html
+    assert f"{a['tests'][0]['g']:.2f}" in html
+    assert f"{a['coefficients'][1]['estimate']:.4f}" not in html
 
 
 def test_rerun_adapt_refusals(saved, tmp_path, capsys):

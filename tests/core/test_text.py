@@ -36,3 +36,15 @@ def test_p_values():
     assert fmt_p(0.0004) == "below 0.001"
     assert fmt_p(0.0123) == "0.012"
     assert fmt_p(float("nan")) == "not available"
+
+
+def test_a_pooled_tests_denominator_degrees_of_freedom_in_words():
+    from twofold.core.outputs.text import pooled_test_text
+
+    # F(3, 35.2): the figure is printed; F(3, 2 million) is the chi-square reference to the digits shown.
+    small = pooled_test_text({"kind": "D3", "statistic": 2.5, "df": 3, "df_denominator": 35.2, "p_value": 0.07})
+    assert "on 3 and 35.2 degrees of freedom" in small and "chi-square scale 7.50" in small
+    big = pooled_test_text({"kind": "D1", "statistic": 2.5, "df": 3, "df_denominator": 2e6, "p_value": 0.06})
+    assert "on 3 and more than 10,000 degrees of freedom" in big
+    assert "infinitely many" in pooled_test_text({"kind": "D3", "statistic": 1.0, "df": 2, "df_denominator": None,
+                                                  "p_value": 0.37})

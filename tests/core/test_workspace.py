@@ -183,3 +183,65 @@ def test_report_texts_are_kept_with_the_analysis(ws, tmp_path):
     assert ws.report_options["title"] == "Readmissions 2024"
     back = Workspace.from_session(load_session(save_session(ws.to_session(), tmp_path / "r.json")))
     assert back.report_options == ws.report_options
+
+
+def test_fits_put_off_by_quick_ticks_give_the_same_ladder_as_fitting_each_at_once(ws):
+    # A burst of ticks: the ones a newer tick passed over are added with their fit put off (defer=True).
+    steps = [["age"], ["age", "sex"], ["age", "sex", "prior_admissions"], ["sex", "prior_admissions"],
+             ["sex", "prior_admissions", "discharge_destination"]]
+    ws.set_predictors(steps[0])
+    for predictors in steps[1:-1]:
+        ws.set_predictors(predictors, defer=True)
+    ws.set_predictors(steps[-1])
+    # Only the newest and the model it was built from (for its nested test) are fitted so far.
+    assert ws.ladder.pending == [1, 2, 3]
+    assert [r.fitted for r in ws.ladder.rungs] == [True, False, False, True, True]
+    assert ws.complete() == 3 and ws.ladder.pending == []
+    eager = Workspace()
+    eager.open(READMISSION)
+    eager.set_outcome(OUTCOME)
+    for predictors in steps:
+        eager.set_predictors(predictors)
+    assert ladder_numbers(ws) == ladder_numbers(eager)
+    for late_rung, eager_rung in zip(ws.ladder.rungs[1:], eager.ladder.rungs[1:]):
+        late_test, eager_test = late_rung.against_previous, eager_rung.against_previous
+        assert late_test.df == eager_test.df and late_test.g == pytest.approx(eager_test.g, rel=1e-7)
+    # Outside reference for a model fitted late: statsmodels' formula interface on the ladder's common rows.
+    import statsmodels.formula.api as smf
+
+    columns = ["age", "sex", "prior_admissions", "discharge_destination", OUTCOME]
+    frame = pd.read_csv(READMISSION)[columns].dropna()
+    assert len(frame) == len(ws.ladder.rows)
+    late = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions", frame).fit(disp=0)
+    assert ws.ladder.rungs[2].fit.llf == pytest.approx(late.llf, rel=1e-9)
+
+
+def test_undo_past_fits_put_off_and_a_change_of_rows_keep_every_test_valid(ws):
+    ws.set_predictors(["age"])
+    ws.set_predictors(["age", "sex"], defer=True)
+    ws.set_predictors(["age", "sex", "discharge_destination"], defer=True)
+    # A predictor with missing values shrinks the common rows: every model is refitted on the new rows.
+    ws.set_predictors(["age", "sex", "discharge_destination", "comorbidity_score"])  # 217 cells missing
+    # Only the new model and the one it was built from are fitted at once; the others follow on the new rows.
+    assert [r.fitted for r in ws.ladder.rungs] == [False, False, True, True]
+    assert ws.complete() == 3 and ws.ladder.pending == []
+    assert {len(r.fit.design.rows) for r in ws.ladder.rungs} == {len(ws.ladder.rows)}
+    eager = Workspace()
+    eager.open(READMISSION)
+    eager.set_outcome(OUTCOME)
+    for predictors in (["age"], ["age", "sex"], ["age", "sex", "discharge_destination"],
+                       ["age", "sex", "discharge_destination", "comorbidity_score"]):
+        eager.set_predictors(predictors)
+    assert ladder_numbers(ws) == ladder_numbers(eager)
+    for late_rung, eager_rung in zip(ws.ladder.rungs[1:], eager.ladder.rungs[1:]):
+        late_test, eager_test = late_rung.against_previous, eager_rung.against_previous
+        assert late_test.df == eager_test.df and late_test.g == pytest.approx(eager_test.g, rel=1e-7)
+        assert late_test.n_rows == len(ws.ladder.rows)
+    ws.undo()  # back to the ladder before the rows changed: its models put off are fitted on their own rows
+    assert len(ws.ladder.rungs) == 3
+    full = len(ws.study.complete_rows(["age", "sex", "discharge_destination"]))
+    assert [len(r.fit.design.rows) for r in ws.ladder.rungs] == [full] * 3
+    assert ws.ladder.rungs[2].against_previous.n_rows == full
+    with pytest.raises(TwofoldError):
+        ws.set_predictors(["age", "age"], defer=True)  # refused at once, not when the fit is made
+    assert len(ws.ladder.rungs) == 3

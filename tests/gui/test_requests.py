@@ -33,12 +33,12 @@ def test_quick_ticks_are_each_their_own_ladder_step_and_only_the_newest_is_shown
     calls = []
     original = Workspace.set_predictors
 
-    def slow_fit(self, predictors):
+    def slow_fit(self, predictors, **options):
         calls.append(tuple(predictors))
         if tuple(predictors) == ("age",):
             started.set()
             gate.wait(10)  # a slow fit: it finishes only after the newer ticks were made
-        return original(self, predictors)
+        return original(self, predictors, **options)
 
     monkeypatch.setattr(Workspace, "set_predictors", slow_fit)
     shown = []
@@ -52,9 +52,15 @@ def test_quick_ticks_are_each_their_own_ladder_step_and_only_the_newest_is_shown
     qtbot.waitUntil(lambda: not window.session.busy, timeout=WAIT_MS)
     # Every tick is fitted as its own step, so each one-predictor-at-a-time test is kept...
     assert calls == [("age",), ("age", "sex"), ("age", "sex", "prior_admissions")]
-    ladder = window.results_pane.view.ladder
-    assert [r.predictors for r in ladder.rows] == calls
-    assert [r.df for r in ladder.rows] == [None, 1, 1]
+    # The newest model is fitted and shown first; the one passed over (age + sex) is fitted right after,
+    # and the ladder table then shows its figures too.
+    table = window.ladder_pane.model
+    qtbot.waitUntil(lambda: all(r.log_likelihood is not None and r.index == 0 or r.df == 1 for r in table.rows),
+                    timeout=WAIT_MS)
+    assert [r.predictors for r in table.rows] == calls
+    assert [r.df for r in table.rows] == [None, 1, 1]
+    assert all(r.log_likelihood is not None for r in table.rows)
+    assert "being fitted" not in " ".join(table.index(1, c).data() for c in range(table.columnCount()))
     # ...but only the newest results reach the screen.
     assert shown == [("age", "sex", "prior_admissions")]
     assert window.results_pane.view.predictors == ("age", "sex", "prior_admissions")

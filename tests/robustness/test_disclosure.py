@@ -179,3 +179,62 @@ def test_a_saved_model_applied_to_a_small_cohort_gives_nothing_back(tmp_path, fr
     # Without the check the printed assessment gives the 2 back.
     monkeypatch.setattr(report_module, "frozen_check", lambda result, threshold=10: ModelCheck({}, None))
     assert _frozen_attack(tmp_path, frozen, (70, 27), (30, 2)) == {2}
+
+
+# ---- units compared by their case mix ------------------------------------------------------------------------
+
+def _units_report(folder, unit_events, unit_sizes, unit_groups, threshold=10):
+    """A cohort whose units each lie within one group of the model's predictor; the report of its units."""
+    rows = []
+    for k, (e, n, g) in enumerate(zip(unit_events, unit_sizes, unit_groups)):
+        rows += [(g, f"u{k + 1}", 1)] * int(e) + [(g, f"u{k + 1}", 0)] * int(n - e)
+    path = folder / "units.csv"
+    pd.DataFrame(rows, columns=["grp", "ward", "died"]).to_csv(path, index=False)
+    result = run_analysis(AnalysisSpec(data=str(path), outcome="died", predictors=["grp"], unit_column="ward"))
+    return build_report(result, suppress_below=threshold)
+
+
+def _units_attack(folder, events, sizes, groups):
+    """Every value of each hidden unit's events that agrees with the whole report, for an attacker who knows
+    every unit's size and group (more than the report gives) and reads each group's events from the report."""
+    true = _units_report(folder, events, sizes, groups)
+    table = next(b for b in true.blocks if isinstance(b, Table) and b.headers[0] == "unit")
+    shown = {r[0]: r[2] for r in table.rows}
+    hidden = [k for k in range(len(events)) if shown[f"u{k + 1}"] == SUPPRESSED]
+    target = _published(true)
+    by_group = {g: sum(e for e, gg in zip(events, groups) if gg == g) for g in set(groups)}
+    possible = {k: set() for k in hidden}
+    ranges = [range(sizes[k] + 1) if k in hidden else [events[k]] for k in range(len(events))]
+    for combo in itertools.product(*ranges):
+        if any(sum(e for e, gg in zip(combo, groups) if gg == g) != total for g, total in by_group.items()):
+            continue
+        if _published(_units_report(folder, combo, sizes, groups)) == target:
+            for k in hidden:
+                possible[k].add(combo[k])
+    return possible
+
+
+#: Units within the groups of the predictor, two or more per group (a unit that is a whole group has its count
+#: printed in the group's row already).
+UNIT_COHORTS = [
+    ([20, 22, 2, 8, 7], [50, 50, 6, 30, 30], ["a", "a", "a", "b", "b"]),    # a ward of 6 people with 2 deaths
+    ([20, 3, 30, 8, 7], [50, 40, 70, 30, 30], ["a", "a", "a", "b", "b"]),   # a ward of 40 with 3 deaths
+]
+
+
+@pytest.mark.parametrize("events,sizes,groups", UNIT_COHORTS)
+def test_the_attacker_recovers_no_hidden_count_of_a_unit(tmp_path, events, sizes, groups):
+    possible = _units_attack(tmp_path, events, sizes, groups)
+    assert possible, "the cohort should have a hidden unit"
+    recovered = {k: v for k, v in possible.items() if len(v) == 1}
+    assert not recovered, f"hidden unit counts recovered from the report: {recovered}"
+
+
+def test_the_unit_attacker_has_teeth_without_the_groups_relations(tmp_path, monkeypatch):
+    # Units inside one group of the predictor add up to that group's events, which the predictor's table prints;
+    # without that relation in the protection, the small ward's 2 deaths come back.
+    from twofold.core.outputs import report_usefulness
+
+    monkeypatch.setattr(report_usefulness, "nested_relations", lambda *a, **k: [])
+    possible = _units_attack(tmp_path, *UNIT_COHORTS[0])
+    assert possible[2] == {2}

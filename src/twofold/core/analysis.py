@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-from twofold.core.errors import ColumnError, ModelError
+from twofold.core.errors import ColumnError, ModelError, TwofoldError
 
 
 @dataclass
@@ -79,6 +79,18 @@ class AnalysisSpec:
     missing: dict = field(default_factory=dict)
     net_benefit: list | None = None
     subgroups: str | None = None
+    #: Imputed copies (2 to 100) to fill in missing predictor values by multiple imputation (None: complete rows).
+    impute: int | None = None
+    #: Columns used only to impute (never predictors).
+    auxiliary: list = field(default_factory=list)
+    #: Impute columns missing in more than half the rows with an outcome (the user confirmed).
+    impute_anyway: bool = False
+    #: Predictors of a second model whose decision curve is drawn beside this one's (fitted on the same rows).
+    net_benefit_versus: list | None = None
+    #: A column naming each record's unit (ward, hospital): adds ``units`` (risk-adjusted comparison).
+    unit_column: str | None = None
+    #: With ``validate``: shrink the coefficients by the corrected calibration slope when it is below 1.
+    shrink: bool = False
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -96,6 +108,12 @@ class AnalysisResult:
     assessment: object
     record: dict
     validation: object = None
+    #: The imputed copies' description (:class:`~twofold.core.models.imputation.Imputation`), or None.
+    imputation: object = None
+    #: A :class:`~twofold.core.models.updating.Shrinkage` when the model was shrunk (sessions save its model).
+    shrinkage: object = None
+    #: The risks of the second model of the decision curve on the same rows (``net_benefit_versus``), or None.
+    other_risks: object = None
 
 
 def prepare_study(spec: AnalysisSpec, study=None, guess_event: bool = False):
@@ -301,6 +319,8 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
         term = study.column(term)
         if term not in predictors:
             predictors.append(term)
+    if spec.impute is not None:
+        return run_imputed_analysis(spec, study, event, predictors)
     nested = smaller_fit = None
     smaller = None
     extra = extra_row_columns(study, predictors, spec.rows_complete_in)
@@ -365,4 +385,187 @@ def run_analysis(spec: AnalysisSpec, study=None, guess_event: bool = False) -> A
                       fit.fitted, fit.linear_predictor)
     result = AnalysisResult(spec, study, fit, nested, smaller_fit, assessment, record)
     result.validation = validation
+    add_usefulness(result, thresholds)
     return result
+
+
+def refuse_unpooled_options(spec: AnalysisSpec) -> None:
+    """Refuse, in one sentence, an option asked for together with imputation that is not pooled (command line).
+
+    A session saved by the window keeps its threshold and profile setting for the window's own use; a pooled
+    analysis leaves them aside instead of refusing them.
+    """
+    if spec.impute is None:
+        return
+    for option, words in NOT_POOLED.items():
+        if getattr(spec, option):
+            raise ModelError(f"{words} cannot be combined with imputation; leave one of the two out.")
+
+
+#: Options a pooled analysis does not offer, with the reason given when they are asked for together.
+NOT_POOLED = {"profile_ci": "--profile-ci (profile-likelihood intervals are not pooled; the pooled intervals use "
+                            "Rubin's rules)",
+              "validate": "--validate (bootstrap validation is not combined with imputation here)",
+              "threshold": "--threshold (a classification table of imputed rows would count invented values)"}
+
+
+def complete_rows_summary(fit, overall=None) -> dict:
+    """The complete-rows fit beside a pooled one: rows used, each coefficient and the G test."""
+    from twofold.core.outputs.summary import clean_number
+
+    rows = fit.coefficient_rows
+    return {"rows_used": fit.n_used, "events": fit.events,
+            "terms": [{"label": r["label"], "column": r["column"],
+                       **{k: clean_number(r[k]) for k in ("estimate", "std_error", "p_value", "odds_ratio",
+                                                          "or_ci_low", "or_ci_high")}} for r in rows[1:]],
+            "overall": {"g": clean_number(fit.overall.g), "df": int(fit.overall.df),
+                        "p_value": clean_number(fit.overall.p_value)}}
+
+
+def run_imputed_analysis(spec: AnalysisSpec, study, event, predictors, copies=None,
+                         model_only: bool = False) -> AnalysisResult:
+    """The analysis of :func:`run_analysis` on m imputed copies, pooled (``spec.impute`` copies, ``spec.seed``).
+
+    The copies are made once (every predictor of the analysis, the smaller model's and the columns of
+    ``rows_complete_in`` are in the imputation model, with ``spec.auxiliary``); the model, the smaller model
+    and the curve and interaction tests are fitted on all of them and pooled.  The record carries
+    ``imputation`` (settings, methods, counts and the complete-rows fit for comparison).  Without a seed,
+    one is drawn and written into ``spec.seed``, so the session and a re-run make the same copies.
+    ``copies``: :class:`~twofold.core.models.pooling.ImputedCopies` already made for this analysis (the
+    workspace keeps them), else they are made here.  ``model_only``: the pooled fit alone, with an empty
+    record (what a session file needs; no assessment or further tests).
+    """
+    from twofold.core.models.imputation import impute
+    from twofold.core.models.pooling import (
+        ImputedCopies, pooled_assessment, pooled_drop_one, pooled_interaction_tests, pooled_nested,
+        pooled_nonlinearity_tests,
+    )
+    from twofold.core.outputs.summary import add_study_records, fit_record
+
+    smaller = None if spec.smaller is None else [study.column(p) for p in spec.smaller]
+    everything = list(dict.fromkeys(predictors + (smaller or []) + [study.column(c) for c in spec.rows_complete_in]))
+    if smaller is not None and not set(smaller) <= set(predictors):
+        study.compare(smaller, predictors)  # refuses a smaller model that is not nested, in its own words
+    if copies is None:
+        if spec.seed is None:
+            import secrets
+
+            spec.seed = secrets.randbelow(2 ** 31)
+        imputation = impute(study, everything, spec.impute, spec.seed, spec.auxiliary, spec.impute_anyway)
+        copies = ImputedCopies(study, imputation)
+    imputation = copies.imputation
+    smaller_fit = nested = None
+    if smaller is not None:
+        smaller_fit = copies.fit(smaller, firth=spec.firth)
+        fit = copies.fit(predictors, firth=spec.firth, start=smaller_fit)
+        nested = pooled_nested(smaller_fit, fit)
+    else:
+        fit = copies.fit(predictors, firth=spec.firth)
+    if model_only:
+        result = AnalysisResult(spec, study, fit, nested, smaller_fit, None, {})
+        result.imputation = imputation
+        return result
+    for n in study.table.notices:
+        fit.notices.insert(0, n)
+    shaped = [p for p in predictors if ":" in p or p in study.splines]
+    if shaped and imputation.cells_imputed:
+        from twofold.core.errors import Notice
+
+        # White, Royston & Wood (2011, section 6): an imputation model without the analysis model's curves and
+        # interactions pulls them towards none.
+        fit.notices.append(Notice("imputation_model", "Each column is imputed from the others as straight lines "
+                                  "without interactions, so the curves and interactions of this model ("
+                                  + ", ".join(shaped) + ") are pulled towards none in the imputed values; read "
+                                  "them with care, beside the complete rows.", tuple(shaped)))
+    record = fit_record(fit, study.outcome, event, nested, smaller)
+    record["assessment"] = pooled_assessment(fit)
+    record["assessment"]["drop_one"] = pooled_drop_one(copies, fit)
+    add_study_records(record, study,
+                      pooled_nonlinearity_tests(copies, fit) if any(p in study.splines for p in predictors) else None,
+                      pooled_interaction_tests(copies, fit) if any(":" in p for p in predictors) else None)
+    record["imputation"] = imputation.record()
+    try:
+        complete = study.fit(predictors, firth=spec.firth)
+        record["imputation"]["complete_rows"] = complete_rows_summary(complete)
+    except TwofoldError:
+        record["imputation"]["complete_rows"] = None  # too few complete rows for the model
+    if spec.net_benefit is not None:
+        from twofold.core.assessing.decision import grid_from_setting
+
+        add_decision_curve(record, fit.design.y, fit.fitted, grid_from_setting(spec.net_benefit), None,
+                           None if smaller_fit is None else smaller_fit.fitted)
+    if spec.subgroups is not None:
+        add_subgroups(record, study.frame, study.column(str(spec.subgroups)), fit.design.rows, fit.design.y,
+                      fit.fitted, fit.linear_predictor)
+    result = AnalysisResult(spec, study, fit, nested, smaller_fit, record["assessment"], record)
+    result.imputation = imputation
+    return result
+def add_usefulness(result: AnalysisResult, thresholds=None) -> None:
+    """The second model's decision curve, the comparison of units and the shrunk model a spec asks for.
+
+    ``net_benefit_versus``: a second model fitted on the same rows, whose net
+    benefit joins each ``net_benefit`` entry as ``other_model``;
+    ``unit_column``: ``units`` (:func:`add_units`); ``shrink``: ``shrinkage``
+    (:func:`add_shrinkage`).
+    """
+    spec, study, fit, record = result.spec, result.study, result.fit, result.record
+    if thresholds is not None and spec.net_benefit_versus:
+        from twofold.core.errors import TwofoldError
+
+        try:
+            other = study.fit([study.column(p) for p in spec.net_benefit_versus], rows=fit.design.rows,
+                              firth=spec.firth)
+        except TwofoldError as exc:  # a column of it missing from this extract, say: the curve goes without it
+            record["net_benefit_summary"]["other_note"] = f"The second model's curve is left out: {exc}"
+        else:
+            add_other_curve(record, fit.design.y, other.fitted, list(other.design.predictors))
+            result.other_risks = other.fitted
+    if spec.unit_column is not None:
+        add_units(record, study.frame, study.column(str(spec.unit_column)), fit, study.outcome)
+    if spec.shrink:
+        add_shrinkage(result)
+
+
+def add_other_curve(record: dict, y, p_other, predictors) -> None:
+    """Add a second model's net benefit (``other_model`` in each entry) to a record that has ``net_benefit``."""
+    from twofold.core.assessing.decision import net_benefit_values
+    from twofold.core.outputs.summary import clean_number
+
+    thresholds = [e["threshold"] for e in record["net_benefit"]]
+    for entry, nb in zip(record["net_benefit"], net_benefit_values(y, p_other, thresholds)):
+        entry["other_model"] = clean_number(nb)
+    record["net_benefit_summary"]["other_predictors"] = list(predictors)
+
+
+def add_units(record: dict, frame, column: str, fit, outcome: str) -> None:
+    """Add ``units``: the risk-adjusted comparison of the units named in ``column`` on the fit's rows."""
+    from twofold.core.assessing.units import check_unit_column, compare_units
+
+    check_unit_column(column, outcome, [p for t in fit.design.predictors for p in str(t).split(":")])
+    values = frame[column].iloc[fit.design.rows].to_numpy(dtype=object)
+    record["units"] = compare_units(values, fit.design.y, fit.fitted, column).as_record()
+
+
+def add_shrinkage(result: AnalysisResult) -> None:
+    """Shrink the model by its bootstrap's corrected calibration slope (``shrinkage`` in the record).
+
+    Without a validation, or with a corrected slope not below 1, ``shrinkage``
+    says why nothing was shrunk (``factor`` null) and the model is unchanged.
+    """
+    from twofold.core.models.updating import shrink_model, shrinkage_refusal
+    from twofold.core.outputs.predict import frozen_model
+
+    v = result.validation
+    if v is None:
+        result.record["shrinkage"] = {"factor": None, "intercept": None, "coefficients": None,
+                                      "reading": "Shrinking needs a bootstrap validation; add --validate B."}
+        return
+    why = shrinkage_refusal(v.calibration_slope_corrected)
+    if why is not None:
+        result.record["shrinkage"] = {"factor": None, "intercept": None, "coefficients": None, "reading": why}
+        return
+    fit = result.fit
+    model = frozen_model(fit, result.study.outcome, result.study.event)
+    result.shrinkage = shrink_model(model, fit.design.X[:, fit.kept], fit.design.y, v.calibration_slope_corrected,
+                                    source=str(result.study.source))
+    result.record["shrinkage"] = result.shrinkage.as_dict()

@@ -48,7 +48,14 @@ PENALISED_PROFILE_AUTO_WORK = 20_000
 UNDO_DEPTH = 100
 
 #: The parts of an analysis an operation can change (what a view may need to redraw).
-PARTS = ("data", "columns", "outcome", "ladder", "comparison", "validation", "threshold", "report")
+PARTS = ("data", "columns", "outcome", "ladder", "comparison", "validation", "threshold", "report", "usefulness")
+
+#: The usefulness settings of an analysis and their values until the user chooses: decision-curve thresholds
+#: [LOW, HIGH, STEP], the rung of the ladder whose curve is drawn beside the shown model's, the unit column of the
+#: risk-adjusted comparison and the column of the subgroups.
+USEFULNESS_DEFAULTS = {"net_benefit": None, "compare_with": None, "unit_column": None, "subgroups": None}
+#: "Leave this setting as it is" for :meth:`Workspace.set_usefulness`.
+KEEP = object()
 
 
 @dataclass(frozen=True)
@@ -79,6 +86,26 @@ class ValidationRecord:
     predictors: tuple
     penalised: bool
     fit: object = field(default=None, repr=False)
+
+
+@dataclass
+class ShrinkRecord:
+    """The shown model shrunk by its bootstrap's corrected calibration slope (what sessions and ``predict`` use)."""
+
+    result: object          # a twofold.core.models.updating.Shrinkage
+    predictors: tuple
+    penalised: bool
+    fit: object = field(default=None, repr=False)
+
+
+@dataclass(frozen=True, eq=False)
+class DecisionView:
+    """The shown model's decision curve, with a second model's net benefit on the same rows when one is chosen."""
+
+    curve: object                  # a twofold.core.assessing.decision.DecisionCurve
+    other: object = None           # ndarray of the second model's net benefit, or None
+    other_predictors: tuple = ()
+    other_index: int | None = None
 
 
 def profile_auto(fit) -> bool:
@@ -122,6 +149,8 @@ class Workspace:
         self.penalised = False
         self.threshold = DEFAULT_THRESHOLD
         self.validation: ValidationRecord | None = None
+        self.usefulness = dict(USEFULNESS_DEFAULTS)
+        self.shrinkage: ShrinkRecord | None = None
         from twofold.core.outputs.session import REPORT_DEFAULTS
 
         self.report_options = dict(REPORT_DEFAULTS)
@@ -139,6 +168,10 @@ class Workspace:
         self._saved_revision = 0
         #: The last change made (what the window says after an operation).
         self.last_change = Change("")
+        #: Multiple imputation in force: {"m", "seed", "auxiliary", "anyway"}, or None (complete rows only).
+        self.imputation: dict | None = None
+        self._copies = None               # (key, ImputedCopies) made for the settings and columns in force
+        self._pooled: dict = {}           # (copies, predictors, penalised) -> PooledFit
 
     # ---- reading -----------------------------------------------------------------
     @property
@@ -180,7 +213,8 @@ class Workspace:
     # ---- the machinery of operations -------------------------------------------------
     def _memento(self) -> dict:
         return {"study": self.study.settings(), "ladder": self.ladder.state(), "parents": dict(self.parents),
-                "awaiting": self.awaiting_event, "penalised": self.penalised}
+                "awaiting": self.awaiting_event, "penalised": self.penalised, "shrinkage": self.shrinkage,
+                "imputation": self.imputation}
 
     def _put_back(self, m: dict) -> None:
         self.study.restore_settings(m["study"])
@@ -188,6 +222,8 @@ class Workspace:
         self.parents = dict(m["parents"])
         self.awaiting_event = m["awaiting"]
         self.penalised = m["penalised"]
+        self.imputation = m.get("imputation")
+        self.shrinkage = m.get("shrinkage")
 
     def _operate(self, label: str, fn, undoable: bool = True) -> Change:
         """Run ``fn`` (returning a Change); on any failure put everything back and re-raise."""
@@ -247,6 +283,8 @@ class Workspace:
         self.awaiting_event = None
         self.penalised = False
         self.validation = None
+        self.usefulness = dict(USEFULNESS_DEFAULTS)
+        self.shrinkage = None
         self.method_problem = ""
         self._undo.clear()
         self._redo.clear()
@@ -292,17 +330,22 @@ class Workspace:
         if removed:
             self.ladder.clear()
         self.parents = {}
+        self.usefulness["compare_with"] = None  # named a model of the ladder just cleared
         return removed
 
-    def _add(self, predictors) -> None:
+    def _add(self, predictors, defer: bool = False) -> None:
         ladder = self.ladder
         parent = ladder.current
-        ladder.add(predictors)
+        ladder.add(predictors, defer=True) if defer else ladder.add(predictors)
         if parent is not None:
             self.parents[len(ladder.rungs) - 1] = parent
 
-    def set_predictors(self, predictors) -> Change:
-        """Fit the model with exactly these predictors as a new rung of the ladder (a tick or untick)."""
+    def set_predictors(self, predictors, defer: bool = False) -> Change:
+        """Fit the model with exactly these predictors as a new rung of the ladder (a tick or untick).
+
+        ``defer=True`` (a newer tick is already waiting) puts the fit off: the newer model is fitted and shown
+        first, and this one when it is first read or by :meth:`complete`.
+        """
         predictors = tuple(predictors)
 
         def run():
@@ -318,7 +361,7 @@ class Workspace:
             if current is None and not predictors:
                 return Change("No predictors are ticked.", frozenset())
             before = set(current.predictors) if current is not None else set()
-            self._add(predictors)
+            self._add(predictors, defer=defer)
             added = [p for p in predictors if p not in before]
             gone = [p for p in before if p not in set(predictors)]
             words = ([f"added {', '.join(added)}"] if added else []) + ([f"removed {', '.join(gone)}"] if gone else [])
@@ -478,13 +521,23 @@ class Workspace:
                              "run it again on the model shown.")
         self.validation = ValidationRecord(int(repetitions), int(seed), result, tuple(rung.predictors),
                                            self.penalised, fit)
+        self.shrinkage = None  # made from the validation it replaces
         change = Change("The bootstrap validation was kept with the analysis.", frozenset(("validation",)))
         self._changed(change)
         return change
 
+    def complete(self, stop=None) -> int:
+        """Make the fits of the ladder that were put off (newest first) until ``stop()`` is true; how many."""
+        return self.ladder.complete(stop) if self.ladder is not None else 0
+
     # ---- derived figures ---------------------------------------------------------------
     def fit_of(self, index: int):
-        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen."""
+        """The fit shown for rung ``index``: its own, or its penalised refit when that is chosen.
+
+        With multiple imputation on: its fits on every imputed copy, pooled (penalised when chosen).
+        """
+        if self.imputation:
+            return self.pooled_fit(index)
         rung = self.ladder.rungs[index]
         if not self.penalised:
             return rung.fit
@@ -509,8 +562,10 @@ class Workspace:
         """The (penalised, when chosen) likelihood-ratio test between rungs i and j, or None if not nested."""
         from twofold.core.models.fit import LikelihoodRatioTest, nested_test
 
-        if not self.penalised:
+        if not self.penalised and not self.imputation:
             return self.ladder.nested(i, j)
+        if self.imputation:
+            from twofold.core.models.pooling import pooled_nested as nested_test  # D3 (D2 for penalised fits)
         si, sj = set(self.ladder.rungs[i].predictors), set(self.ladder.rungs[j].predictors)
         a, b = self.fit_of(i), self.fit_of(j)
         if si == sj:
@@ -519,6 +574,10 @@ class Workspace:
             return nested_test(a, b)
         if sj <= si:
             t = nested_test(b, a)
+            if self.imputation:
+                from dataclasses import replace
+
+                return replace(t, added=(), removed=tuple(sorted(si - sj)))
             return LikelihoodRatioTest(t.g, t.df, t.p_value, removed=tuple(sorted(si - sj)), n_rows=t.n_rows)
         return None
 
@@ -536,6 +595,12 @@ class Workspace:
         """(curve tests, interaction tests) of ``fit``; a test the core cannot make here is left out."""
         from twofold.core.models.modelling import interaction_tests, nonlinearity_tests
 
+        if self.imputation:
+            from twofold.core.models import pooling
+
+            copies = self.imputed_copies()
+            nonlinearity_tests = lambda _study, f: pooling.pooled_nonlinearity_tests(copies, f)  # noqa: E731
+            interaction_tests = lambda _study, f: pooling.pooled_interaction_tests(copies, f)  # noqa: E731
         try:
             curves = nonlinearity_tests(self.study, fit)
         except TwofoldError:
@@ -547,8 +612,9 @@ class Workspace:
         return curves, crossings
 
     def wants_profile(self, fit) -> bool:
-        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked)."""
-        return fit is not None and (self.profile_always or profile_auto(fit))
+        """Whether the profile intervals of ``fit`` are shown (small models always; others when asked; never
+        for pooled fits, whose intervals are Rubin's)."""
+        return fit is not None and not self.imputation and (self.profile_always or profile_auto(fit))
 
     def profile_intervals(self, fit) -> dict:
         """Profile-likelihood intervals of the odds ratios of a read-only fit (cached; any thread)."""
@@ -575,16 +641,91 @@ class Workspace:
 
     def validation_of(self, fit) -> ValidationRecord | None:
         """The kept bootstrap validation when it describes ``fit``, else None."""
-        v = self.validation
-        if v is None or fit is None:
+        return self._kept_for(self.validation, fit)
+
+    def _kept_for(self, kept, fit):
+        """``kept`` (a validation or shrinkage record) when it was made from ``fit``, else None."""
+        if kept is None or fit is None:
             return None
-        if v.fit is fit:
-            return v
+        if kept.fit is fit:
+            return kept
         rung = self.current_rung
-        if rung is not None and v.fit is None and tuple(rung.predictors) == v.predictors \
-                and v.penalised == is_penalised(fit):
-            return v  # restored from a session: the same model fitted again
+        if rung is not None and kept.fit is None and tuple(rung.predictors) == kept.predictors \
+                and kept.penalised == is_penalised(fit):
+            return kept  # restored from a session: the same model fitted again
         return None
+
+    # ---- multiple imputation ----------------------------------------------------------------
+    def set_imputation(self, m: int | None, seed: int | None = None, auxiliary=(), anyway: bool = False,
+                       progress=None) -> Change:
+        """Fill in missing predictor values by multiple imputation (``m`` copies), or go back to complete rows (None).
+
+        The copies are made now (``progress(fraction)`` may return False to cancel), so a refusal (a column
+        missing in more than half the rows without ``anyway``, an auxiliary column that cannot be used, an
+        imputation model that fails) leaves the analysis as it was.  Without a seed, one is drawn and kept.
+        """
+        import secrets
+
+        settings = None
+        if m is not None:
+            settings = {"m": int(m), "seed": secrets.randbelow(2 ** 31) if seed is None else int(seed),
+                        "auxiliary": [str(a) for a in auxiliary], "anyway": bool(anyway)}
+
+        def run():
+            self.imputation = settings
+            if settings is not None and self.has_model:
+                self.imputed_copies(progress)
+            if settings is None:
+                return Change("Incomplete rows are left out.", frozenset(("ladder",)))
+            return Change(f"Missing values are filled in by multiple imputation ({settings['m']} copies, seed "
+                          f"{settings['seed']}).", frozenset(("ladder",)))
+
+        return self._operate("missing values", run)
+
+    def pooled_fit(self, index: int):
+        """Rung ``index`` fitted on every imputed copy and pooled (penalised when chosen); kept until the copies change."""
+        copies = self.imputed_copies()
+        rung = self.ladder.rungs[index]
+        key = (copies, tuple(rung.predictors), self.penalised)  # the copies themselves: an id could be reused
+        kept = {k: v for k, v in self._pooled.items() if k[0] is copies}
+        if key not in kept:
+            kept[key] = copies.fit(list(rung.predictors), firth=self.penalised)
+        self._pooled = kept
+        return kept[key]
+
+    def fit_for_validation(self):
+        """The model shown, for a bootstrap validation; refused while missing values are imputed (not combined)."""
+        self.require_model()
+        if self.imputation:
+            raise ModelError("Bootstrap validation is not combined with multiple imputation here; choose 'leave out "
+                             "incomplete rows' under missing values to validate the model on complete rows.")
+        return self.shown_fit()
+
+    def pooled_assessment(self, fit) -> dict:
+        """The pooled assessment of a pooled fit of this analysis, with its pooled drop-one tests."""
+        from twofold.core.models.pooling import pooled_assessment, pooled_drop_one
+
+        out = pooled_assessment(fit)
+        out["drop_one"] = pooled_drop_one(self.imputed_copies(), fit)
+        return out
+
+    def imputed_copies(self, progress=None):
+        """The imputed copies for the settings in force and every column of the ladder (made once, then kept)."""
+        from twofold.core.analysis import columns_of
+        from twofold.core.models.imputation import impute
+        from twofold.core.models.pooling import ImputedCopies
+
+        if not self.imputation:
+            raise ModelError("Multiple imputation is not switched on; choose it under missing values first.")
+        study = self.study
+        columns = columns_of(study, self.ladder.used_predictors)
+        s = self.imputation
+        key = (tuple(columns), s["m"], s["seed"], tuple(s["auxiliary"]), s["anyway"], id(study.frame),
+               tuple((n, c.role) for n, c in study.columns.items()), study.outcome, study.event)
+        if self._copies is None or self._copies[0] != key:
+            made = impute(study, columns, s["m"], s["seed"], s["auxiliary"], s["anyway"], progress=progress)
+            self._copies = (key, ImputedCopies(study, made))
+        return self._copies[1]
 
     # ---- the whole analysis as a record -----------------------------------------------------
     def spec(self):
@@ -601,8 +742,12 @@ class Workspace:
             event=study.event, roles=roles, sheet=study.table.sheet, firth=is_penalised(fit),
             profile_ci=self.wants_profile(fit), threshold=self.threshold_for(fit), splines=dict(study.splines),
             missing={k: list(v) for k, v in study.missing_values.items()},
-            validate=None if v is None else v.repetitions, seed=None if v is None else v.seed,
-            rows_complete_in=columns_of(study, self.ladder.used_predictors))
+            validate=None if v is None or self.imputation else v.repetitions,
+            seed=self.imputation["seed"] if self.imputation else None if v is None else v.seed,
+            rows_complete_in=columns_of(study, self.ladder.used_predictors),
+            **self._usefulness_spec(fit),
+            **({} if not self.imputation else {"impute": self.imputation["m"], "auxiliary": list(self.imputation[
+                "auxiliary"]), "impute_anyway": self.imputation["anyway"]}))
 
     def result(self, with_assessment: bool = True, assessment=None, with_record: bool = True):
         """The full analysis of the model shown, exactly as shown: fit, tests, assessment, profile, validation.
@@ -618,6 +763,11 @@ class Workspace:
         from twofold.core.outputs.summary import add_study_records, fit_record
 
         spec = self.spec()
+        if self.imputation:
+            from twofold.core.analysis import run_imputed_analysis
+
+            return run_imputed_analysis(spec, self.study, self.study.event, list(self.require_model().predictors),
+                                        copies=self.imputed_copies(), model_only=not with_record)
         study, shown = self.study, self.shown_fit()
         if with_assessment and assessment is None:
             assessment = assess_fit(study, shown, threshold=self.threshold_for(shown))
@@ -635,9 +785,11 @@ class Workspace:
         if extra:
             count_rows_left_out(study, fit, extra)
         v = self.validation_of(shown)
+        shrunk = self.shrinkage_of(shown)
         if not with_record:
             result = AnalysisResult(spec, study, fit, None, None, assessment, {})
             result.validation = None if v is None else v.result
+            result.shrinkage = None if shrunk is None else shrunk.result
             return result
         profile = self.profile_intervals(shown) if spec.profile_ci else None
         record = fit_record(fit, study.outcome, study.event, profile=profile, assessment=assessment)
@@ -650,6 +802,8 @@ class Workspace:
             record["validation"] = validation_record(v.result, fit)
         result = AnalysisResult(spec, study, fit, None, None, assessment, record)
         result.validation = None if v is None else v.result
+        result.shrinkage = None if shrunk is None else shrunk.result
+        result.other_risks = self._add_usefulness_records(record, shown, shrunk)
         return result
 
     # ---- sessions ---------------------------------------------------------------------------
@@ -666,6 +820,8 @@ class Workspace:
         if result.validation is not None:
             session["validation_result"] = {k: (clean_number(x) if isinstance(x, float) else x)
                                             for k, x in result.validation.as_dict().items()}
+            session["validation_result"].update({k: [clean_number(x) for x in xs]
+                                                 for k, xs in result.validation.net_benefit_dict().items()})
         return session
 
     @classmethod
@@ -691,6 +847,10 @@ class Workspace:
             ws.threshold = float(session["threshold"])
         ws.report_options = dict(session["report"])
         ws.profile_always = bool(session["profile_ci"]) and not profile_auto(ws.shown_fit())
+        if session.get("impute"):
+            ws.imputation = {"m": int(session["impute"]), "seed": session["seed"],
+                             "auxiliary": list(session.get("auxiliary") or []),
+                             "anyway": bool(session.get("impute_anyway"))}
         saved = session.get("validation_result")
         if saved and session.get("validate"):
             from twofold.core.models.modelling import Validation
@@ -698,5 +858,288 @@ class Workspace:
             ws.validation = ValidationRecord(int(session["validate"]), int(session["seed"] or 0),
                                              Validation.from_dict(saved),
                                              tuple(ladder.rungs[ladder.current].predictors), ws.penalised)
+        ws._restore_usefulness(session)
         ws.mark_saved()
         return ws
+
+    # ---- usefulness: decision curves, units, subgroups, shrinkage, a saved model on a new file -----------------
+    def set_usefulness(self, net_benefit=KEEP, compare_with=KEEP, unit_column=KEEP, subgroups=KEEP) -> Change:
+        """Choose the decision-curve thresholds ``[LOW, HIGH, STEP]``, the second model of the curve (a rung
+        index), the unit column or the subgroup column (None: none; not given: kept).  Checked first: on a
+        refusal nothing changes."""
+        from twofold.core.assessing.decision import grid_from_setting
+        from twofold.core.assessing.units import check_unit_column
+
+        study = self.require_study()
+        new = dict(self.usefulness)
+        if net_benefit is not KEEP:
+            if net_benefit is not None:
+                net_benefit = [float(v) for v in net_benefit] if isinstance(net_benefit, (list, tuple)) else net_benefit
+                grid_from_setting(net_benefit)
+            new["net_benefit"] = net_benefit
+        if compare_with is not KEEP:
+            if compare_with is not None:
+                n = len(self.ladder.rungs) if self.ladder is not None else 0
+                if not (isinstance(compare_with, int) and 0 <= compare_with < n):
+                    raise ModelError("Choose a model of the ladder to compare the decision curve with.")
+            new["compare_with"] = compare_with
+        for key, value in (("unit_column", unit_column), ("subgroups", subgroups)):
+            if value is KEEP:
+                continue
+            if value is not None:
+                value = study.column(str(value))
+                if value not in study.columns:
+                    raise ModelError(f"'{value}' is not a column of {study.source}; choose one of its columns.")
+                if key == "unit_column" and self.has_model:
+                    check_unit_column(value, study.outcome, self._model_columns(self.shown_fit()))
+            new[key] = value
+        self.usefulness = new
+        change = Change("The usefulness settings changed.", frozenset(("usefulness",)))
+        self._changed(change)
+        return change
+
+    def _model_columns(self, fit) -> list:
+        return [p for t in fit.design.predictors for p in str(t).split(":")]
+
+    def grouping_columns(self, most: int) -> list:
+        """Columns whose values may name units or subgroups of the shown model's records: not the outcome, not in
+        the model, not an identifier or a date, with 2 to ``most`` distinct values."""
+        from twofold.core.data.roles import Role
+
+        if self.study is None or not self.has_model:
+            return []
+        used = set(self._model_columns(self.shown_fit())) | {self.study.outcome}
+        return [name for name, info in self.study.columns.items()
+                if name not in used and info.role not in (Role.IDENTIFIER, Role.DATE) and 2 <= info.n_levels <= most]
+
+    def _usefulness_spec(self, fit) -> dict:
+        """The spec fields of the usefulness settings (what a session saves and ``rerun`` repeats)."""
+        u = self.usefulness
+        other = u["compare_with"]
+        versus = None
+        if other is not None and other < len(self.ladder.rungs) and other != self.ladder.current:
+            versus = list(self.ladder.rungs[other].predictors)
+        unit = u["unit_column"]
+        if unit is not None and (unit == self.study.outcome or unit in self._model_columns(fit)):
+            unit = None  # the model now uses it: no longer a unit column
+        return {"net_benefit": None if u["net_benefit"] is None else list(u["net_benefit"]),
+                "net_benefit_versus": versus, "unit_column": unit, "subgroups": u["subgroups"],
+                "shrink": self.shrinkage_of(fit) is not None}
+
+    def decision_view(self, fit=None) -> DecisionView:
+        """The decision curve of the shown model (optimism-corrected when its bootstrap drew the same thresholds),
+        with the chosen second model of the ladder on the same rows."""
+        from twofold.core.assessing.decision import decision_curve, net_benefit_values
+
+        self.require_model()
+        fit = fit if fit is not None else self.shown_fit()
+        grid = self.decision_thresholds()
+        v = self.validation_of(fit)
+        optimism = None
+        if v is not None and v.result.net_benefit_thresholds is not None \
+                and len(v.result.net_benefit_thresholds) == len(grid) \
+                and all(abs(a - b) < 1e-9 for a, b in zip(v.result.net_benefit_thresholds, grid)):
+            optimism = v.result.net_benefit_optimism
+        curve = decision_curve(fit.design.y, fit.fitted, grid, optimism)
+        other = self.usefulness["compare_with"]
+        if other is None or other >= len(self.ladder.rungs) or other == self.ladder.current:
+            return DecisionView(curve)
+        of = self.fit_of(other)
+        if len(of.design.y) != len(fit.design.y) or not (of.design.rows == fit.design.rows).all():
+            return DecisionView(curve)  # not on the same rows: not comparable
+        return DecisionView(curve, net_benefit_values(of.design.y, of.fitted, grid),
+                            tuple(self.ladder.rungs[other].predictors), other)
+
+    def decision_thresholds(self):
+        """The thresholds of the decision curve: the user's setting, else 5% to 50% in steps of 1% (a bootstrap
+        run from the window draws its net-benefit optimism at these, for the corrected curve)."""
+        from twofold.core.assessing.decision import DEFAULT_RANGE, grid_from_setting
+
+        return grid_from_setting(list(self.usefulness["net_benefit"] or DEFAULT_RANGE))
+
+    def units_comparison(self, fit=None):
+        """The risk-adjusted comparison of the units of the chosen unit column on the shown model's rows."""
+        from twofold.core.assessing.units import check_unit_column, compare_units
+
+        self.require_model()
+        column = self.usefulness["unit_column"]
+        if column is None:
+            raise ModelError("Choose the column naming each record's unit (ward, hospital or team) first.")
+        fit = fit if fit is not None else self.shown_fit()
+        check_unit_column(column, self.study.outcome, self._model_columns(fit))
+        values = self.study.frame[column].iloc[fit.design.rows].to_numpy(dtype=object)
+        return compare_units(values, fit.design.y, fit.fitted, column)
+
+    def subgroup_table(self, fit=None, suppress_up_to: int | None = None) -> list:
+        """Performance of the shown model within the groups of the chosen subgroup column (suppressed entries
+        follow the report's limit unless ``suppress_up_to`` is given)."""
+        from twofold.core.assessing.subgroups import subgroup_performance
+
+        self.require_model()
+        column = self.usefulness["subgroups"]
+        if column is None:
+            raise ModelError("Choose the column whose groups the model's performance is shown in first.")
+        fit = fit if fit is not None else self.shown_fit()
+        groups = self.study.frame[column].iloc[fit.design.rows].to_numpy(dtype=object)
+        limit = self.report_options["suppress_up_to"] if suppress_up_to is None else suppress_up_to
+        return subgroup_performance(groups, fit.design.y, fit.fitted, fit.linear_predictor, column, limit)
+
+    def shrinkage_of(self, fit) -> ShrinkRecord | None:
+        """The kept shrunk model when it was made from ``fit`` (or its refit from a session), else None."""
+        return self._kept_for(self.shrinkage, fit)
+
+    def shrink_offer(self) -> str | None:
+        """Why the shown model may be shrunk (the bootstrap's corrected slope below 1), or None when it may not."""
+        from twofold.core.models.updating import shrinkage_refusal
+
+        fit = self.shown_fit()
+        v = self.validation_of(fit)
+        if v is None or self.shrinkage_of(fit) is not None:
+            return None
+        slope = v.result.calibration_slope_corrected
+        if shrinkage_refusal(slope) is not None:
+            return None
+        return (f"The bootstrap expects a calibration slope of {slope:.3g} on new patients: the model's risks would "
+                f"be too extreme there. Shrinking every coefficient by {slope:.3g} (and re-estimating the intercept) "
+                "gives risks that should hold better; predictions and saved sessions then use the shrunk model.")
+
+    def shrink(self) -> Change:
+        """Use the shown model shrunk by its bootstrap's corrected calibration slope (undoable)."""
+        def run():
+            from twofold.core.models.updating import shrinkage_refusal
+
+            rung = self.require_model()
+            fit = self.shown_fit()
+            v = self.validation_of(fit)
+            if v is None:
+                raise ModelError("Shrinking uses the calibration slope of a bootstrap validation; run the bootstrap "
+                                 "validation of this model first.")
+            factor = v.result.calibration_slope_corrected
+            why = shrinkage_refusal(factor)
+            if why is not None:
+                raise ModelError(why)
+            self.shrinkage = ShrinkRecord(self._shrunk(fit, factor), tuple(rung.predictors), is_penalised(fit), fit)
+            return Change(f"The model is shrunk by {factor:.3g}; predictions and saved sessions use the shrunk model.",
+                          frozenset(("validation", "usefulness")))
+
+        return self._operate("shrinking", run)
+
+    def unshrink(self) -> Change:
+        """Go back to the model as fitted (undoable)."""
+        def run():
+            if self.shrinkage is None:
+                return Change("The model is not shrunk.", frozenset())
+            self.shrinkage = None
+            return Change("The model as fitted is used again.", frozenset(("validation", "usefulness")))
+
+        return self._operate("shrinking undone", run)
+
+    def _shrunk(self, fit, factor):
+        from twofold.core.models.updating import shrink_model
+        from twofold.core.outputs.predict import frozen_model
+
+        model = frozen_model(fit, self.study.outcome, self.study.event)
+        return shrink_model(model, fit.design.X[:, fit.kept], fit.design.y, factor, source=str(self.study.source))
+
+    def saved_model(self, fit=None):
+        """The model as it is saved and used for predictions: the shrunk one when kept, else the fit's own."""
+        from twofold.core.outputs.predict import frozen_model
+
+        fit = fit if fit is not None else self.shown_fit()
+        s = self.shrinkage_of(fit)
+        return s.result.model if s is not None else frozen_model(fit, self.study.outcome, self.study.event)
+
+    def check_on_file(self, path, session_file=None, sheet=None, threshold=None, adapt=False):
+        """A saved model (``session_file``'s, else the shown one as saved) applied unchanged to a new data file:
+        the frozen validation figures (a :class:`~twofold.core.outputs.predict.FrozenResult`), with the net
+        benefit at the analysis's decision-curve thresholds and, with ``adapt``, how to adapt the model to the
+        file (``record["adaptation"]``).  Changes nothing."""
+        from twofold.core.analysis import add_decision_curve
+        from twofold.core.outputs.predict import add_adaptation, evaluate_frozen
+
+        model, sheet, threshold = self._model_to_check(session_file, sheet, threshold)
+        result = evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
+        add_decision_curve(result.record, result.y, result.predicted, self.decision_thresholds())
+        if adapt:
+            add_adaptation(result)
+        return result
+
+    def _model_to_check(self, session_file, sheet, threshold):
+        """The saved model to check on a new file (``session_file``'s, else the shown one as saved), its sheet and
+        threshold."""
+        if session_file is not None:
+            from twofold.core.outputs import session as ses
+
+            session = ses.load_session(session_file)
+            model, sheet = ses.frozen_from_session(session), sheet if sheet is not None else session["sheet"]
+            threshold = threshold if threshold is not None else session["threshold"]
+        else:
+            self.require_model()
+            fit = self.shown_fit()
+            model = self.saved_model(fit)
+            threshold = threshold if threshold is not None else self.threshold_for(fit)
+        return model, sheet, threshold
+
+    def save_adapted(self, path, out_path, session_file=None) -> str:
+        """Adapt the saved model (``session_file``'s, else the shown one) to the data file ``path`` and save it as a
+        new session at ``out_path`` (its data: the new file), for predictions and checks; returns the choice's
+        reading.  The analysis itself is unchanged."""
+        from twofold.core.outputs import session as ses
+        from twofold.core.outputs.predict import add_adaptation, evaluate_frozen
+        from twofold.core.outputs.storage import refuse_writing_over, save_session
+
+        model, sheet, threshold = self._model_to_check(session_file, None, None)
+        session = ses.load_session(session_file) if session_file is not None else self.to_session()
+        refuse_writing_over([out_path], [path, session.get("data")], session_file=session_file)
+        result = evaluate_frozen(model, path, sheet=sheet, threshold=threshold)
+        adaptation = add_adaptation(result)
+        save_session(ses.adapted_session(session, adaptation.model, path, result.rows_read), out_path)
+        return adaptation.reading
+
+    def _add_usefulness_records(self, record: dict, fit, shrunk):
+        """Add what the usefulness settings ask for to a result's record (as ``fit`` and ``rerun`` write it);
+        returns the second model's risks when its decision curve was added, else None."""
+        from twofold.core.analysis import add_decision_curve, add_other_curve
+        from twofold.core.assessing.subgroups import SUBGROUP_NOTE
+
+        u = self.usefulness
+        if u["net_benefit"] is not None:
+            view = self.decision_view(fit)
+            c = view.curve
+            add_decision_curve(record, fit.design.y, fit.fitted, c.thresholds,
+                               None if c.model_corrected is None else c.model - c.model_corrected)
+            if view.other is not None:
+                other = self.fit_of(view.other_index).fitted
+                add_other_curve(record, fit.design.y, other, view.other_predictors)
+        if u["subgroups"] is not None:
+            record["subgroups"] = self.subgroup_table(fit)
+            record["subgroups_note"] = SUBGROUP_NOTE
+        if u["unit_column"] is not None:
+            try:
+                record["units"] = self.units_comparison(fit).as_record()
+            except TwofoldError:
+                pass  # the model now uses the column, or it no longer names two units: nothing to compare
+        if shrunk is not None:
+            record["shrinkage"] = shrunk.result.as_dict()
+        return other if u["net_benefit"] is not None and view.other is not None else None
+
+    def _restore_usefulness(self, session: dict) -> None:
+        """The usefulness settings and the shrunk model a session saved (a setting the data no longer allows is
+        left unset; the shrunk model is made again from the refitted model and the saved factor)."""
+        versus = session.get("net_benefit_versus")
+        compare = None
+        if versus:
+            compare = next((i for i, r in enumerate(self.ladder.rungs) if set(r.predictors) == set(versus)), None)
+        for key, value in (("net_benefit", session.get("net_benefit")), ("compare_with", compare),
+                           ("unit_column", session.get("unit_column")), ("subgroups", session.get("subgroups"))):
+            try:
+                self.usefulness[key] = None
+                if value is not None:
+                    self.set_usefulness(**{key: value})
+            except TwofoldError:
+                self.usefulness[key] = None
+        saved = session.get("shrinkage")
+        fit = self.shown_fit()
+        if saved and saved.get("factor") is not None:
+            self.shrinkage = ShrinkRecord(self._shrunk(fit, float(saved["factor"])),
+                                          tuple(self.current_rung.predictors), is_penalised(fit), fit)

@@ -76,8 +76,7 @@ def interaction_job(focus: str, other: str, at=None):
 
 def current_fit_job(ws):
     """A job returning the fit of the model shown (for the bootstrap, which only reads it)."""
-    ws.require_model()
-    return {"kind": "current", "fit": ws.shown_fit()}
+    return {"kind": "current", "fit": ws.fit_for_validation(), "thresholds": ws.decision_thresholds()}
 
 
 # ---- the bootstrap thread ---------------------------------------------------------
@@ -89,9 +88,11 @@ class BootstrapThread(QThread):
     cancelled = Signal()
     failed = Signal(str)
 
-    def __init__(self, fit, repetitions: int, seed: int | None, parent=None):
+    def __init__(self, fit, repetitions: int, seed: int | None, parent=None, thresholds=None):
         super().__init__(parent)
         self.fit, self.repetitions, self.seed = fit, repetitions, seed
+        #: Decision-curve thresholds whose net-benefit optimism the same resamples give (None: none).
+        self.thresholds = thresholds
         self._stop = threading.Event()
         self.thread_ident: int | None = None
 
@@ -104,7 +105,7 @@ class BootstrapThread(QThread):
 
         self.thread_ident = threading.get_ident()
         try:
-            v = bootstrap_validation(self.fit, self.repetitions, seed=self.seed,
+            v = bootstrap_validation(self.fit, self.repetitions, seed=self.seed, thresholds=self.thresholds,
                                      progress=lambda d, t: self.progressed.emit(d, t),
                                      cancelled=self._stop.is_set)
         except ValidationCancelled:
@@ -346,7 +347,7 @@ class ModelShapeDialog(QDialog):
         elif kind == "interaction":
             self._show_interaction(payload)
         elif kind == "current":
-            self._launch(payload["fit"])
+            self._launch(payload["fit"], payload.get("thresholds"))
 
     def _on_failed(self, failure) -> None:
         if getattr(failure, "kind", "") != "modelling":
@@ -408,8 +409,8 @@ class ModelShapeDialog(QDialog):
         self.note.setText(f"Odds ratios of {rows[0]['focus'] if rows else ''}{unit}. " + INTERACTION_NOTE)
         self.status.setText("The interaction was added as a new model; the results pane shows it.")
 
-    def _launch(self, fit) -> None:
-        thread = BootstrapThread(fit, self.reps_spin.value(), self.seed_spin.value(), self)
+    def _launch(self, fit, thresholds=None) -> None:
+        thread = BootstrapThread(fit, self.reps_spin.value(), self.seed_spin.value(), self, thresholds)
         self._boot_fit = fit
         thread.progressed.connect(self._on_boot_progress)
         thread.done.connect(self._on_boot_done)
@@ -438,7 +439,9 @@ class ModelShapeDialog(QDialog):
             f"built from, minus an optimism of {fmt_num(v.auc_optimism)}")
         self.boot_labels["slope"].setText(
             f"{fmt_num(v.calibration_slope_corrected)} corrected (1 on the data it was built from, by "
-            f"construction; optimism {fmt_num(v.slope_optimism)})")
+            f"construction; optimism {fmt_num(v.slope_optimism)})"
+            + ("; below 1, so the Usefulness menu offers the model shrunk by it" if 0 < v.calibration_slope_corrected
+               < 1 else ""))
         self.boot_labels["brier"].setText(
             f"{fmt_num(v.brier_corrected)} corrected ({fmt_num(v.brier_apparent)} on the data it was built "
             f"from; optimism {fmt_num(v.brier_optimism)})")

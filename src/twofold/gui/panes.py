@@ -13,9 +13,9 @@ from html import escape as esc
 from PySide6.QtCore import QSignalBlocker, Qt, Signal
 from PySide6.QtGui import QAction, QFontMetrics, QPixmap
 from PySide6.QtWidgets import (
-    QAbstractItemView, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
-    QListWidget, QListWidgetItem, QMenu, QPushButton, QScrollArea, QSizePolicy, QSplitter, QTableView,
-    QVBoxLayout, QWidget,
+    QAbstractItemView, QCheckBox, QComboBox, QDialog, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
+    QListWidget, QListWidgetItem, QMenu, QProgressBar, QPushButton, QScrollArea, QSizePolicy, QSpinBox, QSplitter,
+    QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget,
 )
 
 from twofold.core.data.tidy import plural
@@ -419,6 +419,28 @@ class DataPane(QWidget):
 
 
 # ---------------------------------------------------------------------------
+class SideBySideDialog(QDialog):
+    """The shown model's pooled odds ratios beside its complete-rows ones (display only)."""
+
+    def __init__(self, payload: dict, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Imputed beside complete rows")
+        self.title = QLabel(payload["title"])
+        self.title.setTextFormat(Qt.TextFormat.PlainText)
+        self.title.setWordWrap(True)
+        self.table = QTableWidget(len(payload["rows"]), len(payload["headers"]))
+        self.table.setHorizontalHeaderLabels(list(payload["headers"]))
+        self.table.setAccessibleName("Odds ratios, imputed and pooled beside complete rows only")
+        for r, row in enumerate(payload["rows"]):
+            for c, text in enumerate(row):
+                self.table.setItem(r, c, QTableWidgetItem(text))
+        self.table.resizeColumnsToContents()
+        lay = QVBoxLayout(self)
+        lay.addWidget(self.title)
+        lay.addWidget(self.table, 1)
+        self.resize(1000, 360)
+
+
 class ModelPane(QWidget):
     """Choose the outcome and its event value, and tick the predictors."""
 
@@ -453,6 +475,7 @@ class ModelPane(QWidget):
         label.setBuddy(self.event_combo)
         label.setToolTip("The outcome value whose odds the model describes (for example 'yes' or 1).")
         form.addRow(label, self.event_combo)
+        self._missing_values_row(form)
         layout.addLayout(form)
         self.outcome_note = _wrapped("", "Outcome note")
         layout.addWidget(self.outcome_note)
@@ -484,6 +507,107 @@ class ModelPane(QWidget):
         session.resultsChanged.connect(self._on_results)
         session.failed.connect(self._on_failed)
         session.loadStarted.connect(lambda path: self._set_enabled(False))
+
+    def _missing_values_row(self, form) -> None:
+        """Leave incomplete rows out, or fill in their missing values by multiple imputation (copies and seed)."""
+        self.missing_combo = QComboBox()
+        self.missing_combo.addItems(["leave out incomplete rows", "fill in by multiple imputation"])
+        self.missing_combo.setAccessibleName("Missing values")
+        self.missing_combo.setToolTip("Leave out rows missing a predictor, or fill in the missing values by "
+                                      "multiple imputation and pool every result over the imputed copies.")
+        self.missing_combo.activated.connect(self._imputation_chosen)
+        # As narrow as the outcome's list: the results pane keeps its room on a laptop.
+        self.missing_combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+        self.missing_combo.setMinimumContentsLength(12)
+        settings = QHBoxLayout()  # on a line of their own, so the pane stays narrow on a laptop
+        self.copies_spin = QSpinBox()
+        self.copies_spin.setRange(2, 100)
+        self.copies_spin.setValue(20)
+        self.copies_spin.setPrefix("copies ")
+        self.copies_spin.setAccessibleName("Imputed copies")
+        self.seed_spin = QSpinBox()
+        self.seed_spin.setRange(0, 999_999)
+        self.seed_spin.setValue(1)
+        self.seed_spin.setPrefix("seed ")
+        self.seed_spin.setAccessibleName("Seed of the imputations")
+        for spin in (self.copies_spin, self.seed_spin):
+            spin.editingFinished.connect(self._imputation_settings_changed)
+            settings.addWidget(spin)
+        self.anyway_check = QCheckBox("impute anyway")
+        self.anyway_check.setAccessibleName("Impute columns missing in more than half the rows")
+        self.anyway_check.setToolTip("Also impute a column missing in more than half the rows with an outcome.")
+        settings.addStretch(1)
+        label = QLabel("Missing &values:")
+        label.setBuddy(self.missing_combo)
+        form.addRow(label, self.missing_combo)
+        form.addRow("", settings)
+        self.impute_bar = QProgressBar()
+        self.impute_bar.setRange(0, 100)
+        self.impute_bar.setAccessibleName("Imputed copies made")
+        self.impute_stop = QPushButton("Stop imputing")
+        self.impute_stop.setAccessibleName("Stop making the imputed copies")
+        self.impute_stop.clicked.connect(self._stop_imputing)
+        self.side_button = QPushButton("Beside comple&te rows\u2026")
+        self.side_button.setAccessibleName("Show the imputed results beside the complete rows'")
+        self.side_button.setToolTip("The model shown, pooled over the imputed copies, beside its fit on complete "
+                                    "rows only (reviewers ask for both).")
+        self.side_button.clicked.connect(self._show_side_by_side)
+        self.side_button.setEnabled(False)
+        form.addRow("", self.anyway_check)
+        form.addRow("", self.side_button)
+        progress = QHBoxLayout()
+        progress.addWidget(self.impute_bar, 1)
+        progress.addWidget(self.impute_stop)
+        self.impute_progress = QWidget()
+        self.impute_progress.setLayout(progress)
+        progress.setContentsMargins(0, 0, 0, 0)
+        self.impute_progress.hide()
+        form.addRow("", self.impute_progress)
+        self.impute_request: int | None = None
+        self.session.imputeProgress.connect(lambda f: self.impute_bar.setValue(int(round(100 * f))))
+        self.session.requestFinished.connect(self._imputation_finished)
+        self.session.failed.connect(self._imputation_failed)
+        self._imputing = self._wanted = False  # what the analysis does, and what was last asked
+
+    def _imputation_chosen(self, i: int) -> None:
+        on = i == 1
+        self._wanted = on
+        self.impute_bar.setValue(0)
+        self.impute_progress.setVisible(on)
+        self.impute_request = self.session.set_imputation(self.copies_spin.value() if on else None,
+                                                          self.seed_spin.value(), self.anyway_check.isChecked())
+
+    def _imputation_settings_changed(self) -> None:
+        if self.missing_combo.currentIndex() == 1 and self.impute_request is None:
+            self._imputation_chosen(1)
+
+    def _show_side_by_side(self) -> None:
+        from twofold.gui import present
+
+        self.session.call("side by side", present.side_by_side, done=self._side_by_side_ready)
+
+    def _side_by_side_ready(self, payload) -> None:
+        self.side_dialog = SideBySideDialog(payload, self)
+        self.side_dialog.show()
+
+    def _stop_imputing(self) -> None:
+        self.session.cancel_imputation()
+
+    def _imputation_finished(self, job_id: int) -> None:
+        if job_id != self.impute_request:
+            return
+        self.impute_request = None
+        self.impute_progress.hide()
+        self._imputing = self._wanted
+        self.side_button.setEnabled(self._imputing)
+
+    def _imputation_failed(self, failure) -> None:
+        if failure.kind != "imputation":
+            return
+        # A refused or stopped imputation leaves the analysis as it was: so does the choice shown.
+        self._wanted = self._imputing
+        with QSignalBlocker(self.missing_combo):
+            self.missing_combo.setCurrentIndex(1 if self._imputing else 0)
 
     # ---- reading the widgets ---------------------------------------------
     def ticked_predictors(self) -> tuple:
@@ -574,6 +698,8 @@ class ModelPane(QWidget):
     def _set_enabled(self, on: bool) -> None:
         self.list.setEnabled(on)
         self.clear_button.setEnabled(on)
+        for w in (self.missing_combo, self.copies_spin, self.seed_spin, self.anyway_check):
+            w.setEnabled(on)
 
     def _on_study(self, view) -> None:
         self.study = view
@@ -708,6 +834,15 @@ class ModelPane(QWidget):
             self._add_interaction_items()
         self._sync_ticks(view.predictors)
         self.counts.setText(view.counts_text.replace("  \u00b7  ", "\n"))
+        if self.impute_request is None:  # the choice shown follows the analysis (a session opened, an undo)
+            self._imputing = self._wanted = view.imputed is not None
+            self.side_button.setEnabled(self._imputing)
+            with QSignalBlocker(self.missing_combo):
+                self.missing_combo.setCurrentIndex(1 if view.imputed else 0)
+            if view.imputed:
+                for spin, value in zip((self.copies_spin, self.seed_spin), view.imputed):
+                    with QSignalBlocker(spin):
+                        spin.setValue(int(value))
 
 
 # ---------------------------------------------------------------------------
@@ -1127,7 +1262,7 @@ class AssessmentSection(QFrame):
         row.addWidget(self.threshold)
         row.addStretch(1)
         b.addLayout(row)
-        self.classification = _wrapped("", "Classification table")
+        self.classification = _wrapped("", "Classification table", rich=True)  # its parts are escaped
         b.addWidget(self.classification)
 
         self.plots = {}
@@ -1289,12 +1424,22 @@ class LadderPane(QWidget):
         self._compared = None  # (index, predictors) of the two models whose comparison is shown
         session.resultsChanged.connect(self._on_results)
         session.comparisonReady.connect(self._on_comparison)
+        if hasattr(session, "ladderChanged"):
+            session.ladderChanged.connect(self._on_ladder)
 
     def _enable(self) -> None:
         n = self.model.rowCount()
         self.show_button.setEnabled(n > 0)
         for w in (self.first, self.second, self.compare_button):
             w.setEnabled(n > 1)
+
+    def _on_ladder(self, ladder) -> None:
+        """The same models, with those passed over by quicker ticks now fitted."""
+        if len(ladder.rows) == self.model.rowCount():
+            with QSignalBlocker(self.table.selectionModel()):
+                self.model.set_rows(ladder.rows)
+                if ladder.current is not None:
+                    self.table.selectRow(ladder.current)
 
     def _on_results(self, view) -> None:
         with QSignalBlocker(self.table.selectionModel()):

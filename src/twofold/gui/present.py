@@ -15,7 +15,7 @@ from twofold.core.data.roles import MAX_CATEGORY_LEVELS, Role
 from twofold.core.models.terms import TIMES, value_text
 from twofold.core.outputs.text import (
     curve_reading, degrees, fmt_num, fmt_or, fmt_p, interaction_reading, or_cells, stated_line, reading_nested,
-    reading_not_nested, reading_overall,
+    reading_not_nested, reading_overall, pooled_test_text,
 )
 from twofold.gui.views import (
     ROLE_LABELS, AssessmentView, ColumnView, CoefficientLine, ComparisonView, LadderRow, LadderView, NoteView,
@@ -224,6 +224,15 @@ def _lr_name(fit) -> str:
     return "Penalised likelihood-ratio" if is_penalised(fit) else "Likelihood-ratio"
 
 
+def _pooled_text(t) -> str | None:
+    """A pooled test's words and figures (kind, F and its degrees of freedom), or None for an ordinary test."""
+    if not hasattr(t, "df_denominator"):
+        return None
+    from twofold.core.outputs.summary import pooled_fields
+
+    return pooled_test_text({"g": t.g, "df": t.df, "p_value": t.p_value, **pooled_fields(t)})
+
+
 def overall_view(fit) -> TestView:
     t = fit.overall
     if t.df <= 0:
@@ -231,6 +240,9 @@ def overall_view(fit) -> TestView:
                         reading_overall(None), None, 0, None)
     text = (f"{_lr_name(fit)} (G) test against the constant-only model: G = {fmt_num(t.g, 2)} "
             f"on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+    pooled = _pooled_text(t)
+    if pooled:
+        text = f"{pooled}, against the constant-only model."
     return TestView("The model as a whole", text, reading_overall(t.p_value), t.g, t.df, t.p_value)
 
 
@@ -254,31 +266,40 @@ def nested_view(ws, parent: int, index: int) -> TestView:
         lead = f"{kind} of the larger model (with {', '.join(which)}) against this one{rows}"
     else:
         lead = f"{kind} of this model against model {parent + 1}{rows}"
-    text = f"{lead}: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}."
+    text = f"{lead}: " + (_pooled_text(t) or f"G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}") + "."
     reading = reading_nested(t.p_value if t.df > 0 else None, which)
     return TestView(title, text, reading, t.g, t.df, t.p_value)
+
+
+#: A ladder figure not worked out yet.
+PENDING = "being fitted\u2026"
 
 
 def ladder_view(ws) -> LadderView:
     ladder, parents, study, penalised = ws.ladder, ws.parents, ws.study, ws.penalised
     rows = []
     for k, rung in enumerate(ladder.rungs):
-        fit = rung.fit
+        # A model passed over by quicker ticks is fitted just after the newest is shown: it is not waited for.
+        fit = rung.fit if rung.fitted else None
         g = df = p = None
         parent = parents.get(k)
-        texts = {"n_params": str(fit.n_params), "log_likelihood": fmt_num(fit.llf, 2),
-                 "aic": fmt_num(fit.aic, 1), "g": "", "df": "", "p_value": ""}
+        texts = {"n_params": "", "log_likelihood": PENDING, "aic": "", "g": "", "df": "", "p_value": ""}
+        if fit is not None:
+            texts.update(n_params=str(fit.n_params), log_likelihood=fmt_num(fit.llf, 2), aic=fmt_num(fit.aic, 1))
         change = "first model"
         if parent is not None:
             change = (_change_text(rung, study) or "no change") + f" (from model {parent + 1})"
-            test = ladder.nested(parent, k)
-            if test is not None:
+            test = ladder.nested(parent, k) if fit is not None and ladder.rungs[parent].fitted else PENDING
+            if test is PENDING:
+                texts.update(g=PENDING if fit is not None else "")
+            elif test is not None:
                 g, df, p = test.g, test.df, test.p_value
                 texts.update(g=fmt_num(g, 2), df=str(df), p_value=fmt_p(p))
             else:
                 texts.update(g="not nested")
         rows.append(LadderRow(k, tuple(rung.predictors), _predictors_text(rung.predictors, study), change,
-                              fit.n_params, fit.llf, fit.aic, g, df, p, texts, k == ladder.current))
+                              *((fit.n_params, fit.llf, fit.aic) if fit is not None else (None, None, None)),
+                              g, df, p, texts, k == ladder.current))
     n = len(ladder.rows) if ladder.rows is not None else 0
     notices = [x.message for x in ladder.notices]
     if penalised:
@@ -303,13 +324,15 @@ def shape_tests(ws, fit) -> tuple:
     curves, crossings = ws.shape_tests(fit)
     for t in curves:
         text = (f"{_lr_name(fit)} test of the curve ({len(t.knots)} knots) against a straight line, on the same "
-                f"rows: G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+                "rows: " + (_pooled_text(t) or f"G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}")
+                + ".")
         reading = curve_reading(t.term, t.p_value)
         out.append(TestView(f"Is the effect of {t.term} curved?", text, reading, t.g, t.df, t.p_value))
     for t in crossings:
         a, b = interaction_parts(study, t.term) or (t.term, "")
         text = (f"{_lr_name(fit)} test of the model with {a} {TIMES} {b} against the model without it: "
-                f"G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}.")
+                + (_pooled_text(t) or f"G = {fmt_num(t.g, 2)} on {degrees(t.df)}, p-value {fmt_p(t.p_value)}")
+                + ".")
         reading = interaction_reading(a, b, t.p_value)
         out.append(TestView(f"Does the effect of {a} differ with {b}?", text, reading, t.g, t.df, t.p_value))
     return tuple(out)
@@ -374,6 +397,9 @@ def results_view(ws) -> ResultsView | None:
                 if math.isfinite(epp) else "no coefficients besides the intercept")
     counts = (f"Rows used: {fit.n_used:,} of {rows_read:,}  \u00b7  with the event: {fit.events:,} "
               f"({share:.1f}%)  \u00b7  {epp_text}")
+    if ws.imputation:  # which results these are, when the analysis fills in missing values
+        counts += (f"  \u00b7  missing values filled in: pooled over {ws.imputation['m']} imputed copies "
+                   f"(seed {ws.imputation['seed']})")
     event_label = value_label(study.event)
     title = f"Model {index + 1} of {len(ladder.rungs)}: the odds that {study.outcome} = {event_label}"
     parent = parents.get(index)
@@ -391,7 +417,8 @@ def results_view(ws) -> ResultsView | None:
         log_likelihood=fit.llf, contents_text=contents, shape_tests=shape_tests(ws, fit),
         stated_effects=stated_lines(fit),
         penalised=penalised, method_text=PENALISED_TEXT if penalised else "", separation=separation,
-        profile_auto=profile_auto(fit),
+        profile_auto=profile_auto(fit) and not ws.imputation,  # no profile intervals for pooled fits
+        imputed=(ws.imputation["m"], ws.imputation["seed"]) if ws.imputation else None,
     )
 
 
@@ -532,3 +559,64 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
         notes=tuple(n.message for n in result.notices), values=values, figures=dict(figures),
         penalised=penalised,
     )
+
+
+def pooled_assessment_view(index: int, a: dict, fit) -> AssessmentView:
+    """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded; no figures."""
+    lo, hi = a["auc_ci"]
+    auc = a["auc"]
+    drop = tuple(
+        (t["label"], pooled_test_text({**t, "g": t["g"]}) if t["available"] else "not available",
+         f"D1 Wald chi-square {fmt_num(t['wald'], 2)}, p-value {fmt_p(t['wald_p_value'])}", bool(t["prefer_lr"]))
+        for t in a["drop_one"])
+    return AssessmentView(
+        rung=index, title=f"How good is model {index + 1}? (pooled over the imputed copies)",
+        auc_text=(f"Area under the ROC curve (c statistic): {fmt_num(auc, 3)}, 95% confidence interval "
+                  f"{fmt_num(lo, 3)} to {fmt_num(hi, 3)} (pooled on the logit scale)."),
+        auc_reading=(f"Of a random pair of records, one with the event and one without, the model gives the one with "
+                     f"the event the higher risk in {_pct(auc)} of pairs (50% is no better than a coin toss)."
+                     if auc is not None else ""),
+        brier_text=f"Brier score {fmt_num(a['brier'], 4)}; scaled Brier score {fmt_num(a['scaled_brier'], 3)}.",
+        calibration_text=(f"Calibration slope: {fmt_num(a['calibration_slope'], 3)}; calibration-in-the-large: "
+                          f"{fmt_num(a['calibration_intercept'], 3)}."),
+        calibration_note=a["calibration_note"], hl_text="Hosmer-Lemeshow test: not pooled.", hl_note="",
+        pseudo_r2_text=(f"Pseudo-R-squared (averaged over the copies): McFadden {fmt_num(a['mcfadden_r2'], 3)}, "
+                        f"Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, "
+                        f"Tjur {fmt_num(a['tjur_r2'], 3)}."),
+        drop_one=drop, sample_size_text="Minimum sample size: not worked out for pooled fits.",
+        classification_text="Classification at a risk threshold: not pooled (it would count imputed values).",
+        threshold_note="The pooled figures above do not depend on the threshold.",
+        notes=(a["pooled_note"],), values={"auc": auc, "auc_ci_low": lo, "auc_ci_high": hi},
+        penalised=is_penalised(fit),
+    )
+
+
+def side_by_side(ws) -> dict:
+    """The model shown, pooled over the imputed copies beside its fit on complete rows only, worded row by row.
+
+    ``{"title", "headers", "rows"}``; each row: coefficient, pooled odds ratio (95% interval), complete-rows odds
+    ratio (95% interval), missing information.
+    """
+    from twofold.core.errors import ModelError
+
+    if not ws.imputation or not ws.has_model:
+        raise ModelError("Choose 'fill in by multiple imputation' under missing values first; the two are then "
+                         "shown side by side.")
+    index = ws.ladder.current
+    pooled = ws.fit_of(index)
+    complete = ws.study.fit(list(ws.ladder.rungs[index].predictors), firth=ws.penalised)
+    by_name = {r["name"]: r for r in complete.coefficient_rows}
+
+    def cell(r):
+        if r is None:
+            return "not in this fit"
+        odds, ci = or_cells(r)
+        return f"{odds} ({ci})"
+
+    rows = tuple((r["label"], cell(r), cell(by_name.get(r["name"])), fmt_num(r.get("fmi"), 2))
+                 for r in pooled.coefficient_rows[1:])
+    return {"title": f"Model {index + 1}: imputed and pooled over {pooled.m} copies ({pooled.n_used:,} rows) beside "
+                     f"complete rows only ({complete.n_used:,} rows)",
+            "headers": ("coefficient", "odds ratio, imputed and pooled (95% interval)",
+                        "odds ratio, complete rows only (95% interval)", "missing information"),
+            "rows": rows}

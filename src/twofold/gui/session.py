@@ -23,6 +23,7 @@ under the results of the same request.
 
 from __future__ import annotations
 
+import dataclasses
 from collections import defaultdict
 from concurrent.futures import ThreadPoolExecutor
 
@@ -33,6 +34,11 @@ from twofold.gui.worker import CoreWorker, Job, log_exception, where_logged
 
 #: The displays a job can update; each has its own "newest request" mark.
 FACETS = ("study", "columns", "outcome", "results", "comparison", "history")
+
+#: Seconds the models passed over by quick ticks wait, after the newest is sent, before they are fitted.
+SHOW_FIRST_S = 0.15
+#: ... and, at least, until this many seconds have passed since the last request.
+QUIET_S = 0.6
 
 #: Risk threshold of the classification table until the user picks another (None: the model's event rate).
 DEFAULT_THRESHOLD = None
@@ -62,8 +68,10 @@ class Session(QObject):
     requestFinished = Signal(int)     # id of every request that completed (shown or not)
     loadStarted = Signal(str)         # a file is being opened: ticks would apply to the old one
     loadProgress = Signal(float)      # share of the file read so far, 0 to 1
+    imputeProgress = Signal(float)    # share of the imputed copies made so far, 0 to 1
     payloadReady = Signal(int, object)  # (request id, payload) of a call()
     profileReady = Signal(object)     # ProfileView of the model shown
+    ladderChanged = Signal(object)    # LadderView: the shown results' ladder, its passed-over models now fitted
     _assessed = Signal(int, object, object)   # (request id, AssessmentView or None, Failure or None)
     _profileComputed = Signal(int, object)    # (request id, ProfileView) from the profile thread
 
@@ -74,6 +82,7 @@ class Session(QObject):
         self._worker = CoreWorker()
         self._worker.jobDone.connect(self._on_done)
         self._next_id = 0
+        self._last_request_at = 0.0    # time.monotonic() of the last request
         self._floor: dict[str, int] = defaultdict(int)
         self._pending: set[int] = set()
         self._busy = False
@@ -95,6 +104,7 @@ class Session(QObject):
         #: The analysis (worker side: touch it only inside jobs run by :meth:`call`).
         self.workspace = Workspace()
         self._load_generation = 0
+        self._impute_generation = 0
         self._assessor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-assess")
         self._profiler = ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-profile")
         self._assessment_of = None      # (fit, core Assessment, figures) of the last assessment worked out
@@ -176,11 +186,14 @@ class Session(QObject):
         mine = self._next_id + 1
 
         def job():
-            self.workspace.set_predictors(predictors)
             if self._floor["results"] > mine:
-                # A newer tick is already waiting: this step joins the ladder, but its display would never
-                # be shown, so it is not built (a burst of ticks then waits only for the fits).
+                # A newer tick is already waiting: this step joins the ladder with its fit put off, and its
+                # display, which would never be shown, is not built.  The newest model is fitted and shown
+                # first; the ones passed over are fitted right after (see _complete), so quick ticks wait
+                # for one fit, not for all of them.
+                self.workspace.set_predictors(predictors, defer=True)
                 return self._views(())
+            self.workspace.set_predictors(predictors)
             return self._views(("results",))
 
         job_id = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)
@@ -243,6 +256,27 @@ class Session(QObject):
             return self._views(())
 
         return self._submit("assess", job, facets=("history",), assess=True)
+
+    def set_imputation(self, m: int | None, seed: int | None = None, anyway: bool = False) -> int:
+        """Fill in missing values by multiple imputation (``m`` copies, ``seed``), or leave incomplete rows out
+        (None); progress goes to :attr:`imputeProgress` and :meth:`cancel_imputation` stops it (the analysis stays
+        as it was).  Returns the id."""
+        self._impute_generation += 1
+        generation = self._impute_generation
+
+        def progress(fraction):
+            self.imputeProgress.emit(fraction)
+            return generation == self._impute_generation
+
+        def job():
+            self.workspace.set_imputation(m, seed, anyway=anyway, progress=progress)
+            return self._views(("results",))
+
+        return self._submit("imputation", job, facets=("results",), on_error=self._snapshot_results)
+
+    def cancel_imputation(self) -> None:
+        """Stop making the imputed copies (the analysis stays as it was)."""
+        self._impute_generation += 1
 
     def set_penalised(self, on: bool) -> int:
         """Show Firth's penalised fit of each model (True) or the ordinary fit (False); returns the id."""
@@ -335,6 +369,9 @@ class Session(QObject):
         return known[1] if known is not None and known[0] is fit else None
 
     def _submit(self, kind, fn, facets, clears_queue=False, on_error=None, assess=False, coalesce=None) -> int:
+        import time
+
+        self._last_request_at = time.monotonic()
         self._next_id += 1
         job_id = self._next_id
         facets = tuple(facets) + ("history",)
@@ -347,7 +384,7 @@ class Session(QObject):
             self._floor[f] = job_id
         self._floor["error:" + kind] = job_id
         self._pending.add(job_id)
-        then = (lambda: self._follow(job_id)) if ("results" in facets or assess) else None
+        then = (lambda: self._follow(job_id) or self._complete(job_id)) if ("results" in facets or assess) else None
         job = Job(job_id, kind, fn, coalesce, clears_queue, on_error, then=then, then_kind="assess")
         for dropped in self._worker.submit(job):
             self._pending.discard(dropped)
@@ -386,10 +423,15 @@ class Session(QObject):
                 if facet == "history":
                     self.last_history = view
                 signals[facet].emit(view)
-        done = self._callbacks.pop(result.id, None)
+        ladder = result.outputs.get("ladder")
+        if ladder is not None and self.is_current("results", result.id) and self.last_results is not None:
+            # The models passed over by quicker ticks are now fitted: the ladder is shown complete.
+            self.last_results = dataclasses.replace(self.last_results, ladder=ladder)
+            self.ladderChanged.emit(ladder)
+        done = None if result.followup else self._callbacks.pop(result.id, None)
         if done is not None and result.error is None and "payload" in result.outputs:
             done(result.outputs["payload"])
-        if "payload" in result.outputs:
+        if "payload" in result.outputs and not result.followup:
             self.payloadReady.emit(result.id, result.outputs["payload"])
         if result.error is not None and (result.unexpected or self.is_current("error:" + result.kind, result.id)):
             self.failed.emit(Failure(result.kind, result.error, result.unexpected, result.log_path,
@@ -399,7 +441,8 @@ class Session(QObject):
                 del self._held[facet]
                 (self._on_assessed if facet == "assessment" else self._on_profiled)(job_id, *args)
         self._set_busy(bool(self._pending))
-        self.requestFinished.emit(result.id)
+        if not result.followup:
+            self.requestFinished.emit(result.id)
 
     def _on_assessed(self, job_id: int, view, failure) -> None:
         """The assessment that follows a result: shown only if no newer request has been made since."""
@@ -480,11 +523,45 @@ class Session(QObject):
         if fit is None:
             self._assessed.emit(job_id, None, None)
             return None
+        if ws.imputation:  # pooled: worked out here on the worker, after the tests were sent (tests first)
+            from twofold.gui import present
+
+            self._assessed.emit(job_id, present.pooled_assessment_view(ws.ladder.current, ws.pooled_assessment(fit),
+                                                                       fit), None)
+            return None
         index, study, threshold = ws.ladder.current, ws.study, ws.threshold_for(fit)
         self._assessor.submit(self._assess, job_id, study, fit, index, threshold)
         if self.profile_always or ws.wants_profile(fit):
             self._start_profile(job_id)
         return None
+
+    def _complete(self, job_id: int):
+        """After a result was sent (worker thread): fit the models passed over by quicker ticks, newest first.
+
+        A newer request stops it between fits (that request's display has the ladder as it then stands);
+        otherwise the finished ladder is sent for the same request.
+        """
+        ws = self.workspace
+        if ws.ladder is None or not ws.ladder.pending:
+            return None
+
+        def newer():
+            return self._floor["results"] > job_id or self._closing
+
+        # First a moment for the window to show the newest results: fits now would hold the interpreter
+        # lock while it lays them out and paints them.
+        import time
+
+        # ...and while the user is still ticking (ticks a moment apart), a fit started now would make the next
+        # tick wait for it: the models passed over are fitted once the ticks pause.
+        until = max(time.monotonic() + SHOW_FIRST_S, self._last_request_at + QUIET_S)
+        while time.monotonic() < until and not newer():
+            time.sleep(0.01)
+        if not ws.complete(newer) or newer():
+            return None
+        from twofold.gui import present
+
+        return {"ladder": present.ladder_view(ws)}
 
     def _start_profile(self, job_id: int, force: bool = False) -> None:
         ws = self.workspace
@@ -539,12 +616,18 @@ class Session(QObject):
         from concurrent.futures import TimeoutError as StillRunning
         from concurrent.futures.process import BrokenProcessPool
 
-        from twofold.render.assessed import Abandoned, assess_and_draw
+        from twofold.render.assessed import Abandoned, assess_and_draw_packed, pack, release
 
         pool = self._process_pool()
         if pool is not None:
             try:
-                future = pool.submit(assess_and_draw, fit, threshold, job_id)
+                packed, blocks = pack(fit)  # its large arrays by shared memory: the window keeps answering
+                try:
+                    future = pool.submit(assess_and_draw_packed, packed, threshold, job_id)
+                except BaseException:
+                    release(blocks)
+                    raise
+                future.add_done_callback(lambda _: release(blocks))  # done, failed or withdrawn
                 while True:
                     try:
                         return future.result(timeout=0.05)

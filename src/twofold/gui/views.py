@@ -210,6 +210,8 @@ class ResultsView:
     separation: bool = False
     #: Whether profile-likelihood intervals are cheap enough here to work out without being asked.
     profile_auto: bool = False
+    #: (copies, seed) when missing values are filled in by multiple imputation and the results are pooled, else None.
+    imputed: tuple | None = None
 
 
 @dataclass(frozen=True)

@@ -55,6 +55,10 @@ def open_settings() -> QSettings:
     return QSettings(str(folder / "settings.ini"), QSettings.Format.IniFormat)
 
 
+#: At the latest this long after the window is made, its worker starts (normally at the first paint).
+WORKER_START_MS = 200
+
+
 class MainWindow(QMainWindow):
     """The window.  ``session`` defaults to a new one; ``remember`` keeps a recent-files list."""
 
@@ -125,7 +129,21 @@ class MainWindow(QMainWindow):
         self._revision_seen = 0
         self.data_pane.openRequested.connect(self.open_dialog)
         self.data_pane.sampleRequested.connect(self._sample_menu_popup)
-        s.start()
+        # The worker imports pandas and the fitting library as it starts: it starts once the window is painted,
+        # so those imports do not compete with drawing the window for the interpreter (a window that is never
+        # shown starts it a moment later; a request made before then waits for it, in order).
+        self._worker_started = False
+        QTimer.singleShot(WORKER_START_MS, self._start_worker)
+
+    def paintEvent(self, event) -> None:
+        super().paintEvent(event)
+        if not self._worker_started:
+            QTimer.singleShot(0, self._start_worker)
+
+    def _start_worker(self) -> None:
+        if not self._worker_started:
+            self._worker_started = True
+            self.session.start()
 
     # ---- menus, toolbar, status ---------------------------------------------
     def _build_actions(self) -> None:
@@ -207,6 +225,16 @@ class MainWindow(QMainWindow):
         self.model_shape_action.triggered.connect(self.open_model_shape)
         shape_menu.addAction(self.model_shape_action)
         self.model_shape_dialog = None
+
+        # ---- "Usefulness" menu (twofold.gui.usefulness_ui) ----
+        use_menu = bar.addMenu("&Usefulness")
+        self.usefulness_action = QAction("Decision curve, units, subgroups and &shrinkage\u2026", self)
+        self.usefulness_action.triggered.connect(lambda _=False: self.open_usefulness())
+        use_menu.addAction(self.usefulness_action)
+        self.check_file_action = QAction("&Check a saved model on a new file\u2026", self)
+        self.check_file_action.triggered.connect(lambda _=False: self.open_usefulness("Check on a new file"))
+        use_menu.addAction(self.check_file_action)
+        self.usefulness_dialog = None
 
         # ---- "Risk" menu (twofold.gui.calculator) ----
         risk_menu = bar.addMenu("&Risk")
@@ -492,6 +520,17 @@ class MainWindow(QMainWindow):
         from twofold.gui.modelling_ui import ModelShapeDialog
 
         return self._show_one("model_shape_dialog", ModelShapeDialog)
+
+    def open_usefulness(self, tab: str | None = None):
+        """Show the usefulness dialog (one per window), at the tab named ``tab`` when given."""
+        from twofold.gui.usefulness_ui import UsefulnessDialog
+
+        dialog = self._show_one("usefulness_dialog", UsefulnessDialog)
+        for i in range(dialog.tabs.count()):
+            if dialog.tabs.tabText(i) == tab:
+                dialog.tabs.setCurrentIndex(i)
+        dialog.refresh()
+        return dialog
 
     def explain(self, topic: str | None = None):
         """Show "What does this mean?" at ``topic`` (the first topic when None); returns the dialog."""

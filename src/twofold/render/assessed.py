@@ -60,6 +60,76 @@ def assess_and_draw(fit, threshold=None, ticket=None):
     return result, assessment_figures(result)
 
 
+#: Arrays at least this large (bytes) go to the assessment process through shared memory, not the pipe.
+SHARED_FROM = 1 << 20
+
+
+def pack(obj) -> tuple:
+    """``(bytes, blocks)``: ``obj`` pickled with its large arrays placed in shared memory.
+
+    Pickling a fit of 200,000 rows copies about 40 MB while holding the
+    interpreter lock (about 50 ms, and five times that at a million rows), so
+    the window could not answer meanwhile; a copy into shared memory is made
+    by numpy without the lock.  The caller keeps ``blocks`` until the work is
+    done or withdrawn, then gives them to :func:`release`.
+    """
+    import io
+    import pickle
+    from multiprocessing import shared_memory
+
+    import numpy as np
+
+    blocks = []
+
+    class Packer(pickle.Pickler):
+        def reducer_override(self, o):
+            if type(o) is not np.ndarray or o.nbytes < SHARED_FROM or o.dtype.hasobject:
+                return NotImplemented
+            order = "F" if o.flags.f_contiguous and not o.flags.c_contiguous else "C"
+            block = shared_memory.SharedMemory(create=True, size=o.nbytes)
+            blocks.append(block)
+            np.copyto(np.ndarray(o.shape, o.dtype, buffer=block.buf, order=order), o)
+            return _unpack_array, (block.name, o.shape, o.dtype.str, order)
+
+    out = io.BytesIO()
+    try:
+        Packer(out, protocol=pickle.HIGHEST_PROTOCOL).dump(obj)
+    except BaseException:
+        release(blocks)
+        raise
+    return out.getvalue(), blocks
+
+
+def release(blocks) -> None:
+    """Free the shared memory of :func:`pack` (in the window's process, once the work is over)."""
+    for block in blocks:
+        try:
+            block.close()
+            block.unlink()
+        except (OSError, BufferError):
+            pass
+
+
+def _unpack_array(name, shape, dtype, order):
+    """In the assessment process: an array of :func:`pack`, copied out of its shared memory."""
+    from multiprocessing import shared_memory
+
+    import numpy as np
+
+    block = shared_memory.SharedMemory(name=name)
+    try:
+        return np.ndarray(shape, np.dtype(dtype), buffer=block.buf, order=order).copy(order="K")
+    finally:
+        block.close()
+
+
+def assess_and_draw_packed(packed: bytes, threshold=None, ticket=None):
+    """:func:`assess_and_draw` of a fit sent by :func:`pack`."""
+    import pickle
+
+    return assess_and_draw(pickle.loads(packed), threshold, ticket)
+
+
 def start_quietly(wanted_from=None) -> None:
     """At the start of an assessment process: yield to the window, keep the shared ticket, load the libraries."""
     import os

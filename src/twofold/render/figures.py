@@ -100,6 +100,10 @@ def _finish(ax, title: str | None, square: bool) -> None:
     literal_text(ax)
 
 
+#: How every plot ends (title, square axes when asked, text as written), for the plots of other modules.
+finish_axes = _finish
+
+
 # ---------------------------------------------------------------------------
 # ROC curve
 # ---------------------------------------------------------------------------
@@ -294,12 +298,23 @@ DRAWERS = {"roc": draw_roc, "calibration": draw_calibration, "influence": draw_i
 SHARED_SCALE = frozenset({"roc", "calibration"})
 
 
+def _usefulness_kinds() -> None:
+    """Add the kinds of :mod:`twofold.render.usefulness_figures` (decision curve, funnel plot, calibration band)."""
+    global SHARED_SCALE
+    from twofold.render import usefulness_figures
+
+    DRAWERS.update(usefulness_figures.DRAWERS)
+    SHARED_SCALE = SHARED_SCALE | usefulness_figures.SHARED_SCALE
+
+
 def draw_figure(ax, kind: str, data: dict, *, title: bool = True, square: bool = False) -> None:
     """Draw the figure of ``kind`` (a key of :data:`DRAWERS`) from its ``data`` on ``ax``.
 
     ``square`` makes the axes square for the kinds of :data:`SHARED_SCALE`
     and is ignored for the others.
     """
+    if kind not in DRAWERS:
+        _usefulness_kinds()  # imported when first needed: that module draws with this one's helpers
     try:
         drawer = DRAWERS[kind]
     except KeyError:
@@ -316,3 +331,4 @@ def figure_png(kind: str, data: dict, size=SIZE, dpi: float = DPI, *, title: boo
     fig = new_figure(size, dpi)
     draw_figure(fig.add_subplot(), kind, data, title=title, square=square)
     return png_bytes(fig)
+

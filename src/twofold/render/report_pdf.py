@@ -130,10 +130,11 @@ class _Pdf:
             self.y += lh
         self.y += after
 
-    def heading(self, text: str, level: int):
+    def heading(self, text: str, level: int, then: float = 90.0):
+        """A heading kept on one page with the first ``then`` points of what follows it."""
         style = "h2" if level <= 2 else "h3"
         size = _STYLES[style][0]
-        self.need(size * 1.4 + 90)  # keep a heading with what follows it
+        self.need(size * 1.4 + then)
         self.y += 6 if level <= 2 else 3
         self.paragraph(text, style, after=2)
         if level <= 2:
@@ -216,9 +217,13 @@ class _Pdf:
         else:
             self.y += 5
 
+    #: Axes size of a figure, the room under them for ticks and the axis label, and the least room it needs.
+    FIGURE_W, FIGURE_H, FIGURE_BELOW = 250.0, 200.0, 34.0
+    FIGURE_NEED = FIGURE_H + FIGURE_BELOW + 30
+
     def figure(self, f: Figure):
-        w, h, below = 250.0, 200.0, 34.0   # axes size, and room under them for ticks and the axis label
-        self.need(h + below + 30)
+        w, h, below = self.FIGURE_W, self.FIGURE_H, self.FIGURE_BELOW
+        self.need(self.FIGURE_NEED)
         bottom = self.y + h
         ax = self.fig.add_axes([(_MARGIN + 50) / _PAGE_W, 1 - bottom / _PAGE_H, w / _PAGE_W, (h - 10) / _PAGE_H])
         figures.draw_figure(ax, f.kind, f.data, title=False, square=True)
@@ -243,9 +248,10 @@ def render_pdf(rep: Report, path: Path) -> None:
         pdf = _Pdf(pages, "Twofold report: " + rep.title)
         pdf.paragraph(rep.title, "title", after=2)
         pdf.paragraph(rep.subtitle, "note", after=8)
-        for b in rep.blocks:
+        for i, b in enumerate(rep.blocks):
             if isinstance(b, Heading):
-                pdf.heading(b.text, b.level)
+                after = rep.blocks[i + 1] if i + 1 < len(rep.blocks) else None
+                pdf.heading(b.text, b.level, then=pdf.FIGURE_NEED if isinstance(after, Figure) else 90.0)
             elif isinstance(b, Para):
                 pdf.paragraph(b.text, b.style)
             elif isinstance(b, Bullets):

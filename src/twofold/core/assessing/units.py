@@ -184,6 +184,16 @@ def _verdict(ratio: float, bounds: dict) -> str:
     return VERDICTS["within"]
 
 
+def check_unit_column(column: str, outcome: str, predictors) -> None:
+    """Refuse a unit column that is the outcome or one of the model's predictor columns (one sentence)."""
+    if column == outcome:
+        raise ColumnError(f"'{column}' is the outcome of the model, not a unit; give the unit column as the column "
+                          "naming each record's ward, hospital or team.")
+    if column in set(predictors):
+        raise ColumnError(f"'{column}' is a predictor of the model, so differences between its groups are already "
+                          "adjusted away; choose a unit column that is not a predictor (a ward, hospital or team).")
+
+
 def factorize_groups(values, column: str, role: str, most: int, what: str):
     """(has, codes, labels): which records have a group, the code of each of those, and the sorted groups.
 
@@ -246,12 +256,12 @@ def compare_units(unit_values, y, p, unit_column: str, points: int = LIMIT_POINT
     from twofold.core.outputs.summary import plain_value
 
     out = []
+    own = _limits_at(expected, disp.factor)  # every unit's limits at once (scipy's quantiles take arrays)
     for i, label in enumerate(labels):
         o, e = int(round(observed[i])), float(expected[i])
         lo, hi = poisson_interval(o)
         ratio = o / e
-        own = _limits_at(np.array([e]), disp.factor)
-        bounds = {key: (float(own[key][0][0]), float(own[key][1][0])) for key, _ in LEVELS}
+        bounds = {key: (float(own[key][0][i]), float(own[key][1][i])) for key, _ in LEVELS}
         out.append({"unit": plain_value(label), "rows": int(rows[i]), "observed": o, "expected": e,
                     "ratio": ratio, "ci_low": lo / e, "ci_high": hi / e, "verdict": _verdict(ratio, bounds)})
     grid = np.geomspace(max(min(expected.min(), 1.0) / 2.0, 0.05), expected.max() * 1.1, points)

@@ -19,7 +19,36 @@ from twofold.core.events import Event
 from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, nested_test
 
 
-@dataclass
+class Deferred:
+    """A rung's fit and nested test, put off until first read (shared by the copies undo keeps: made once).
+
+    ``make()`` returns the fit; ``test(fit)`` the nested test against the rung it was built from (which reads
+    that rung's fit, but not its test: reading one fit never makes a chain of them).
+    """
+
+    _UNKNOWN = object()
+
+    def __init__(self, make, test=None):
+        self._make, self.test = make, test
+        self.fit = None
+        self._against = self._UNKNOWN
+
+    @property
+    def done(self) -> bool:
+        return self.fit is not None and self._against is not self._UNKNOWN
+
+    def fit_now(self):
+        if self.fit is None:
+            self.fit = self._make()
+        return self.fit
+
+    def test_now(self):
+        if self._against is self._UNKNOWN:
+            fit = self.fit_now()
+            self._against = None if self.test is None else self.test(fit)
+        return self._against
+
+
 class Rung:
     """One model of the ladder.
 
@@ -27,6 +56,7 @@ class Rung:
     ----------
     predictors : tuple of str
     fit : LogisticFit
+        Made when first read if the rung was added with its fit put off (:meth:`Ladder.add` ``defer=True``).
     added, removed : tuple of str
         What changed from the rung before.
     against_previous : LikelihoodRatioTest or None
@@ -35,12 +65,41 @@ class Rung:
         The index of the rung it was built from (the current rung when it was added).
     """
 
-    predictors: tuple
-    fit: LogisticFit
-    added: tuple = ()
-    removed: tuple = ()
-    against_previous: LikelihoodRatioTest | None = None
-    previous: int | None = None
+    def __init__(self, predictors, fit=None, added=(), removed=(), against_previous=None, previous=None,
+                 deferred: Deferred | None = None):
+        self.predictors = tuple(predictors)
+        self._fit = fit
+        self.added, self.removed = tuple(added), tuple(removed)
+        self._against = against_previous
+        self.previous = previous
+        self.deferred = deferred if fit is None else None
+
+    @property
+    def fitted(self) -> bool:
+        """Whether the fit is made (reading :attr:`fit` makes it)."""
+        return self._fit is not None or self.deferred.fit is not None
+
+    @property
+    def fit(self) -> LogisticFit:
+        return self._fit if self._fit is not None else self.deferred.fit_now()
+
+    @fit.setter
+    def fit(self, fit) -> None:
+        self._fit, self.deferred = fit, None
+
+    def put_off(self, deferred: Deferred) -> None:
+        """Replace the fit and the nested test by ones made when first read."""
+        self._fit, self._against, self.deferred = None, None, deferred
+
+    @property
+    def against_previous(self) -> LikelihoodRatioTest | None:
+        return self._against if self.deferred is None else self.deferred.test_now()
+
+    @against_previous.setter
+    def against_previous(self, test) -> None:
+        if self.deferred is not None:
+            self._fit, self.deferred = self.deferred.fit_now(), None
+        self._against = test
 
     @property
     def n_params(self) -> int:
@@ -138,11 +197,15 @@ class Ladder:
             return LikelihoodRatioTest(t.g, t.df, t.p_value, added=(), removed=tuple(sorted(sa - sb)), n_rows=t.n_rows)
         return None
 
-    def add(self, predictors) -> Rung:
+    def add(self, predictors, defer: bool = False) -> Rung:
         """Fit the model with these predictors and append it as a new rung.
 
         Returns the new rung.  If its predictors shrink the common rows, every
         earlier rung is refitted on the new rows first (a notice says so).
+        ``defer=True`` puts the fit off until it is first read (when the rows
+        stay as they are): a quick succession of ticks then shows the newest
+        model first, and the ones in between are fitted afterwards
+        (:meth:`complete`) or whenever something reads them.
         """
         predictors = tuple(self.study.column(p) for p in predictors)
         union = list(dict.fromkeys(self.used_predictors + list(predictors)))
@@ -153,6 +216,20 @@ class Ladder:
         notices = []
         previous = self.rungs[self.current] if self.current is not None else None
         changed = self.rows is not None and not np.array_equal(rows, self.rows)
+        if defer and not changed and previous is not None:
+            import copy
+
+            names, before = self.study.check_predictors(predictors), copy.copy(previous)  # (as it stands now)
+            rung = Rung(predictors, previous=self.current, deferred=Deferred(
+                lambda: self.study.fit(names, rows=rows, start=self._start_near(before)),
+                lambda fit: self._test(before, Rung(predictors, fit))))
+            rung.added = tuple(p for p in predictors if p not in previous.predictors)
+            rung.removed = tuple(p for p in previous.predictors if p not in predictors)
+            self.notices = []
+            self.rungs.append(rung)
+            self.current = len(self.rungs) - 1
+            self.events.changed.emit("added")
+            return rung
         # Fit the new model first: if it fails, the ladder is left exactly as it was.
         start = previous.fit if previous is not None and not changed else None
         fit = self.study.fit(list(predictors), rows=rows, start=start)
@@ -163,7 +240,7 @@ class Ladder:
                 "in a newly used predictor; every model in the ladder was refitted on the new common rows "
                 "so that their tests stay valid.",
             ))
-            self._refit_all(rows)
+            self._refit_all(rows, defer=True)
         self.rows = rows
         self.notices = notices
         rung = Rung(predictors, fit, previous=self.current)
@@ -176,8 +253,45 @@ class Ladder:
         self.events.changed.emit("added")
         return rung
 
-    def _refit_all(self, rows: np.ndarray) -> None:
-        fits = [self.study.fit(list(r.predictors), rows=rows, start=r.fit) for r in self.rungs]
+    def _start_near(self, rung: Rung):
+        """Starting values for a fit near ``rung``: its fit, or the newest fit made (never makes one)."""
+        if rung.fitted:
+            return rung.fit
+        return next((r.fit for r in reversed(self.rungs) if r.fitted), None)
+
+    @property
+    def pending(self) -> list[int]:
+        """Indices of the rungs whose fit (or nested test) is still put off."""
+        return [k for k, r in enumerate(self.rungs) if r.deferred is not None and not r.deferred.done]
+
+    def complete(self, stop=None) -> int:
+        """Make the fits put off, newest first; ``stop()`` true ends early.  Returns how many were made."""
+        made = 0
+        for k in reversed(self.pending):
+            if stop is not None and stop():
+                break
+            self.rungs[k].against_previous  # noqa: B018  (its fit, and the fit of the rung it was built from)
+            made += 1
+        return made
+
+    def _refit_all(self, rows: np.ndarray, defer: bool = False) -> None:
+        if defer:
+            # Each fit on the new rows is made when first read (the new model's nested test reads the one it
+            # was built from): the tick shows after two fits, and the others follow (:meth:`complete`).
+            import copy
+
+            for r in self.rungs:
+                start = r.fit if r.fitted else None
+                r.put_off(Deferred(lambda names=list(r.predictors), start=start:
+                                   self.study.fit(names, rows=rows, start=start)))
+            for r in self.rungs:
+                if r.previous is not None:
+                    before = copy.copy(self.rungs[r.previous])
+                    r.deferred.test = lambda fit, before=before, names=r.predictors: self._test(before,
+                                                                                               Rung(names, fit))
+            return
+        fits = [self.study.fit(list(r.predictors), rows=rows, start=r.fit if r.fitted else None)
+                for r in self.rungs]
         for rung, fit in zip(self.rungs, fits):
             rung.fit = fit
         for rung in self.rungs:

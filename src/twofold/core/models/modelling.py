@@ -280,7 +280,8 @@ class Validation:
     #: Cox-Snell R-squared of the model's own risks, and its optimism (NaN in validations saved before).
     r2cs_apparent: float = float("nan")
     r2cs_optimism: float = float("nan")
-    #: With ``thresholds``: the thresholds and the optimism of the net benefit at each (not saved in sessions).
+    #: With ``thresholds``: the thresholds and the optimism of the net benefit at each (a session keeps them in
+    #: its ``validation_result``, :meth:`net_benefit_dict`).
     net_benefit_thresholds: tuple | None = None
     net_benefit_optimism: tuple | None = None
 
@@ -311,6 +312,14 @@ class Validation:
             "cox_snell_r2_apparent": self.r2cs_apparent, "cox_snell_r2_corrected": self.cox_snell_r2_corrected,
         }
 
+    def net_benefit_dict(self) -> dict:
+        """``net_benefit_thresholds`` and ``net_benefit_optimism`` as lists, when the resamples drew a decision
+        curve; else empty."""
+        if self.net_benefit_thresholds is None:
+            return {}
+        return {"net_benefit_thresholds": list(self.net_benefit_thresholds),
+                "net_benefit_optimism": list(self.net_benefit_optimism)}
+
     @classmethod
     def from_dict(cls, d: dict) -> "Validation":
         """The validation :meth:`as_dict` wrote (a saved session's); missing figures are NaN."""
@@ -324,7 +333,10 @@ class Validation:
                    d.get("seed"), num("auc_apparent"), num("auc_optimism"), num("calibration_slope_apparent"),
                    num("calibration_slope_apparent") - num("calibration_slope_corrected"), num("brier_apparent"),
                    num("brier_optimism"), str(d.get("refit_method") or REFIT_METHODS[0]),
-                   num("cox_snell_r2_apparent"), num("cox_snell_r2_apparent") - num("cox_snell_r2_corrected"))
+                   num("cox_snell_r2_apparent"), num("cox_snell_r2_apparent") - num("cox_snell_r2_corrected"),
+                   *((tuple(float(t) for t in d["net_benefit_thresholds"]),
+                      tuple(nan if v is None else float(v) for v in d["net_benefit_optimism"]))
+                     if d.get("net_benefit_thresholds") is not None else (None, None)))
 
 
 class ValidationCancelled(TwofoldError):

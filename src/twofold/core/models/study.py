@@ -66,6 +66,8 @@ class Study:
         self.events = SimpleNamespace(roles=Event("roles"), outcome=Event("outcome"))
         #: Values the user marked as meaning "missing", per column (as typed).
         self._missing: dict[str, tuple] = {}
+        #: Knots of curves fixed from another study (an imputed copy keeps its original's).
+        self._fixed_knots: dict[str, tuple] = {}
 
     @classmethod
     def from_file(cls, path, sheet: str | None = None) -> "Study":
@@ -231,6 +233,30 @@ class Study:
         self.events.outcome.emit(name)
         return event
 
+    def outcome_values(self) -> np.ndarray:
+        """The outcome over every row of the file: 1 event, 0 not, NaN missing (a read-only view)."""
+        y = self._require_outcome().view()
+        y.setflags(write=False)
+        return y
+
+    def with_frame(self, frame) -> "Study":
+        """A copy of this study on another frame of the same rows and columns (an imputed copy).
+
+        Roles, levels, references, curves and the outcome are this study's;
+        a curve keeps the knots placed on this study's observed values, so
+        every copy's coefficients mean the same thing.  Encodings are made
+        afresh from ``frame``.
+        """
+        copy = Study.__new__(Study)
+        copy.__dict__.update(self.__dict__)
+        copy.frame = frame
+        copy._blocks, copy._aliased = {}, {}
+        copy._columns, copy._references = dict(self._columns), dict(self._references)
+        copy._splines, copy._missing = dict(self._splines), dict(self._missing)
+        copy._fixed_knots = {name: self.block(name).knots for name in self._splines}
+        copy.events = SimpleNamespace(roles=Event("roles"), outcome=Event("outcome"))
+        return copy
+
     def _require_outcome(self) -> np.ndarray:
         if self._y_all is None:
             raise ModelError("Choose the outcome column first.")
@@ -256,7 +282,8 @@ class Study:
             elif form == "linear":
                 self._blocks[key] = encode(self.frame[name], self._columns[name], self._references.get(name))
             else:
-                self._blocks[key] = spline_block(self.block(name, linear=True), form)
+                self._blocks[key] = spline_block(self.block(name, linear=True), form,
+                                                 self._fixed_knots.get(name))
         return self._blocks[key]
 
     def complete_mask(self, predictors) -> np.ndarray:
@@ -279,19 +306,13 @@ class Study:
             rows = self.complete_rows(predictors)
         return RowAccount(self.n_rows, int((~has_outcome).sum()), missing, len(rows))
 
-    def design(self, predictors, rows: np.ndarray | None = None, linear=()) -> Design:
-        """The design matrix of the named predictors on ``rows`` (default: their complete rows).
-
-        Predictors named in ``linear`` enter as straight lines even if a spline is set.
-        """
+    def check_predictors(self, predictors) -> list:
+        """The predictors' column names, once each, every interaction with both its parts; else ModelError."""
         predictors = [self.column(p) for p in predictors]
         if len(set(predictors)) != len(predictors):
             raise ModelError("A predictor is named twice; name each predictor once.")
-        if rows is None:
-            rows = self.complete_rows(predictors)
-        else:
-            if not self.complete_mask(predictors)[rows].all():
-                raise ModelError("Some of the rows asked for have missing values in these predictors.")
+        if self.outcome in predictors:
+            raise ColumnError(f"'{self.outcome}' is the outcome, so it cannot also be a predictor; untick it.")
         from twofold.core.models.terms import split_interaction
 
         for p in predictors:
@@ -299,6 +320,19 @@ class Study:
             if pair is not None and not set(pair) <= set(predictors):
                 raise ModelError(f"The interaction {p} needs both {pair[0]} and {pair[1]} in the model as well; "
                                  "tick them too.")
+        return predictors
+
+    def design(self, predictors, rows: np.ndarray | None = None, linear=()) -> Design:
+        """The design matrix of the named predictors on ``rows`` (default: their complete rows).
+
+        Predictors named in ``linear`` enter as straight lines even if a spline is set.
+        """
+        predictors = self.check_predictors(predictors)
+        if rows is None:
+            rows = self.complete_rows(predictors)
+        else:
+            if not self.complete_mask(predictors)[rows].all():
+                raise ModelError("Some of the rows asked for have missing values in these predictors.")
         return assemble([self.block(p, linear=p in linear) for p in predictors], self._require_outcome(), rows)
 
     def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False,

@@ -64,13 +64,13 @@ def rcs_basis(x: np.ndarray, knots: np.ndarray) -> np.ndarray:
     return out
 
 
-def spline_block(linear: TermBlock, k: int) -> TermBlock:
-    """The spline version of a numeric predictor's block."""
+def spline_block(linear: TermBlock, k: int, knots=None) -> TermBlock:
+    """The spline version of a numeric predictor's block (``knots``: given ones, else Harrell's on its values)."""
     if linear.kind != "numeric":
         raise ColumnError(f"'{linear.column}' is not numeric, so it cannot have a spline; "
                           "splines are for numbers such as age or length of stay.")
     x = linear.values[:, 0]
-    knots = knots_for(x[~linear.missing], k)
+    knots = knots_for(x[~linear.missing], k) if knots is None else np.asarray(knots, dtype=float)
     values = rcs_basis(x, knots)
     values[linear.missing] = 0.0
     levels = tuple(f"nonlinear {j}" for j in range(1, k - 1))

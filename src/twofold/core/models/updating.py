@@ -73,6 +73,12 @@ class UpdateStep:
                 "reading": self.reading}
 
 
+#: Each step of the closed sequence in plain words (the refit tested against ...).
+STEP_WORDS = {"refit_vs_none": "every coefficient re-estimated, against the model kept as it is",
+              "refit_vs_intercept": "every coefficient re-estimated, against a new intercept",
+              "refit_vs_intercept_and_slope": "every coefficient re-estimated, against a new intercept and slope"}
+
+
 @dataclass(frozen=True, eq=False)
 class Adaptation:
     """What the closed test chose, its tests, and the adapted model."""
@@ -216,3 +222,111 @@ def adapt_model(model, X: np.ndarray, y: np.ndarray, alpha: float = ALPHA, sourc
     method = f"{model.method}, {_METHOD_WORDS[chosen]} on a new extract"[:100]
     adapted = replace(model, method=method, coefficients=coef, covariance=new_cov)
     return Adaptation(chosen, tuple(tests), ll, a_large, a, s, adapted)
+
+
+# ---------------------------------------------------------------------------
+# uniform shrinkage after a bootstrap validation
+# ---------------------------------------------------------------------------
+
+#: Written beside every shrunk model.
+SHRINKAGE_NOTE = (
+    "Uniform shrinkage (Van Houwelingen & Le Cessie 1990; Steyerberg 2019): every coefficient is multiplied by the "
+    "calibration slope the bootstrap expects on new patients, and the intercept is re-estimated so that the "
+    "predicted events still add up to the observed ones. Odds ratios move toward 1; tests and intervals of the "
+    "coefficients stay those of the ordinary fit."
+)
+
+
+@dataclass(frozen=True, eq=False)
+class Shrinkage:
+    """A model whose coefficients are shrunk by a bootstrap's corrected calibration slope.
+
+    ``factor`` is the slope, ``intercept`` the re-estimated intercept and
+    ``model`` the shrunk :class:`~twofold.core.outputs.predict.FrozenModel`
+    (what predictions and saved sessions use).
+    """
+
+    factor: float
+    intercept: float
+    model: object
+
+    @property
+    def reading(self) -> str:
+        f = self.factor
+        return (f"The bootstrap expects a calibration slope of {f:.3g} on new patients: the model's risks would be "
+                f"too extreme there (too high for those at high risk, too low for those at low risk). The shrunk "
+                f"model multiplies every coefficient by {f:.3g} and re-estimates the intercept, so its risks are "
+                "less extreme and should hold better on new patients.")
+
+    def as_dict(self) -> dict:
+        """``shrinkage`` of the JSON: {factor, intercept, coefficients [{name, estimate}], reading, note}."""
+        from twofold.core.outputs.summary import clean_number
+
+        return {"factor": clean_number(self.factor), "intercept": clean_number(self.intercept),
+                "coefficients": [{"name": n, "estimate": clean_number(b)}
+                                 for n, b in zip(self.model.names, self.model.coefficients)],
+                "reading": self.reading, "note": SHRINKAGE_NOTE}
+
+
+def shrinkage_refusal(factor) -> str | None:
+    """Why a model cannot be shrunk by ``factor`` (a bootstrap's corrected calibration slope), or None."""
+    import math
+
+    if factor is None or not math.isfinite(float(factor)):
+        return ("The bootstrap gave no corrected calibration slope, so there is nothing to shrink by; run the "
+                "bootstrap validation again.")
+    if float(factor) >= 1.0:
+        return (f"The bootstrap's corrected calibration slope is {float(factor):.3g}, not below 1: the model's risks "
+                "are not expected to be too extreme on new patients, so shrinking it would not help.")
+    if float(factor) <= 0.0:
+        return (f"The bootstrap's corrected calibration slope is {float(factor):.3g}: the model is expected to rank "
+                "new patients no better than chance, so no shrinking can rescue it; simplify the model instead.")
+    return None
+
+
+def shrink_model(model, X: np.ndarray, y: np.ndarray, factor: float, source: str = "these records") -> Shrinkage:
+    """The model with every coefficient times ``factor`` and the intercept re-estimated (statsmodels).
+
+    Parameters
+    ----------
+    model : FrozenModel
+        The model as fitted.
+    X : ndarray
+        Its design on the rows it was fitted to (kept columns, intercept first).
+    y : ndarray
+        The outcome on those rows, 1 = event.
+    factor : float
+        The shrinkage factor, above 0 and below 1: the corrected calibration
+        slope of a bootstrap validation.
+
+    Notes
+    -----
+    The intercept is a' + factor b0, a' the maximum-likelihood intercept of a
+    logistic regression with factor times the linear predictor as an offset
+    (so the shrunk risks add up to the observed events).  Covariance:
+    factor^2 V + var(a') e0 e0' (the coefficients held fixed while a' is
+    estimated), as for a new intercept in :func:`adapt_model`.
+
+    Raises
+    ------
+    ModelError
+        A factor outside (0, 1), or a coefficient without a finite estimate.
+    """
+    why = shrinkage_refusal(factor)
+    if why is not None:
+        raise ModelError(why)
+    s = float(factor)
+    b = np.asarray(model.coefficients, dtype=float)
+    if not np.all(np.isfinite(b)):
+        raise ModelError("The model has a coefficient without a finite estimate, so it cannot be shrunk; "
+                         "refit it (a Firth fit keeps estimates finite).")
+    offset = s * (X @ b)
+    res = _logit(y, np.ones((len(y), 1)), offset=offset, source=source)
+    a = float(res.params[0])
+    coef = s * b
+    coef[0] += a
+    e0 = np.zeros(len(b))
+    e0[0] = 1.0
+    cov = s * s * np.asarray(model.covariance, dtype=float) + float(res.cov_params()[0, 0]) * np.outer(e0, e0)
+    method = f"{model.method}, shrunk by {s:.3g}"[:100]
+    return Shrinkage(s, float(coef[0]), replace(model, method=method, coefficients=coef, covariance=cov))

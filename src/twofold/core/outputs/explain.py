@@ -143,6 +143,48 @@ TOPICS = (
           "patients. A corrected slope below 1 means the predictions should be shrunk.",
           "200 or more resamples are usual (common practice).",
           "It does not replace a check on records from another time or site."),
+    Topic("net_benefit", "Decision curve (net benefit)",
+          "For each threshold risk at which one would act (treat, investigate, call the patient), net benefit counts "
+          "the events caught minus the needless actions, weighted by how many needless actions one event is worth "
+          "at that threshold, per person. It is drawn beside acting on everyone and acting on no one (0).",
+          "Where the model's curve is above both others, acting on its risks does more good than either simple "
+          "policy. Read it only over the thresholds clinicians would accept; a threshold of 10% means accepting "
+          "nine needless actions to catch one event.",
+          "There is no fixed size of net benefit that is enough; any amount above both simple policies is a gain "
+          "(Vickers & Elkin 2006). With a bootstrap, read the curve corrected for optimism.",
+          "It does not say which threshold to use, and a curve from the records the model was fitted to flatters "
+          "it: check it on new records too."),
+    Topic("funnel", "Units compared by their case mix (funnel plot)",
+          "Each unit's observed events are set against the events the model expects from its own patients' risks "
+          "(the sum of their predicted risks). The funnel lines show how far the ratio strays by chance alone, "
+          "narrowing as units grow.",
+          "A unit above the 99.8% line has more events than its case mix predicts, beyond what chance easily "
+          "explains; between the 95% and 99.8% lines it is at the edge. When units spread more than chance "
+          "allows, the lines are widened (Spiegelhalter 2005).",
+          "The 95% and 99.8% limits follow Spiegelhalter (2005); a unit just outside the 95% line is expected "
+          "about once in 40 units by chance alone.",
+          "A unit outside the lines is a reason to look closer, not a judgement: differences the model does not "
+          "capture, or records coded differently, move units too."),
+    Topic("shrinkage", "The shrunk model",
+          "When a bootstrap expects a calibration slope below 1 on new patients, the model's risks are too "
+          "extreme. Shrinking multiplies every coefficient by that slope and re-estimates the intercept, so the "
+          "risks move toward the average while still adding up to the observed events.",
+          "The shrunk model's risks are what to expect to hold on similar new patients; predictions and saved "
+          "sessions then use it. Odds ratios move toward 1.",
+          "Uniform shrinkage by the bootstrap slope is the usual remedy (Van Houwelingen & Le Cessie 1990; "
+          "Steyerberg 2019); with a slope near 1 it changes little.",
+          "It does not repair a model with too few events for its predictors, and the tests and intervals of the "
+          "coefficients stay those of the ordinary fit."),
+    Topic("new_file", "A saved model checked on a new file",
+          "The saved coefficients are applied unchanged to records of another time or site. Observed over "
+          "expected events, calibration-in-the-large and slope, the smoothed calibration curve with its band and "
+          "the calibration index show whether its risks still hold there.",
+          "O/E near 1, calibration-in-the-large near 0, slope near 1 and a band that holds the diagonal mean the "
+          "risks hold. Below 1, the slope says the risks are too extreme there.",
+          "The file should have the rows Riley et al. (2024) ask for (shown beside the figures); with fewer, the "
+          "intervals are too wide to be sure.",
+          "A model that holds on one file may not hold on another, and good calibration does not mean the model "
+          "is worth acting on: see the decision curve."),
 )
 
 BY_KEY = {t.key: t for t in TOPICS}

@@ -548,6 +548,16 @@ def _pseudo_fit(model: FrozenModel, X: np.ndarray, y: np.ndarray, rows: np.ndarr
     return LogisticFit(design, model.coefficients, model.covariance, llf, True, 0, kept, dropped, [])
 
 
+def add_adaptation(result: "FrozenResult"):
+    """Choose how to adapt a saved model to the new rows of ``result`` (closed testing,
+    :func:`~twofold.core.models.updating.adapt_model`), add ``adaptation`` to its record and return it."""
+    from twofold.core.models.updating import adapt_model
+
+    adaptation = adapt_model(result.model, result.X, result.y, source=result.source)
+    result.record["adaptation"] = adaptation.as_dict()
+    return adaptation
+
+
 def coefficients_applied(model: FrozenModel) -> list[dict]:
     """``coefficients_applied``: each saved coefficient as applied, {name, estimate}, intercept first."""
     from twofold.core.outputs.summary import clean_number

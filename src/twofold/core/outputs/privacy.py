@@ -30,12 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from twofold.core.errors import TwofoldError
-
-#: Counts of 1 up to this many people are hidden (CMS cell-size policy; common practice, no single standard).
-DEFAULT_THRESHOLD = 10
-
-#: The largest limit a user may set (command line, window, session file): beyond it a report says nearly nothing.
-MAX_THRESHOLD = 1000
+from twofold.core.outputs import DEFAULT_THRESHOLD, MAX_THRESHOLD  # noqa: F401  (the limits, named here too)
 
 #: What a hidden count shows, in tables and reports alike.
 SUPPRESSED = "suppressed"

@@ -27,7 +27,7 @@ import numpy as np
 from twofold.core.outputs.privacy import (DEFAULT_THRESHOLD, MIN_RESIDUAL_DF, SUPPRESSED, check_model, coarse_roc,
                                           is_small, protect_table, show_count, suppression_note)
 from twofold.core.models.terms import term_title
-from twofold.core.outputs.text import degrees, fmt_num, fmt_or, fmt_p, or_cells
+from twofold.core.outputs.text import degrees, fmt_num, fmt_or, fmt_p, or_cells, pooled_test_text
 
 #: Cook's distance above 4/n marks an influential record (common practice, a rule of thumb).
 COOKS_RULE = 4.0
@@ -154,7 +154,8 @@ REDACTED = "[not shown]"
 #: Codes of warnings whose messages Twofold writes from column names and its own figures only.
 MODEL_CODES = frozenset({"separation", "not_converged", "collinear", "few_events", "profile", "drop_one",
                          "calibration", "hosmer_lemeshow", "pseudo_r2", "influence", "sample_size",
-                         "extrapolation", "column_missing", "auc_se_unavailable", "auc_ci_unavailable"})
+                         "extrapolation", "column_missing", "auc_se_unavailable", "auc_ci_unavailable",
+                         "imputation_model"})
 
 #: The report's own words for what reading the file noticed: the readers' messages may quote cells
 #: of the data (a title line, an error value), so none of them is printed.
@@ -304,6 +305,9 @@ def frozen_check(result, threshold: int = DEFAULT_THRESHOLD):
 def _involves(name: str, withheld) -> bool:
     """A predictor or interaction ("A:B") is withheld when it, or either predictor it multiplies, is."""
     return name in withheld or any(part in withheld for part in str(name).split(":"))
+
+
+involves = _involves  # the same rule, for the report's missing-data section
 
 
 #: Text that looks like a date (year first or last, with - / or . between).
@@ -463,9 +467,10 @@ def report_notices(notices, record: dict, threshold: int, check=None, reading_co
                 parts = [f"{_how_many(record['rows_missing_outcome'], threshold)} with no outcome"] \
                     if record["rows_missing_outcome"] else []
                 parts += [f"{_how_many(k, threshold)} missing '{c}'"
-                          for c, k in record["missing_by_column"].items() if k]
+                          for c, k in record["missing_by_column"].items() if k and not record.get("imputation")]
                 msg = (f"{_how_many(left, threshold)} rows were left out ({'; '.join(parts) or 'missing values'}); "
-                       "results describe the complete rows only.")
+                       + ("an outcome is never imputed." if record.get("imputation") else
+                          "results describe the complete rows only."))
         elif code in reading_codes or code in READING_WORDS or code not in MODEL_CODES:
             cols = [s for s in subjects if isinstance(s, str)]
             words = READING_WORDS.get(code)
@@ -616,7 +621,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     ov = record["overall"]
     penalised = "penalized_log_likelihood" in record
     test_name = "Penalised likelihood-ratio" if penalised else "Likelihood-ratio"
-    if ov and ov["df"]:
+    if ov and ov["df"] and "df_denominator" in ov:
+        rep.add(Para(f"{pooled_test_text(ov)}, of the model against the overall event rate alone."))
+    elif ov and ov["df"]:
         rep.add(Para(f"{test_name} test of the model against the overall event rate alone: "
                      f"G = {fmt_num(ov['g'], 2)} on {degrees(ov['df'])}, p-value {fmt_p(ov['p_value'])}."))
     per = (f"{fmt_num(record['events_per_parameter'], 1)} of the rarer outcome per coefficient besides "
@@ -661,6 +668,11 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
                     "separates the outcome, use the profile-likelihood interval. An end shown as 'n/a' is "
                     "infinite (the likelihood never falls to the cut-off on that side, as under separation) or "
                     "could not be found.")
+    if record.get("imputation"):
+        caption += (" Pooled over the imputed copies by Rubin's rules: the intervals and p-values use t on the "
+                    "Barnard-Rubin degrees of freedom, and the 'Wald z' column holds that t; the joint and "
+                    "likelihood-ratio tests below are the pooled D1 and D3 (or D2) statistics on the chi-square "
+                    "scale.")
     if done:
         caption += f" Rows marked '{WITHHELD}' are left out to protect small groups ({SEE_PRIVACY})."
     if nameless:
@@ -683,8 +695,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
     if tests:
         rep.add(Table(["predictor (all its coefficients together)", "Wald chi-square", "degrees of freedom",
                        "p-value"],
-                      [[t.get("label", t["column"]), fmt_num(t["statistic"], 2), str(t["df"]), fmt_p(t["p_value"])]
-                       for t in tests],
+                      [[t.get("label", t["column"]),  # a pooled D1 (F scale) on the chi-square scale: times df
+                        fmt_num(t["statistic"] * (t["df"] if "df_denominator" in t else 1), 2), str(t["df"]),
+                        fmt_p(t["p_value"])] for t in tests],
                       caption="A predictor in an interaction is tested together with the interaction (its effect "
                               "at any value of the other predictor)."))
     a = record.get("assessment") or {}
@@ -719,6 +732,9 @@ def _coefficient_section(rep: Report, record: dict, fit, check, nameless=frozens
             rep.add(Para(f"The test of the smaller model ({smaller}) against this one is withheld: with this "
                          "model's log-likelihood it would give the smaller model's, whose figures would reveal "
                          f"small groups ({SEE_PRIVACY}).", "note"))
+        elif "df_denominator" in nested:
+            rep.add(Para(f"Smaller model ({smaller}) against this one on the same {nested['rows']:,} rows: "
+                         f"{pooled_test_text(nested)}."))
         else:
             rep.add(Para(f"Smaller model ({smaller}) against this one on the same {nested['rows']:,} rows: "
                          f"likelihood-ratio G = {fmt_num(nested['g'], 2)} on {nested['df']} degrees of freedom, "
@@ -979,9 +995,16 @@ def _methods(rep: Report, record: dict, frozen: bool, firth: bool, profile: bool
                  "(Fox & Monette 1992); the Wald and likelihood-ratio tests are compared as Hauck & Donner (1977) "
                  "advise. ")
         refs += ["peduzzi", "riley", "cook", "fox", "hauck"]
-    text += "Rows with a missing outcome or predictor value were left out (complete-case analysis)."
+    imputed = record.get("imputation")
+    if imputed:
+        from twofold.core.outputs.report_imputation import IMPUTATION_REFERENCES, METHODS_TEXT
+
+        text += METHODS_TEXT.format(m=imputed["m"], seed=imputed["seed"])
+    else:
+        text += "Rows with a missing outcome or predictor value were left out (complete-case analysis)."
     rep.add(Para(text))
-    rep.add(Heading("Sources", 3), Bullets([REFERENCES[k] for k in dict.fromkeys(refs)], "small"))
+    rep.add(Heading("Sources", 3), Bullets([REFERENCES[k] for k in dict.fromkeys(refs)]
+                                           + (IMPUTATION_REFERENCES if imputed else []), "small"))
 
 
 #: The privacy section's promise; :func:`build_report` checks it before the report is handed out.
@@ -1106,6 +1129,8 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         ``title``, ``authors`` and ``question`` typed by the user, printed on
         the first page.
     """
+    from twofold.core.outputs.report_usefulness import usefulness_sections
+
     threshold = int(suppress_below)
     record = result.record
     frozen = bool(getattr(result, "frozen", False))
@@ -1124,11 +1149,19 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
             withheld_notes.append(f"How the saved model performs on these records, because {check.whole_model}.")
         _assessment_section(rep, a, result.assessment, record, threshold, True, include_records, check,
                             withheld_notes)
+        withheld_notes += usefulness_sections(rep, result, record, threshold, True, check)
         _methods(rep, record, True, False, False, False)
         promise = _closing(rep, record, threshold, withheld_notes)
         return _finish(rep, set(), promise)
     fit = result.fit
     check = model_check(fit.design, threshold)
+    imputed = record.get("imputation")
+    if imputed:  # the pooled model and the complete-rows one beside it: what either withholds is withheld
+        from twofold.core.outputs import report_imputation as ri
+
+        complete = ri.complete_rows_fit(result)
+        complete_check = None if complete is None else model_check(complete.design, threshold)
+        check = ri.joint_check(check, complete_check)
     record = _with_profile_under_separation(record, fit, check)
     nameless = nameless_predictors(fit.design, result.study)
     lad = _as_ladder(result, ladder)
@@ -1138,7 +1171,12 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
     reading = frozenset(n.code for n in getattr(getattr(result.study, "table", None), "notices", ()) or ())
     _warnings_section(rep, report_notices(notes, record, threshold, check, reading))
     _data_section(rep, record, threshold)
-    _describe_predictors(rep, fit, threshold, nameless)
+    if imputed:
+        ri.missing_data_section(rep, result, threshold, check, complete, complete_check)
+    if imputed:
+        ri.describe_observed(rep, record, complete, threshold, nameless, _describe_predictors)
+    else:
+        _describe_predictors(rep, fit, threshold, nameless)
     if check.whole_model is not None:
         withheld_notes.append(f"Every figure of the chosen model, because {check.whole_model}.")
     for column, reason in check.withheld.items():
@@ -1160,9 +1198,12 @@ def build_report(result, ladder=None, suppress_below: int = DEFAULT_THRESHOLD, i
         withheld_notes.append("The likelihood-ratio test against the smaller model, whose predictors are all "
                               "groupings with some combination of groups too small to show.")
     _coefficient_section(rep, record, fit, check, nameless, smaller_check)
-    if a:
+    if a and imputed:
+        ri.pooled_assessment_section(rep, a, check)
+    elif a:
         _assessment_section(rep, a, result.assessment, record, threshold, False, include_records, check,
                             withheld_notes)
+    withheld_notes += usefulness_sections(rep, result, record, threshold, False, check)
     _methods(rep, record, False, bool(result.spec.firth), any("or_pl_low" in t for t in record["terms"]),
              lad is not None)
     promise = _closing(rep, record, threshold, withheld_notes)

@@ -73,7 +73,7 @@ import re
 from pathlib import Path
 
 from twofold.core.errors import ColumnError, DataFileError, Notice
-from twofold.core.outputs.privacy import DEFAULT_THRESHOLD, MAX_THRESHOLD
+from twofold.core.outputs import DEFAULT_THRESHOLD, MAX_THRESHOLD
 
 FORMAT = "twofold-session"
 SCHEMA_VERSION = 1
@@ -124,9 +124,9 @@ CHECKED_SPEC_KEYS = ("data", "outcome", "predictors", "event", "smaller", "refer
                      "profile_ci", "threshold", "splines", "interactions", "validate", "seed", "rows_complete_in")
 KEYS = ("format", "schema_version", "saved_by", "saved_at",
         *dict.fromkeys(CHECKED_SPEC_KEYS + SPEC_KEYS), "data_sha256", "data_rows", "ladder", "chosen", "model",
-        "report", "parents", "validation_result")
+        "report", "parents", "validation_result", "shrinkage")
 #: Fields added after version 1 was first written, with what a file without them means.
-LATER_DEFAULTS = {"parents": None, "validation_result": None, "missing": {}}
+LATER_DEFAULTS = {"parents": None, "validation_result": None, "missing": {}, "shrinkage": None}
 #: The report's options and what a session without them means.
 REPORT_DEFAULTS = {"suppress_up_to": DEFAULT_THRESHOLD, "list_records": False, "title": "", "authors": "",
                    "question": ""}
@@ -204,7 +204,9 @@ def session_from_result(result, ladder=None, report=None) -> dict:
     columns = study.columns
     for name in used:
         roles[name] = columns[name].role.value
-    model = frozen_model(fit, study.outcome, study.event)
+    shrunk = getattr(result, "shrinkage", None)
+    # A shrunk model is what the session saves and ``predict`` uses; ``shrinkage`` says how it was made.
+    model = shrunk.model if shrunk is not None else frozen_model(fit, study.outcome, study.event)
     session = {
         "format": FORMAT,
         "schema_version": SCHEMA_VERSION,
@@ -232,6 +234,7 @@ def session_from_result(result, ladder=None, report=None) -> dict:
         "chosen": int(chosen),
         "model": model.as_dict(),
         "report": {**REPORT_DEFAULTS, **(report or {})},
+        "shrinkage": None if shrunk is None else shrunk.as_dict(),
     }
     for key, value in spec.as_dict().items():
         # Fields added to AnalysisSpec after this module was written are carried as they are.
@@ -504,6 +507,35 @@ class _Checker:
             self.fail(missing.format(absent[0]))
 
 
+def _check_imputation(c, session) -> None:
+    """``impute`` (null, or copies 2 to 100), ``auxiliary`` (column names), ``impute_anyway`` (true or false)."""
+    if session["impute"] is not None:
+        c.integer(session["impute"], "impute", 2, 100)
+    c.names(session["auxiliary"], "auxiliary", cap=MAX_PREDICTORS)
+    c.boolean(session["impute_anyway"], "impute_anyway")
+
+
+def _validate_net_benefit_optimism(c, v: dict) -> None:
+    """A kept bootstrap's decision-curve thresholds (risks in (0, 1), rising) and the optimism at each: lists of
+    the same length, at most the number of thresholds a decision curve may have."""
+    from twofold.core.assessing.decision import MAX_THRESHOLDS
+
+    thresholds, optimism = v.get("net_benefit_thresholds"), v.get("net_benefit_optimism")
+    if not (isinstance(thresholds, list) and isinstance(optimism, list)) or len(thresholds) != len(optimism) \
+            or not 0 < len(thresholds) <= MAX_THRESHOLDS:
+        c.fail("'validation_result' should give the decision-curve thresholds and their optimism as two lists of "
+               "the same length")
+    for t in thresholds:
+        c.number(t, "a decision-curve threshold of 'validation_result'")
+        if not 0 < t < 1:
+            c.fail("'validation_result' has a decision-curve threshold outside 0 to 1")
+    if any(b <= a for a, b in zip(thresholds, thresholds[1:])):
+        c.fail("'validation_result' has decision-curve thresholds that do not rise")
+    for x in optimism:
+        if x is not None:
+            c.number(x, "a net-benefit optimism of 'validation_result'")
+
+
 def validate_session(session, path=None) -> dict:
     """Check every field of a session (types, sizes, consistency); raise SessionFileError at the first problem."""
     c = _Checker(path)
@@ -599,6 +631,7 @@ def validate_session(session, path=None) -> dict:
     for column, values in missing.items():
         c.name(column, "a column of 'missing'")
         c.names(values, f"the values that mean missing in {column[:40]!r}", cap=100)
+    _check_imputation(c, session)
     for key in SPEC_KEYS:
         if key not in CHECKED_SPEC_KEYS + ("missing",):
             _plain_json(c, session[key], key)
@@ -630,14 +663,40 @@ def validate_session(session, path=None) -> dict:
 
                 if x not in REFIT_METHODS:
                     c.fail("'validation_result' names a way of refitting that Twofold does not use")
+            elif k in ("net_benefit_thresholds", "net_benefit_optimism"):
+                _validate_net_benefit_optimism(c, v)
             elif x is not None:
                 c.number(x, f"validation_result of {k[:40]}")
+    _validate_shrinkage(c, session["shrinkage"])
     if set(ladder[chosen]) != set(predictors):
         c.fail("the chosen model of the ladder does not have the session's predictors")
     if outcome in predictors:
         c.fail("the outcome is also listed as a predictor")
     _validate_model(c, session["model"], outcome, predictors)
     return session
+
+
+def _validate_shrinkage(c: _Checker, shrinkage) -> None:
+    """``shrinkage``: null, or {factor (above 0, below 1), intercept, coefficients [{name, estimate}], reading, note}."""
+    if shrinkage is None:
+        return
+    c.obj(shrinkage, "shrinkage")
+    c.fields(shrinkage, ("factor", "intercept", "coefficients", "reading", "note"), "'shrinkage' has",
+             "the shrinkage field '{}' is missing")
+    factor = c.number(shrinkage["factor"], "the shrinkage factor")
+    if not 0 < factor < 1:
+        c.fail("the shrinkage factor should lie between 0 and 1")
+    c.number(shrinkage["intercept"], "the shrunk intercept")
+    coefs = shrinkage["coefficients"]
+    if not isinstance(coefs, list) or len(coefs) > MAX_PARAMETERS:
+        c.fail(f"the shrunk coefficients should be a list of at most {MAX_PARAMETERS:,} entries")
+    for entry in coefs:
+        c.fields(c.obj(entry, "a shrunk coefficient"), ("name", "estimate"), "a shrunk coefficient has",
+                 "a shrunk coefficient's field '{}' is missing")
+        c.text(entry["name"], "a shrunk coefficient's name", MAX_NAME)
+        c.number(entry["estimate"], "a shrunk coefficient", allow_none=True)
+    c.text(shrinkage["reading"], "the shrinkage reading", empty=True)
+    c.text(shrinkage["note"], "the shrinkage note", empty=True)
 
 
 def _plain_json(c: _Checker, value, where: str) -> None:

@@ -17,8 +17,6 @@ import sys
 import tempfile
 from pathlib import Path
 
-import numpy as np
-
 from twofold.core.errors import DataFileError
 from twofold.core.outputs.session import (
     MAX_ABS_NUMBER,
@@ -220,6 +218,8 @@ def save_session(session: dict, path) -> Path:
 
 def _max_depth(text: str) -> int:
     """Deepest nesting of [ and { outside strings, without recursion."""
+    import numpy as np  # here, not at the top: the window writes its autosave mark before numpy is loaded
+
     stripped = re.sub(r'"(?:[^"\\]|\\.)*"', '""', text)
     brackets = np.frombuffer(re.sub(r"[^\[\]{}]", "", stripped).encode("ascii"), dtype=np.uint8)
     if not brackets.size:

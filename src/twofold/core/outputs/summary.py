@@ -45,7 +45,15 @@ def plain_value(v):
 def _test(t: LikelihoodRatioTest | None, kind: str = "likelihood-ratio"):
     if t is None:
         return None
-    return {"g": clean_number(t.g), "df": int(t.df), "p_value": clean_number(t.p_value), "kind": kind}
+    return {"g": clean_number(t.g), "df": int(t.df), "p_value": clean_number(t.p_value), "kind": kind,
+            **pooled_fields(t)}
+
+
+def pooled_fields(t) -> dict:
+    """A pooled test's ``kind`` ("D1", "D2", "D3"), F ``statistic`` and ``df_denominator``; {} for others."""
+    if not hasattr(t, "df_denominator"):
+        return {}
+    return {"kind": t.kind, "statistic": clean_number(t.statistic), "df_denominator": clean_number(t.df_denominator)}
 
 
 def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTest | None = None,
@@ -77,6 +85,7 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
             **{k: clean_number(r[k]) for k in ("estimate", "std_error", "z", "p_value",
                                                 "odds_ratio", "or_ci_low", "or_ci_high")},
             "withheld": r["withheld"],
+            **({"fmi": clean_number(r["fmi"]), "df": clean_number(r["df"])} if "fmi" in r else {}),
         })
         if profile is not None and r["name"] in profile and not r["withheld"]:
             lo, hi = profile[r["name"]]
@@ -101,7 +110,8 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
         "terms": terms,
         "term_tests": [
             {"column": t.column, "label": t.label, "includes": list(t.includes),
-             "statistic": clean_number(t.statistic), "df": t.df, "p_value": clean_number(t.p_value)}
+             "statistic": clean_number(t.statistic), "df": t.df, "p_value": clean_number(t.p_value),
+             **pooled_fields(t)}
             for t in fit.term_tests.values()
         ],
         "log_likelihood": clean_number(fit.llf),
@@ -167,8 +177,8 @@ def add_study_records(record: dict, study, curves=None, crossings=None) -> None:
     if curves is not None:
         record["nonlinearity"] = [
             {"column": t.term, "knots": list(t.knots), "g": clean_number(t.g), "df": t.df,
-             "p_value": clean_number(t.p_value)} for t in curves]
+             "p_value": clean_number(t.p_value), **pooled_fields(t)} for t in curves]
     if crossings is not None:
         record["interaction_tests"] = [
-            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value)}
-            for t in crossings]
+            {"term": t.term, "g": clean_number(t.g), "df": t.df, "p_value": clean_number(t.p_value),
+             **pooled_fields(t)} for t in crossings]

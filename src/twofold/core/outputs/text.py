@@ -128,11 +128,14 @@ def describe(record: dict, source: str = "") -> str:
     lost = []
     if record["rows_missing_outcome"]:
         lost.append(f"{record['rows_missing_outcome']:,} had no outcome")
+    imputed = record.get("imputation")
     for col, n in record["missing_by_column"].items():
-        if n:
+        if n and not imputed:
             lost.append(f"{n:,} missing '{col}'")
     if lost:
         add("  Left out: " + "; ".join(lost) + ".")
+    if imputed:
+        out.extend(imputation_lines(record))
     epp = record["events_per_parameter"]
     add(f"  {fmt_num(epp, 1)} of the rarer outcome per estimated coefficient ({record['parameters'] - 1} besides the intercept).")
     add("")
@@ -140,7 +143,9 @@ def describe(record: dict, source: str = "") -> str:
     add("Does the model as a whole carry information?")
     penalised = "penalized_log_likelihood" in record
     test_name = "Penalised likelihood-ratio" if penalised else "Likelihood-ratio"
-    if overall["df"] > 0:
+    if overall["df"] > 0 and "df_denominator" in overall:
+        add(f"  {pooled_test_text(overall)} against the constant-only model.")
+    elif overall["df"] > 0:
         add(f"  {test_name} (G) test against the constant-only model: G = {fmt_num(overall['g'], 2)} "
             f"on {degrees(overall['df'])}, p-value {fmt_p(overall['p_value'])}.")
     add("  " + reading_overall(overall["p_value"] if overall["df"] > 0 else None))
@@ -151,14 +156,18 @@ def describe(record: dict, source: str = "") -> str:
             "and predicted risks use the corrected intercept (FLIC).")
         add(f"  {record['aic_note']}")
     else:
-        add(f"  Log-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only "
+        add(("  Averaged over the imputed copies: l" if imputed else "  L") + f"og-likelihood {fmt_num(record['log_likelihood'], 2)} (constant-only "
             f"{fmt_num(record['null_log_likelihood'], 2)}); deviance {fmt_num(record['deviance'], 2)}; "
             f"AIC {fmt_num(record['aic'], 1)}; BIC {fmt_num(record['bic'], 1)}; "
             f"McFadden R-squared {fmt_num(record['mcfadden_r2'], 3)}.")
     add("")
-    add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)")
+    add("Each predictor (odds ratio with 95% Wald interval; Wald z test that the coefficient is zero)" if not imputed
+        else "Each predictor, pooled by Rubin's rules (odds ratio with 95% interval and t test on the Barnard-Rubin "
+             "degrees of freedom; missing information: the share of the coefficient's information lost to the "
+             "missing values)")
     labels = [_term_label(t) for t in record["terms"]] + ["baseline odds (intercept)"]
-    heads = ("predictor", "odds ratio", "95% CI", "p-value", "Wald z", "coefficient", "std. error")
+    heads = ("predictor", "odds ratio", "95% CI", "p-value", "t" if imputed else "Wald z", "coefficient",
+             "std. error") + (("missing info",) if imputed else ())
     rows = []  # (joint-test line or None, cells)
     joint = {t["column"]: t for t in record["term_tests"]}
     shown_joint = set()
@@ -167,15 +176,17 @@ def describe(record: dict, source: str = "") -> str:
         line = None
         if col in joint and col not in shown_joint:
             j = joint[col]
-            line = (f"  {j.get('label', col)}, all its coefficients together: Wald chi-square "
-                    f"{fmt_num(j['statistic'], 2)} on {degrees(j['df'])}, p-value {fmt_p(j['p_value'])}")
+            line = (f"  {j.get('label', col)}, all its coefficients together: " + (
+                pooled_test_text(j) if "df_denominator" in j else
+                f"Wald chi-square {fmt_num(j['statistic'], 2)} on {degrees(j['df'])}, p-value {fmt_p(j['p_value'])}"))
             shown_joint.add(col)
         odds, ci = or_cells(t)
         rows.append((line, (label, odds, ci, fmt_p(t["p_value"]), fmt_num(t["z"], 2),
-                            fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4))))
+                            fmt_num(t["estimate"], 4), fmt_num(t["std_error"], 4))
+                     + ((fmt_num(t.get("fmi"), 3),) if imputed else ())))
     i = record["intercept"]
     rows.append((None, (labels[-1], "", "", fmt_p(i["p_value"]), fmt_num(i["z"], 2), fmt_num(i["estimate"], 4),
-                        fmt_num(i["std_error"], 4))))
+                        fmt_num(i["std_error"], 4)) + (("",) if imputed else ())))
     # Widths from the cells themselves, so a huge estimate never pushes a column out of line.
     widths = [max([len(h)] + [len(cells[c]) for _, cells in rows]) for c, h in enumerate(heads)]
     widths[0] = max(widths[0], 20)
@@ -209,8 +220,11 @@ def describe(record: dict, source: str = "") -> str:
         add("")
         smaller = ", ".join(nested["smaller_predictors"]) or "no predictors (constant only)"
         add(f"Smaller model ({smaller}) against this one, both on the same {nested['rows']:,} rows")
-        add(f"  {test_name} test: G = {fmt_num(nested['g'], 2)} on {degrees(nested['df'])}, "
-            f"p-value {fmt_p(nested['p_value'])}.")
+        if "df_denominator" in nested:
+            add(f"  {pooled_test_text(nested)}.")
+        else:
+            add(f"  {test_name} test: G = {fmt_num(nested['g'], 2)} on {degrees(nested['df'])}, "
+                f"p-value {fmt_p(nested['p_value'])}.")
         add("  " + reading_nested(nested["p_value"] if nested["df"] > 0 else None, nested["added"]))
     out.extend(_profile_lines(record))
     out.extend(_shape_lines(record, test_name))
@@ -219,6 +233,7 @@ def describe(record: dict, source: str = "") -> str:
     out.extend(_validation_lines(record))
     out.extend(decision_lines(record))
     out.extend(subgroup_lines(record))
+    out.extend(usefulness_lines(record))
     if record["warnings"]:
         add("")
         add("Warnings")
@@ -229,11 +244,54 @@ def describe(record: dict, source: str = "") -> str:
     return "\n".join(out) + "\n"
 
 
+#: The pooled tests by their ``kind``, in words, with their source.
+POOLED_TEST_NAMES = {
+    "D1": "Pooled Wald test (D1, Li, Raghunathan & Rubin 1991)",
+    "D2": "Pooled chi-square test (D2, Li, Meng, Raghunathan & Rubin 1991)",
+    "D3": "Pooled likelihood-ratio test (D3, Meng & Rubin 1992)",
+}
+
+
+def pooled_test_text(t: dict) -> str:
+    """"Pooled likelihood-ratio test (D3, ...): F = 38.6 on 7 and 120,680 degrees of freedom (G scale 270.5), p-value ..."."""
+    den = t.get("df_denominator")
+    # Beyond 10,000 the F reference is the chi-square one to the digits printed; the exact figure is in the JSON.
+    den_text = ("infinitely many" if den is None else "more than 10,000" if den > 10_000 else fmt_num(den, 1))
+    stat = t.get("statistic")
+    g = t.get("g", None if stat is None else stat * t["df"])
+    return (f"{POOLED_TEST_NAMES.get(t.get('kind'), 'Pooled test')}: F = {fmt_num(t.get('statistic'), 2)} on "
+            f"{t['df']} and {den_text} degrees of freedom (on the chi-square scale {fmt_num(g, 2)}), "
+            f"p-value {fmt_p(t['p_value'])}")
+
+
+def imputation_lines(record: dict) -> list[str]:
+    """What was imputed, how, and the complete-rows fit beside the pooled one."""
+    imp = record["imputation"]
+    out = [f"  Missing predictor values filled in by multiple imputation by chained equations: every figure below "
+           f"is pooled over {imp['m']} imputed copies (seed {imp['seed'] if imp['seed'] is not None else 'not set'}); "
+           f"{imp['cells_imputed']:,} values in {imp['rows_imputed']:,} rows imputed."]
+    missing = record.get("missing_by_column") or {}
+    for col, method in imp["methods"].items():
+        n = missing.get(col)
+        out.append(f"    {col}: {method}" + (f" ({n:,} missing)" if n else ""))
+    if imp.get("auxiliary"):
+        out.append("    Used only to impute: " + ", ".join(imp["auxiliary"]) + ".")
+    cc = imp.get("complete_rows")
+    if cc:
+        out.append(f"  For comparison, on the {cc['rows_used']:,} complete rows only: G = {fmt_num(cc['overall']['g'], 2)} "
+                   f"on {degrees(cc['overall']['df'])}, p-value {fmt_p(cc['overall']['p_value'])}; odds ratios "
+                   + "; ".join(f"{t['label']} {fmt_or(t['odds_ratio'])} ({fmt_or(t['or_ci_low'])} to "
+                               f"{fmt_or(t['or_ci_high'])})" for t in cc["terms"]) + ".")
+    return out
+
+
 def describe_assessment(a: dict, record: dict) -> list[str]:
     """The assessment section of the plain-text account."""
     out = [""]
     add = out.append
     add("How well does it tell patients apart, and are its risks right? (on the records it was fitted to)")
+    if a.get("pooled_note"):
+        add(f"  {a['pooled_note']}")
     lo, hi = a["auc_ci"]
     add(f"  Discrimination: area under the ROC curve (c statistic) {fmt_num(a['auc'], 3)}, "
         f"95% CI {fmt_num(lo, 3)} to {fmt_num(hi, 3)} (DeLong); 0.5 is a coin toss, 1 perfect.")
@@ -317,6 +375,13 @@ def interaction_reading(a: str, b: str, p) -> str:
             else f"The data do not clearly show the effect of {a} differing with {b}.")
 
 
+def _test_figures(t: dict) -> str:
+    """"G = 2.26 on 2 degrees of freedom, p-value 0.322.", or a pooled test's figures with its kind."""
+    if "df_denominator" in t:
+        return pooled_test_text(t) + "."
+    return f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}."
+
+
 def _shape_lines(record: dict, test_name: str) -> list[str]:
     from twofold.core.models.terms import TIMES
 
@@ -324,14 +389,13 @@ def _shape_lines(record: dict, test_name: str) -> list[str]:
     for t in record.get("nonlinearity") or []:
         knots = ", ".join(f"{v:g}" for v in t["knots"])
         out += ["", f"Is the effect of {t['column']} curved? (curve with {len(t['knots'])} knots, at {knots})",
-                f"  {test_name} test of the curve against a straight line, on the same rows: "
-                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                f"  {test_name} test of the curve against a straight line, on the same rows: " + _test_figures(t),
                 "  " + curve_reading(t["column"], t["p_value"])]
     for t in record.get("interaction_tests") or []:
         a, _, b = t["term"].partition(":")
         out += ["", f"Does the effect of {a} differ with {b}?",
                 f"  {test_name} test of the model with {a} {TIMES} {b} against the model without it: "
-                f"G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}.",
+                + _test_figures(t),
                 "  " + interaction_reading(a, b, t["p_value"])]
     return out
 
@@ -422,7 +486,8 @@ def decision_lines(record: dict) -> list[str]:
         return []
     summary = record.get("net_benefit_summary") or {}
     corrected = "model_corrected" in curve[0]
-    smaller = "smaller_model" in curve[0]
+    smaller = "smaller_model" in curve[0] or "other_model" in curve[0]
+    second = "smaller_model" if "smaller_model" in curve[0] else "other_model"
     out = ["", "Decision curve (net benefit per person; treating no one is 0)"]
     if summary.get("reading"):
         out.append("  " + summary["reading"])
@@ -437,7 +502,7 @@ def decision_lines(record: dict) -> list[str]:
         if corrected:
             row += f"  {fmt_num(e['model_corrected'], 4):>9}"
         if smaller:
-            row += f"  {fmt_num(e['smaller_model'], 4):>8}"
+            row += f"  {fmt_num(e[second], 4):>8}"
         out.append(row + f"  {fmt_num(e['treat_all'], 4):>9}")
     if len(shown) < len(curve):
         out.append(f"    ({len(shown)} of {len(curve)} thresholds shown; every one is in the JSON)")
@@ -499,10 +564,13 @@ def adaptation_lines(record: dict) -> list[str]:
     a = record.get("adaptation")
     if not a:
         return []
-    out = ["", "Adapting the saved model to these records (closed testing, each step at the 5% level)"]
+    from twofold.core.models.updating import STEP_WORDS
+
+    out = ["", "Adapting the saved model to these records (closed testing, Vergouwe et al. 2017, each step at the "
+           "5% level)"]
     for t in a["tests"]:
-        out.append(f"  {t['step']}: G = {fmt_num(t['g'], 2)} on {degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. "
-                   f"{t['reading']}")
+        out.append(f"  {STEP_WORDS.get(t['step'], t['step'])}: likelihood-ratio G = {fmt_num(t['g'], 2)} on "
+                   f"{degrees(t['df'])}, p-value {fmt_p(t['p_value'])}. {t['reading']}")
     out.append("  " + a["reading"])
     out.append("  Adapted coefficients: " + ", ".join(f"{c['name']} {fmt_num(c['estimate'], 4)}"
                                                      for c in a["coefficients"]) + ".")
@@ -534,3 +602,19 @@ def subgroup_lines(record: dict) -> list[str]:
         out.append("  " + record["subgroups_note"])
     return out
 
+
+
+def usefulness_lines(record: dict) -> list[str]:
+    """The comparison of units (``units``) and the shrunk model (``shrinkage``) of a record; [] when neither."""
+    out = []
+    units = record.get("units")
+    if units:
+        out.append("")
+        out.extend(describe_units(units).rstrip("\n").split("\n"))
+    shrinkage = record.get("shrinkage")
+    if shrinkage:
+        out += ["", "Shrinkage", "  " + shrinkage["reading"]]
+        if shrinkage.get("coefficients"):
+            out.append("  Shrunk coefficients (saved and used by predict): " + ", ".join(
+                f"{c['name']} {fmt_num(c['estimate'], 4)}" for c in shrinkage["coefficients"]) + ".")
+    return out
