@@ -9,10 +9,12 @@ columns as ``open_csv.py``, dates as date cells, missing yes/no cells empty)
 with openpyxl, then alternates, K times each,
 
 * new: ``read_table`` (python-calamine reads the cells; the sheet's XML is
-  scanned once for formulas, merged cells and its extent), and
+  scanned for its reach before, and for formulas, merged cells and error
+  cells while python-calamine parses), and
 * old: the route Twofold used until 2026-12-03, openpyxl's read-only mode
   (``load_workbook(read_only=True, data_only=True)``, ``iter_rows``) with the
-  same XML scan, feeding the same table building and tidying,
+  same XML scan (both passes, one after the other), feeding the same table
+  building and tidying (so any speed-up of those counts for both routes),
 
 each followed by ``describe_columns`` (what the window does next), and
 reports the median wall time of each and their ratio.  Both routes are

@@ -189,3 +189,95 @@ def test_a_workbook_unpacking_beyond_the_byte_cap_is_refused(tmp_path, monkeypat
     monkeypatch.setattr(read_workbook, "MAX_XML_BYTES", 50_000)
     with pytest.raises(DataFileError, match="unpacks to more than"):
         read_table(path)
+
+
+def _rewritten(tmp_path: Path, name: str, change) -> Path:
+    """A copy of a small workbook with its sheet's XML changed by ``change`` (the way a crafted file might be)."""
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for row in (["age", "died"], [60, "yes"], [61, "no"], [62, "no"]):
+        ws.append(row)
+    wb.save(tmp_path / "plain.xlsx")
+    with zipfile.ZipFile(tmp_path / "plain.xlsx") as z:
+        items = {n: z.read(n) for n in z.namelist()}
+    sheet = items["xl/worksheets/sheet1.xml"].decode()
+    changed = change(sheet)
+    assert changed != sheet
+    items["xl/worksheets/sheet1.xml"] = changed.encode()
+    with zipfile.ZipFile(tmp_path / name, "w") as z:
+        for n, data in items.items():
+            z.writestr(n, data)
+    return tmp_path / name
+
+
+# Cells placed where the compiled reader places them, however the sheet's XML writes them: a reference that
+# disagrees with its row's number, a reference that is not the first attribute or is in single quotes or in
+# small letters, a cell element with a namespace prefix, a '>' inside another attribute, and rows and cells
+# without references (placed after the ones before).
+_CRAFTED = {
+    "reference_beyond_its_row": lambda s: s.replace('<c r="A3"', '<c r="A{far}"'),
+    "reference_not_first": lambda s: s.replace('<c r="A3" t="n"', '<c t="n" r="A{far}"'),
+    "single_quotes": lambda s: s.replace('<c r="A3"', "<c r='A{far}'"),
+    "small_letters": lambda s: s.replace('<c r="A3"', '<c r="a{far}"'),
+    "prefixed_cell": lambda s: s.replace(
+        '<c r="A3" t="n"><v>61</v></c>',
+        '<x:c xmlns:x="http://schemas.openxmlformats.org/spreadsheetml/2006/main" r="A{far}" t="n"><x:v>61</x:v>'
+        '</x:c>'),
+    "angle_in_attribute": lambda s: s.replace('<c r="A3" t="n"', '<c foo=">" r="A{far}" t="n"'),
+    "row_number_only": lambda s: s.replace('<row r="3"', '<row r="{far}"').replace('<c r="A3" t="n">', '<c t="n">')
+    .replace('<c r="B3" t="inlineStr">', '<c t="inlineStr">'),
+    "column_far_right": lambda s: s.replace('<c r="B3"', '<c r="{col}{row}"'),
+}
+
+
+@pytest.mark.parametrize("kind", sorted(_CRAFTED))
+def test_the_reach_is_where_the_compiled_reader_puts_cells(tmp_path, kind):
+    import python_calamine
+
+    # Reference: python-calamine's own placing of the cells (its sheet's last row and column), on a sheet small
+    # enough for it to build.
+    path = _rewritten(tmp_path, f"{kind}.xlsx", lambda s: _CRAFTED[kind](s).format(far=300, col="KZ", row=30))
+    scan = read_workbook.scan_reach(path, "xl/worksheets/sheet1.xml", None)
+    book = python_calamine.CalamineWorkbook.from_path(str(path))
+    end = book.get_sheet_by_name(book.sheet_names[0]).end
+    assert (scan.rows, scan.columns) == (end[0] + 1, end[1] + 1)
+
+
+@pytest.mark.parametrize("kind", sorted(_CRAFTED))
+def test_a_crafted_far_cell_is_refused_before_it_is_parsed(tmp_path, kind):
+    path = _rewritten(tmp_path, f"{kind}.xlsx", lambda s: _CRAFTED[kind](s).format(far=40_000_000, col="XFD", row=3000))
+    # In a child process: past the cap the compiled reader would abort the whole program.
+    res = run_cli("fit", path, "--outcome", "died", "--predictor", "age")
+    assert res.returncode == 2, res.stderr
+    assert "more than the 30,000,000 Twofold reads from a workbook" in res.stderr
+    assert len(res.stderr.strip().splitlines()) == 1
+
+
+def test_the_reach_of_randomly_placed_cells_matches_the_compiled_reader(tmp_path):
+    import random
+    import re
+
+    import python_calamine
+
+    # Reference: python-calamine's own placing. Sheets written the usual way (references first, rows in
+    # order) but with cells at random places, some just beyond the furthest cell seen before them, some far
+    # below or right, some within.
+    rng = random.Random(19)
+    for trial in range(25):
+        rows = []
+        for r in range(1, rng.randint(2, 40)):
+            cells = [(r, c) for c in range(1, rng.randint(1, 30))]
+            if rng.random() < 0.3:
+                cells.append((rng.choice([r, r + 1, rng.randint(1, 3000)]), rng.choice([1, 27, rng.randint(1, 80)])))
+            rows.append((r, cells))
+        data = "".join(
+            f'<row r="{r}">' + "".join(f'<c r="{read_workbook.column_letters(c)}{rr}"><v>1</v></c>' for rr, c in cells)
+            + "</row>" for r, cells in rows)
+        path = _rewritten(tmp_path, f"random{trial}.xlsx",
+                          lambda s, data=data: re.sub(r"<sheetData>.*</sheetData>", f"<sheetData>{data}</sheetData>", s))
+        scan = read_workbook.scan_reach(path, "xl/worksheets/sheet1.xml", None)
+        book = python_calamine.CalamineWorkbook.from_path(str(path))
+        end = book.get_sheet_by_name(book.sheet_names[0]).end
+        assert (scan.rows, scan.columns) == (end[0] + 1, end[1] + 1), trial

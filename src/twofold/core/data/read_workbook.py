@@ -28,6 +28,7 @@ import re
 import threading
 import time
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 
@@ -63,6 +64,10 @@ class SheetScan:
     merges: list = field(default_factory=list)
     formulas: list = field(default_factory=list)
     errors: list = field(default_factory=list)
+    #: Set by :func:`scan_reach` when no block of the rows holds a formula or an error cell: the part of
+    #: the XML after the rows (where merged ranges are kept) and its patterns, so :func:`scan_details`
+    #: need not read the sheet again.
+    rest: tuple | None = field(default=None, repr=False)
 
     @property
     def cells(self) -> int:
@@ -91,7 +96,7 @@ def read_workbook(path: Path, sheet: str | None, progress):
         part = sheet_parts(path).get(sheet)
         if part is None:
             raise _damaged(path)
-        scan = scan_sheet(path, part, progress)
+        scan = scan_reach(path, part, progress)
         where = f"sheet '{sheet}' of {path.name}"
         if scan.cells > MAX_CELLS:
             raise DataFileError(
@@ -99,7 +104,7 @@ def read_workbook(path: Path, sheet: str | None, progress):
                 f"({scan.cells:,} cells), more than the {MAX_CELLS:,} Twofold reads from a workbook; delete the "
                 "empty or unused rows and columns beyond the records, or save the sheet as CSV."
             )
-        rows = _parse_rows(book, sheet, path, progress, scan)
+        rows = _parse_rows(book, sheet, part, path, progress, scan)
     finally:
         try:
             book.close()
@@ -148,8 +153,17 @@ def locked_workbook(path: Path) -> DataFileError:
     )
 
 
-def _parse_rows(book, sheet: str, path: Path, progress, scan: SheetScan) -> list:
-    """The sheet's rows from A1, as lists; parsed on a helper thread so progress and cancel keep working."""
+class _ParseFailed(Exception):
+    """The compiled reader stopped with an error: the XML's second pass need not go on."""
+
+
+def _parse_rows(book, sheet: str, part: str, path: Path, progress, scan: SheetScan) -> list:
+    """The sheet's rows from A1, as lists; parsed on a helper thread so progress and cancel keep working.
+
+    Meanwhile this thread reads what the compiled reader does not say into ``scan``
+    (:func:`scan_details`): the reader parses without holding the interpreter lock, so the two
+    run on two cores at once.
+    """
     done = threading.Event()
     box: dict = {}
 
@@ -165,9 +179,19 @@ def _parse_rows(book, sheet: str, path: Path, progress, scan: SheetScan) -> list
     # Progress while it parses: a guess from the sheet's size (about 40 MB of XML a second).
     expected = max(scan.cells * 40 / 40e6, 0.2)
     started = time.monotonic()
-    while not done.wait(0.1):
+
+    def waited(stop_if_failed=True):
+        if stop_if_failed and "error" in box:
+            raise _ParseFailed
         elapsed = time.monotonic() - started
         report_progress(progress, 0.25 + 0.25 * (1 - math.exp(-elapsed / expected)), path)
+
+    try:
+        scan_details(path, part, scan, waited)
+    except _ParseFailed:
+        pass
+    while not done.wait(0.1):
+        waited(stop_if_failed=False)
     if "error" in box:
         exc = box["error"]
         if isinstance(exc, (KeyboardInterrupt, SystemExit, MemoryError)):
@@ -185,10 +209,10 @@ def _parse_rows(book, sheet: str, path: Path, progress, scan: SheetScan) -> list
     top, left = ws.start
     pad = [""] * left
     total = top + ws.height
-    for i, row in enumerate(ws.iter_rows()):
-        rows.append(pad + row if left else row)
-        if progress is not None and i % 5000 == 4999:
-            report_progress(progress, 0.5 + 0.3 * min(i / total, 1.0), path)
+    cells = ws.iter_rows()
+    while batch := list(itertools.islice(cells, 5000)):
+        rows.extend([pad + row for row in batch] if left else batch)
+        report_progress(progress, 0.5 + 0.3 * min(len(rows) / total, 1.0), path)
     if len(rows) < total:  # rows above the first one holding a cell
         rows[:0] = [[] for _ in range(total - len(rows))]
     return rows
@@ -260,11 +284,10 @@ class _Tags:
 
     def __init__(self, prefix: bytes):
         p = re.escape(prefix)
-        self.row_ref = re.compile(rb"<" + p + rb"""row\b[^>]*? r=["'](\d+)["']""")
-        self.row_tag = re.compile(rb"<" + p + rb"row[\s>/]")
+        self.prefix = prefix
         self.row_end = b"</" + prefix + b"row>"
-        self.wide = re.compile(rb""" r=["']([A-Z]{2,3})[0-9]""")
-        self.narrow = re.compile(rb""" r=["']([A-Z])[0-9]""")
+        self.cell = b"<" + prefix + b'c r="'
+        self.ref = re.compile(rb"<" + p + rb'c r="([A-Z]{1,3})(\d{1,7})"')
         self.formula_start = b"<" + prefix + b"f"
         self.formula = re.compile(rb"<" + p + rb"f\b[^>]*?(?:/>|>([^<]*)</" + p + rb"f>)")
         self.cell_start = re.compile(rb"<" + p + rb"c[\s>]")
@@ -272,46 +295,266 @@ class _Tags:
         self.value = re.compile(rb"<" + p + rb"v>([^<]+)</" + p + rb"v>")
         self.error_cell = re.compile(rb"<" + p + rb"""c\b[^>]*? t="e"[^>]*>""")
         self.merge = re.compile(rb"<" + p + rb"mergeCell\s+ref=\"\$?([A-Z]+)\$?(\d+)(?::\$?([A-Z]+)\$?(\d+))?\"")
+        self._beyond: dict = {}
+
+    def beyond(self, rows: int, columns: int):
+        """A pattern for the cells that matter to the reach, given that it is at least (rows, columns) so far.
+
+        It matches every cell element except those written the usual way (``<c r="B12"``, the
+        reference first, in double quotes, capital letters then digits) within row ``rows`` and
+        column ``columns``: so it matches a cell further down or right, and a cell written any
+        other way.  A cell within the reach fails after a few characters (the possessive and
+        ordered alternatives never step back), so one pass over a block costs little more than
+        finding its cells.
+        """
+        key = (rows, columns)
+        if key not in self._beyond:
+            letters = column_letters(columns) if columns else ""
+            digits = str(rows) if rows else ""
+            fewer_letters = [f"[A-Z]{{1,{len(letters) - 1}}}+"] if len(letters) > 1 else []
+            fewer_digits = [f"\\d{{1,{len(digits) - 1}}}+"] if len(digits) > 1 else []
+            near = ("(?:" + "|".join(fewer_letters + _not_after(letters, _LETTERS)) + ")(?:"
+                    + "|".join(fewer_digits + _not_after(digits, "0123456789")) + ')"')
+            p = re.escape(self.prefix)
+            self._beyond[key] = re.compile(rb"<" + p + rb'c(?! r="' + near.encode() + rb")[\s/>]")
+        return self._beyond[key]
+
+
+_LETTERS = "ABCDEFGHIJKLMNOPQRSTUVWXYZ"
+
+
+def _not_after(text: str, alphabet: str) -> list[str]:
+    """Regular expressions for the strings as long as ``text``, over ``alphabet`` (in order), up to it."""
+    out = []
+    first = alphabet[0]
+    for i, ch in enumerate(text):
+        if ch != first:
+            before = alphabet[alphabet.index(ch) - 1]
+            rest = len(text) - i - 1
+            tail = f"[{first}-{alphabet[-1]}]{{{rest}}}" if rest else ""
+            out.append(re.escape(text[:i]) + f"[{first}-{before}]" + tail)
+    out.append(re.escape(text))
+    return out
 
 
 def scan_sheet(path: Path, part: str, progress) -> SheetScan:
-    """Stream a sheet's XML once: its reach, merged ranges, formulas without results and error cells.
+    """A sheet's reach, merged ranges, formulas without results and error cells (both passes, one after the other).
 
-    Raises a DataFileError when the XML unpacks to more than MAX_XML_BYTES or cannot be read.
+    :func:`read_workbook` runs the second pass (:func:`scan_details`) while the compiled reader parses.
     """
-    scan = SheetScan()
-    merges = set()
+    scan = scan_reach(path, part, progress)
+    scan_details(path, part, scan, None)
+    return scan
+
+
+def _unpacked(fh, ahead: bool):
+    """The blocks of an open zip member; with ``ahead``, unpacked by a helper thread a block or two ahead.
+
+    Unpacking lets go of the interpreter lock, so the helper unpacks the next block on another
+    core while this thread searches the last one.  The helper stops when the blocks are no
+    longer wanted; an error it meets is raised here.
+    """
+    if not ahead:
+        yield from iter(lambda: fh.read(1 << 22), b"")
+        return
+    import queue
+
+    blocks: queue.Queue = queue.Queue(maxsize=2)
+    stop = threading.Event()
+
+    def hand_on(item) -> None:
+        while not stop.is_set():
+            try:
+                blocks.put(item, timeout=0.1)
+                return
+            except queue.Full:
+                continue
+
+    def unpack():
+        try:
+            while not stop.is_set():
+                block = fh.read(1 << 22)
+                hand_on(block)
+                if not block:
+                    return
+        except BaseException as exc:  # handed to the reading thread
+            hand_on(exc)
+
+    helper = threading.Thread(target=unpack, name="twofold-unpack", daemon=True)
+    helper.start()
+    try:
+        while True:
+            block = blocks.get()
+            if isinstance(block, BaseException):
+                raise block
+            if not block:
+                return
+            yield block
+    finally:
+        stop.set()
+        helper.join()
+
+
+def _sheet_blocks(path: Path, part: str, progress, share: float, ahead: bool = False):
+    """The sheet's XML in blocks of whole rows, as (block, tags); the last block is the rest of the sheet.
+
+    Progress runs from 0 to ``share`` as the XML is read; ``ahead`` unpacks on a helper thread
+    (:func:`_unpacked`).  Raises a DataFileError when the XML unpacks to more than
+    MAX_XML_BYTES or cannot be read.
+    """
     try:
         with zipfile.ZipFile(path) as z:
             info = z.getinfo(part)
             shared = next((i for i in z.infolist() if i.filename.endswith("sharedStrings.xml")), None)
             if info.file_size > MAX_XML_BYTES or (shared is not None and shared.file_size > MAX_XML_BYTES):
                 raise _too_big(path)
-            rows_counted, read, tail, tags = 0, 0, b"", None
+            read, tail, tags = 0, b"", None
             with z.open(info) as fh:
-                for block in iter(lambda: fh.read(1 << 22), b""):
+                for block in _unpacked(fh, ahead):
                     read += len(block)
                     if read > MAX_XML_BYTES:
                         raise _too_big(path)
-                    data = tail + block
+                    data = tail + block if tail else block
                     if tags is None:
                         found = _PREFIX.search(data)
                         tags = _Tags(found.group(1) or b"" if found else b"")
                     # Work on whole rows: the rest waits for the next block.
                     cut = data.rfind(tags.row_end)
                     cut = cut + len(tags.row_end) if cut >= 0 else 0
-                    rows_counted += _scan_chunk(data[:cut], tags, scan, None)
+                    if cut:
+                        yield data[:cut], tags, False
                     tail = data[cut:]
-                    report_progress(progress, 0.25 * min(read / max(info.file_size, 1), 1.0), path)
+                    if progress is not None:
+                        report_progress(progress, share * min(read / max(info.file_size, 1), 1.0), path)
             if tags is not None:
-                rows_counted += _scan_chunk(tail, tags, scan, merges)
+                yield tail, tags, True
     except (DataFileError, ReadCancelled):
         raise
-    except (KeyError, OSError, ValueError, EOFError, zipfile.BadZipFile, RuntimeError):
+    except (KeyError, OSError, ValueError, EOFError, zipfile.BadZipFile, RuntimeError, zlib.error):
         raise _damaged(path) from None
-    scan.rows = max(scan.rows, rows_counted)
-    scan.merges = sorted(merges)
+
+
+def scan_reach(path: Path, part: str, progress) -> SheetScan:
+    """How far a sheet's cells reach: the last row and column holding a cell, counting formatted empty ones.
+
+    The compiled reader places a cell by its reference (``r="B12"``), or, without one, after the
+    cell before it in its row; so the reach is the furthest reference, whatever row element the
+    cell sits in.  Sheets whose cells all start with their reference (what Excel, LibreOffice and
+    the usual libraries write) are read with one pattern per block (:meth:`_Tags.beyond`); any
+    other sheet is walked element by element as the reader walks it (:func:`_reach_walked`).
+    """
+    scan = SheetScan()
+    walked = details = False
+    for chunk, tags, last in _sheet_blocks(path, part, progress, 0.25, ahead=True):
+        if tags.prefix or _PREFIXED_CELL.search(chunk):  # the reader takes cells with any prefix as cells
+            walked = True
+            break
+        if not _reach_of_chunk(chunk, tags, scan):
+            walked = True
+            break
+        # Most sheets hold no formula and no error cell: noticing that here spares a second pass.
+        details = details or tags.formula_start in chunk or b't="e"' in chunk
+        if last and not details:
+            scan.rest = (chunk, tags)
+    if walked:
+        scan.rows, scan.columns = _reach_walked(path, part)
+        scan.rest = None
     return scan
+
+
+def _reach_of_chunk(chunk: bytes, tags: _Tags, scan: SheetScan) -> bool:
+    """Widen ``scan``'s reach by the cells in a block; False when a cell is not written the usual way."""
+    # Start from cells that are likely the furthest (the block's last cell, the first row's last cell),
+    # so that few cells lie beyond.
+    for at in (chunk.rfind(tags.cell), chunk.rfind(tags.cell, 0, max(chunk.find(tags.row_end), 0))):
+        m = tags.ref.match(chunk, at) if at >= 0 else None
+        if m:
+            scan.rows = max(scan.rows, int(m.group(2)))
+            scan.columns = max(scan.columns, _column_number(m.group(1)))
+    pattern = tags.beyond(scan.rows, scan.columns)
+    rows, columns = scan.rows, scan.columns
+    for m in pattern.finditer(chunk):
+        ref = tags.ref.match(chunk, m.start())
+        if ref is None:  # written some other way
+            return False
+        rows = max(rows, int(ref.group(2)))
+        columns = max(columns, _column_number(ref.group(1)))
+    scan.rows, scan.columns = rows, columns
+    return True
+
+
+_PREFIXED_CELL = re.compile(rb":c[\s/>]")
+_TOKEN = re.compile(rb"""<(/?)(?:[^\s<>/=:!?"']+:)?(row|c)((?:\s+[^\s<>/="']+\s*=\s*(?:"[^"]*"|'[^']*'))*)\s*(/?)>""")
+_R_ATTRIBUTE = re.compile(rb"""\sr\s*=\s*(?:"([^"]*)"|'([^']*)')""")
+
+
+def _reach_walked(path: Path, part: str) -> tuple[int, int]:
+    """The reach, walking every row and cell element as the compiled reader does (sheets written unusually).
+
+    Rows and cells without a reference take the place after the one before; a row element
+    without one counts on from the row before.  Where the reader might read a reference two
+    ways, the larger place is taken, so the reach is never underestimated.
+    """
+    rows = columns = 0
+    row = col = 0  # where a cell without a reference goes, 0-based
+    opened = 0  # row elements opened so far
+    tail = b""
+    try:
+        with zipfile.ZipFile(path) as z, z.open(part) as fh:
+            for block in iter(lambda: fh.read(1 << 22), b""):
+                data = tail + block
+                cut = data.rfind(b"<")  # an element never holds '<', so all before the last one are whole
+                cut = max(0, cut)
+                for m in _TOKEN.finditer(data, 0, cut):
+                    closing, name, attributes, empty = m.groups()
+                    ref = _R_ATTRIBUTE.search(b" " + attributes)
+                    ref = ref and (ref.group(1) if ref.group(1) is not None else ref.group(2))
+                    if name == b"row":
+                        if closing:
+                            row, col = row + 1, 0
+                        elif not empty:
+                            opened += 1
+                            at = _place(ref) if ref else None
+                            row = max(row, opened - 1) if at is None else at[0]
+                        continue
+                    if closing:
+                        continue
+                    at = _place(ref) if ref else None
+                    r, c = (max(row, opened - 1, 0), col) if at is None else at
+                    col = c + 1
+                    rows, columns = max(rows, r + 1), max(columns, c + 1)
+                tail = data[cut:]
+    except (KeyError, OSError, ValueError, EOFError, zipfile.BadZipFile, RuntimeError, zlib.error):
+        return rows, columns
+    return rows, columns
+
+
+def _place(ref: bytes):
+    """(row, column), 0-based, of a reference as the compiled reader reads it (column 0 without letters)."""
+    m = re.fullmatch(rb"([A-Za-z]*)(\d+)", ref)
+    if m is None:
+        return None  # the reader refuses such a reference, so the sheet is not read at all
+    letters = m.group(1).upper()
+    return max(int(m.group(2)) - 1, 0), max(_column_number(letters) - 1, 0)
+
+
+def scan_details(path: Path, part: str, scan: SheetScan, progress_at) -> None:
+    """Fill in ``scan``'s merged ranges, formulas without a saved result and error cells.
+
+    When :func:`scan_reach` found no formula and no error cell (``scan.rest``), only the part
+    after the rows is searched, for merged ranges.
+
+    ``progress_at`` (or None) is called after each block, to report progress and to give a
+    chance to cancel.
+    """
+    merges = set()
+    blocks = [(*scan.rest, True)] if scan.rest is not None else _sheet_blocks(path, part, None, 0.0)
+    for chunk, tags, last in blocks:
+        _details_of_chunk(chunk, tags, scan, merges if last else None)
+        if progress_at is not None:
+            progress_at()
+    scan.merges = sorted(merges)
+    scan.rest = None
 
 
 def _too_big(path: Path) -> DataFileError:
@@ -321,24 +564,11 @@ def _too_big(path: Path) -> DataFileError:
     )
 
 
-def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set | None) -> int:
-    """Scan whole rows of XML into ``scan`` (merged ranges into ``merges``, given with the part after the
-    rows, where a sheet keeps them); returns how many row elements without a number the chunk holds."""
+def _details_of_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set | None) -> None:
+    """Formulas without results and error cells of whole rows of XML into ``scan`` (merged ranges into
+    ``merges``, given with the part after the rows, where a sheet keeps them)."""
     if not chunk:
-        return 0
-    refs = tags.row_ref.findall(chunk)
-    if refs:
-        scan.rows = max(scan.rows, max(map(int, refs)))
-    # The furthest column.  Columns A to Z alone cannot pass the cap on a sheet of Excel's 1,048,576 rows,
-    # so one-letter references are looked at only on a sheet that claims more rows than that.
-    wide = set(tags.wide.findall(chunk))
-    if wide:
-        scan.columns = max(scan.columns, max(map(_column_number, wide)))
-    elif scan.columns < 26 and (refs or not scan.rows):
-        if scan.rows * 26 > MAX_CELLS:
-            scan.columns = max([scan.columns, *map(_column_number, set(tags.narrow.findall(chunk)))])
-        else:
-            scan.columns = 26  # at most Z: an upper bound is enough below the cap
+        return
     if tags.formula_start in chunk:
         for m in tags.formula.finditer(chunk):
             cell = _cell_around(chunk, m.start(), tags)
@@ -358,7 +588,6 @@ def _scan_chunk(chunk: bytes, tags: _Tags, scan: SheetScan, merges: set | None) 
     for m in tags.merge.finditer(chunk) if merges is not None else ():  # merged ranges follow the rows
         c0, r0, c1, r1 = m.groups()
         merges.add((_column_number(c0), int(r0), _column_number(c1 or c0), int(r1 or r0)))
-    return 0 if refs else len(tags.row_tag.findall(chunk))
 
 
 def _has_value(cell: bytes, tags: _Tags) -> bool:
@@ -404,38 +633,68 @@ def _as_openpyxl_gave(v):
     return v
 
 
-def _column_values(values) -> None:
-    """Give a column of cells (an object array, changed in place) the types openpyxl gave, the whole column at once."""
+def _column_values(values):
+    """A column of cells (an object array, changed in place) as the table gets it, the whole column at once.
+
+    The cells take the types openpyxl gave them (empty as None, whole numbers as int, dates as
+    datetimes), and a column that is all numbers or all text is handed on in the form
+    :func:`~twofold.core.data.tidy.tidy_frame` would turn it into anyway, so that it need not look
+    at each cell again: numbers as a number array (whole numbers with no gap as integers, other
+    numbers as floats with gaps and infinities as NaN), text as categories in order of first
+    appearance (what tidying a column of text cells starts from).
+    """
     import numpy as np
     import pandas as pd
 
-    values[values == ""] = None
     kind = pd.api.types.infer_dtype(values, skipna=True)
+    if kind == "string":  # text, empty cells (empty text) among it: numbered, with the empty text as missing
+        codes, uniques = pd.factorize(values)
+        empty = np.flatnonzero(uniques == "")
+        if len(empty):
+            codes = np.where(codes == empty[0], -1, codes - (codes > empty[0]))
+            uniques = np.delete(uniques, empty[0])
+        if len(uniques):
+            return pd.Categorical.from_codes(codes, categories=pd.Index(np.asarray(uniques, dtype=object)))
+        values[:] = None
+        return values
+    if kind not in ("floating", "integer", "mixed-integer-float", "empty", "boolean", "datetime", "date"):
+        values[values == ""] = None  # empty cells come as empty text; a column of numbers has none
+        kind = pd.api.types.infer_dtype(values, skipna=True)
     if kind in ("floating", "integer", "mixed-integer-float"):
         numbers = values.astype(float)
         finite = np.isfinite(numbers)
-        if (numbers[finite] == np.trunc(numbers[finite])).all() and (np.abs(numbers[finite]) < 2**53).all():
-            values[finite] = numbers[finite].astype(np.int64).astype(object)
-    elif kind == "date":  # dates without a time come as dates; openpyxl gave datetimes
+        if finite.all() and (numbers == np.trunc(numbers)).all() and (np.abs(numbers) < 2**53).all():
+            return numbers.astype(np.int64)
+        numbers[~finite] = np.nan
+        return numbers
+    if kind == "string":
+        codes, uniques = pd.factorize(values)
+        return pd.Categorical.from_codes(codes, categories=pd.Index(np.asarray(uniques, dtype=object)))
+    if kind == "date":  # dates without a time come as dates; openpyxl gave datetimes
         date = dt.date
         values[:] = [dt.datetime(v.year, v.month, v.day) if type(v) is date else v for v in values]
-    elif kind not in ("empty", "string", "boolean", "datetime", "time"):  # numbers, text and dates mixed
+    elif kind not in ("empty", "boolean", "datetime", "time"):  # numbers, text and dates mixed
         values[:] = [_as_openpyxl_gave(v) for v in values]
+    return values
 
 
 def frame_from_rows(rows, merges, where: str, hint: str):
     """The table in a sheet's rows: header at the first non-empty row, titles skipped, empty edges trimmed.
 
     ``rows`` are lists from A1 (they may be changed in place).  Returns
-    (frame of object columns, names made up for blank names, notices).
+    (frame of columns typed as :func:`_column_values` says, names made up for blank names, notices).
     """
     import numpy as np
     import pandas as pd
 
     blank = _blank
     notices: list[Notice] = []
-    width = max((len(r) for r in rows), default=0)
-    filled = [r if len(r) == width and isinstance(r, list) else list(r) + [None] * (width - len(r)) for r in rows]
+    width = max(map(len, rows), default=0)
+    if min(map(len, rows), default=width) == width and set(map(type, rows)) <= {list}:
+        filled = rows  # the compiled reader's rows: lists, all as wide as the sheet's reach
+    else:
+        filled = [r if len(r) == width and isinstance(r, list) else list(r) + [None] * (width - len(r))
+                  for r in rows]
     # A merged block shows its top-left value over the whole block.
     for c0, r0, c1, r1 in merges:
         if r0 > len(filled) or c0 > width:
@@ -508,9 +767,8 @@ def frame_from_rows(rows, merges, where: str, hint: str):
     if not data:
         raise DataFileError(f"The {where} has column names but no data rows; {hint}.")
     block = grid[:, first:last + 1]
-    for j in range(block.shape[1]):
-        _column_values(block[:, j])
-    return pd.DataFrame(block, columns=names, dtype=object, copy=False), generated, notices
+    columns = {name: _column_values(block[:, j]) for j, name in enumerate(names)}
+    return pd.DataFrame(columns, copy=False), generated, notices
 
 
 def _any_filled(values) -> bool:
