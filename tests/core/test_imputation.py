@@ -471,3 +471,32 @@ def test_copies_fitted_on_two_threads_agree_with_one_at_a_time(monkeypatch):
         results[limit] = [n.code for n in fit.notices]
     assert "separation" in results[1]
     assert results[1] == results[10 ** 9]
+
+
+def test_pooled_hosmer_lemeshow_is_d2_of_the_copies_statistics():
+    from scipy.stats import chi2, f
+
+    from twofold.core.assessing.calibration import hosmer_lemeshow
+    from twofold.core.models.pooling import pooled_hosmer_lemeshow
+
+    rng = np.random.default_rng(7)
+    n = 2000
+    y = (rng.random(n) < 0.3).astype(float)
+    base = np.clip(0.3 + 0.2 * (y - 0.3) + rng.normal(0, 0.1, n), 0.01, 0.99)
+    # Identical copies: D2 is the ordinary statistic on its chi-square (Li, Meng, Raghunathan & Rubin 1991: r2 = 0).
+    one = hosmer_lemeshow(y, base)
+    same = pooled_hosmer_lemeshow([(y, base)] * 4)
+    assert same["statistic"] == pytest.approx(one.statistic, rel=1e-12) and same["df"] == one.df
+    assert same["p_value"] == pytest.approx(chi2.sf(one.statistic, one.df), rel=1e-9)
+    assert same["kind"] == "D2" and same["df_denominator"] is None
+    # Copies that differ: D2 written here from the paper over the copies' own statistics.
+    copies = [(y, np.clip(base + rng.normal(0, 0.02, n), 0.01, 0.99)) for _ in range(5)]
+    d = np.array([hosmer_lemeshow(yy, pp).statistic for yy, pp in copies])
+    k, m = one.df, 5
+    r2 = (1 + 1 / m) * np.var(np.sqrt(d), ddof=1)
+    d2 = (d.mean() / k - (m + 1) / (m - 1) * r2) / (1 + r2)
+    v = k ** (-3 / m) * (m - 1) * (1 + 1 / r2) ** 2
+    pooled = pooled_hosmer_lemeshow(copies)
+    assert pooled["statistic"] == pytest.approx(max(d2, 0) * k, rel=1e-10)
+    assert pooled["df_denominator"] == pytest.approx(v, rel=1e-10)
+    assert pooled["p_value"] == pytest.approx(f.sf(max(d2, 0), k, v), rel=1e-9)

@@ -611,6 +611,13 @@ def assessment_view(index: int, result, figures: dict, fit) -> AssessmentView:
     )
 
 
+def _pooled_hl_text(hl: dict | None) -> str:
+    if hl is None:
+        return "Hosmer-Lemeshow test: not available for these copies (too few risk groups, or not the same in each)."
+    return (f"Hosmer-Lemeshow test over {hl['groups']} risk groups: "
+            + pooled_test_text({**hl, "statistic": hl["statistic"] / hl["df"], "g": hl["statistic"]}) + ".")
+
+
 def pooled_assessment_view(index: int, a: dict, fit, figures=None, curves=None) -> AssessmentView:
     """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded, with the figures of
     the pooled predictions (``curves``: :func:`twofold.core.models.pooling.pooled_curves`; ``figures``: their PNG
@@ -635,7 +642,8 @@ def pooled_assessment_view(index: int, a: dict, fit, figures=None, curves=None) 
         brier_text=f"Brier score {fmt_num(a['brier'], 4)}; scaled Brier score {fmt_num(a['scaled_brier'], 3)}.",
         calibration_text=(f"Calibration slope: {fmt_num(a['calibration_slope'], 3)}; calibration-in-the-large: "
                           f"{fmt_num(a['calibration_intercept'], 3)}."),
-        calibration_note=a["calibration_note"], hl_text="Hosmer-Lemeshow test: not pooled.", hl_note="",
+        calibration_note=a["calibration_note"], hl_text=_pooled_hl_text(a["hosmer_lemeshow"]),
+        hl_note="" if a["hosmer_lemeshow"] is None else a["hosmer_lemeshow"]["note"],
         pseudo_r2_text=(f"Pseudo-R-squared (averaged over the copies): McFadden {fmt_num(a['mcfadden_r2'], 3)}, "
                         f"Cox-Snell {fmt_num(a['cox_snell_r2'], 3)}, Nagelkerke {fmt_num(a['nagelkerke_r2'], 3)}, "
                         f"Tjur {fmt_num(a['tjur_r2'], 3)}."),

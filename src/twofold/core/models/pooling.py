@@ -37,7 +37,7 @@ from functools import cached_property
 
 import numpy as np
 
-from twofold.core.errors import ModelError, Notice
+from twofold.core.errors import ModelError, Notice, TwofoldError
 from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, TermTest, log_likelihood
 from twofold.core.models.modelling import TermLRTest
 
@@ -513,6 +513,32 @@ def pooled_drop_one(copies: ImputedCopies, fit: PooledFit) -> list[dict]:
     return out
 
 
+def pooled_hosmer_lemeshow(risks) -> dict | None:
+    """The Hosmer-Lemeshow test pooled over the copies by D2 (Li, Meng, Raghunathan & Rubin 1991), the pooling of
+    m chi-square statistics: each copy's statistic on its risks under the pooled coefficients (``risks``: a list of
+    (y, p)), on F(k, df_denominator), ``statistic`` on the chi-square scale (D2 times k).  None when a copy has too
+    few risk groups or the copies' groups give different degrees of freedom (no common reference)."""
+    from twofold.core.assessing.calibration import hosmer_lemeshow
+
+    try:
+        tests = [hosmer_lemeshow(y, p) for y, p in risks]
+    except TwofoldError:
+        return None
+    k = tests[0].df
+    if any(t.df != k for t in tests) or k <= 0:
+        return None
+    stat, _, df_den = d2([t.statistic for t in tests], k)
+    small = max(t.small_expected_groups for t in tests)
+    first = tests[0]
+    note = first.note if small == first.small_expected_groups else tests[
+        [t.small_expected_groups for t in tests].index(small)].note
+    return {"statistic": float(stat * k), "df": int(k), "p_value": f_sf(stat, k, df_den),
+            "groups": int(first.groups_used), "small_expected_groups": int(small), "kind": "D2",
+            "df_denominator": None if math.isinf(df_den) else float(df_den),
+            "note": ("Pooled over the imputed copies by D2 (Li, Meng, Raghunathan & Rubin 1991): the statistic is on "
+                     "the chi-square scale, the p-value from its F reference. " + note)}
+
+
 def pooled_assessment(fit: PooledFit) -> dict:
     """The ``assessment`` object for pooled fits: each copy's figures under the pooled coefficients, pooled.
 
@@ -530,6 +556,7 @@ def pooled_assessment(fit: PooledFit) -> dict:
     from twofold.core.outputs.summary import clean_number as num
 
     aucs, auc_vars, slopes, slope_vars, cits, cit_vars, briers, sbriers, r2s = [], [], [], [], [], [], [], [], []
+    risks = []
     n = fit.n_used
     for f in fit.fits:
         y = f.design.y
@@ -543,6 +570,7 @@ def pooled_assessment(fit: PooledFit) -> dict:
         slope_vars.append(c.slope_se ** 2)
         cits.append(c.intercept)
         cit_vars.append(c.intercept_se ** 2)
+        risks.append((y, p))
         briers.append(brier(y, p))
         sbriers.append(scaled_brier(y, p))
         r2s.append(pseudo_r2(log_likelihood(y, lp), f.null_llf, len(y), y, p))
@@ -563,14 +591,15 @@ def pooled_assessment(fit: PooledFit) -> dict:
         "calibration_slope": num(slope[0]), "calibration_slope_se": num(slope[1]),
         "calibration_intercept": num(cit[0]),
         "calibration_note": PENALISED_CALIBRATION_NOTE if _penalised(fit.fits[0]) else APPARENT_CALIBRATION_NOTE,
-        "hosmer_lemeshow": None,
+        "hosmer_lemeshow": pooled_hosmer_lemeshow(risks),
         **{f"{k}_r2": num(np.mean([getattr(r, k) for r in r2s])) for k in ("mcfadden", "cox_snell", "nagelkerke", "tjur")},
         "influential": [], "vif": [], "drop_one": [], "sample_size": None, "notes": [],
         "pooled": True,
         "pooled_note": (f"Pooled over {fit.m} imputed copies: each copy's figures under the pooled coefficients; the "
                         "area under the ROC curve pooled on the logit scale (Rubin's rules) and taken back, "
-                        "calibration by Rubin's rules, Brier scores and R-squared averaged. Influence, variance "
-                        "inflation, the sample size and the Hosmer-Lemeshow test are not pooled and not shown here."),
+                        "calibration by Rubin's rules, Brier scores and R-squared averaged, the Hosmer-Lemeshow "
+                        "statistics pooled by D2. Influence, variance inflation and the sample size are not pooled "
+                        "and not shown here."),
     }
 
 
