@@ -216,6 +216,41 @@ def test_fits_put_off_by_quick_ticks_give_the_same_ladder_as_fitting_each_at_onc
     assert ws.ladder.rungs[2].fit.llf == pytest.approx(late.llf, rel=1e-9)
 
 
+def test_a_tick_whose_parent_was_put_off_is_put_off_too_when_a_newer_one_came_meanwhile(ws):
+    # The burst: tick 2 put off; tick 3 starts fitting (its parent, tick 2, first); a newer tick (4) arrives while
+    # tick 2 is fitted, so tick 3 is put off as well and tick 4 is the one fitted and shown.
+    steps = [["age"], ["age", "sex"], ["age", "sex", "prior_admissions"],
+             ["age", "sex", "prior_admissions", "discharge_destination"]]
+    ws.set_predictors(steps[0])
+    ws.set_predictors(steps[1], defer=True)
+    asked = []
+
+    def newer():
+        asked.append([r.fitted for r in ws.ladder.rungs])
+        return True
+
+    ws.set_predictors(steps[2], defer=newer)
+    # Asked once, after the parent's fit was made and before its own.
+    assert asked == [[True, True]]
+    assert [r.fitted for r in ws.ladder.rungs] == [True, True, False]
+    ws.set_predictors(steps[3], defer=lambda: False)
+    assert [r.fitted for r in ws.ladder.rungs] == [True, True, True, True]
+    ws.complete()
+    eager = Workspace()
+    eager.open(READMISSION)
+    eager.set_outcome(OUTCOME)
+    for predictors in steps:
+        eager.set_predictors(predictors)
+    assert ladder_numbers(ws) == ladder_numbers(eager)
+    # Outside reference: statsmodels' formula interface, the likelihood-ratio test of the last step by hand.
+    import statsmodels.formula.api as smf
+
+    frame = pd.read_csv(READMISSION)[["age", "sex", "prior_admissions", "discharge_destination", OUTCOME]].dropna()
+    small = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions", frame).fit(disp=0)
+    large = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions + discharge_destination", frame).fit(disp=0)
+    assert ws.ladder.rungs[3].against_previous.g == pytest.approx(2 * (large.llf - small.llf), rel=1e-7)
+
+
 def test_undo_past_fits_put_off_and_a_change_of_rows_keep_every_test_valid(ws):
     ws.set_predictors(["age"])
     ws.set_predictors(["age", "sex"], defer=True)

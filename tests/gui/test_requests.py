@@ -132,7 +132,7 @@ def test_an_unexpected_error_is_logged_and_shown_not_a_crash(qtbot, readmission,
     window = readmission
     from twofold.core.models.ladder import Ladder
 
-    def broken(self, predictors):
+    def broken(self, predictors, defer=False):
         raise RuntimeError("simulated failure inside the fit")
 
     monkeypatch.setattr(Ladder, "add", broken)

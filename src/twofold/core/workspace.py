@@ -336,7 +336,7 @@ class Workspace:
     def _add(self, predictors, defer: bool = False) -> None:
         ladder = self.ladder
         parent = ladder.current
-        ladder.add(predictors, defer=True) if defer else ladder.add(predictors)
+        ladder.add(predictors, defer=defer)
         if parent is not None:
             self.parents[len(ladder.rungs) - 1] = parent
 
@@ -344,7 +344,8 @@ class Workspace:
         """Fit the model with exactly these predictors as a new rung of the ladder (a tick or untick).
 
         ``defer=True`` (a newer tick is already waiting) puts the fit off: the newer model is fitted and shown
-        first, and this one when it is first read or by :meth:`complete`.
+        first, and this one when it is first read or by :meth:`complete`.  A callable ``defer`` is asked once
+        the fit of the model this one is built from is made, if that was put off (see :meth:`Ladder.add`).
         """
         predictors = tuple(predictors)
 

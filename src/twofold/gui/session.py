@@ -185,15 +185,22 @@ class Session(QObject):
         # worker before _submit returns, so it must not wait to be told its own id.
         mine = self._next_id + 1
 
+        def newer() -> bool:
+            return self._floor["results"] > mine
+
         def job():
-            if self._floor["results"] > mine:
+            if newer():
                 # A newer tick is already waiting: this step joins the ladder with its fit put off, and its
                 # display, which would never be shown, is not built.  The newest model is fitted and shown
                 # first; the ones passed over are fitted right after (see _complete), so quick ticks wait
                 # for one fit, not for all of them.
                 self.workspace.set_predictors(predictors, defer=True)
                 return self._views(())
-            self.workspace.set_predictors(predictors)
+            # Asked again once the model this one is built from is fitted, if it was put off.
+            self.workspace.set_predictors(predictors, defer=newer)
+            rung = self.workspace.current_rung
+            if rung is not None and not rung.fitted:
+                return self._views(())
             return self._views(("results",))
 
         job_id = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)

@@ -205,7 +205,9 @@ class Ladder:
         ``defer=True`` puts the fit off until it is first read (when the rows
         stay as they are): a quick succession of ticks then shows the newest
         model first, and the ones in between are fitted afterwards
-        (:meth:`complete`) or whenever something reads them.
+        (:meth:`complete`) or whenever something reads them.  ``defer`` may
+        be a callable, asked after the fit of the model this one is built
+        from is made (when that was put off): true puts this fit off too.
         """
         predictors = tuple(self.study.column(p) for p in predictors)
         union = list(dict.fromkeys(self.used_predictors + list(predictors)))
@@ -216,6 +218,12 @@ class Ladder:
         notices = []
         previous = self.rungs[self.current] if self.current is not None else None
         changed = self.rows is not None and not np.array_equal(rows, self.rows)
+        if callable(defer):
+            # Asked once the model this one is built from is fitted (its nested test needs that fit either way):
+            # a newer tick that came meanwhile puts this one off rather than wait behind its fit.
+            if not changed and previous is not None and not previous.fitted:
+                previous.fit  # noqa: B018  (makes the put-off fit)
+            defer = bool(defer())
         if defer and not changed and previous is not None:
             import copy
 
