@@ -25,6 +25,16 @@ def ws():
     return w
 
 
+def fitted_one_by_one(steps) -> Workspace:
+    """The same ticks, each fitted at once (nothing put off)."""
+    w = Workspace()
+    w.open(READMISSION)
+    w.set_outcome(OUTCOME)
+    for predictors in steps:
+        w.set_predictors(predictors)
+    return w
+
+
 def ladder_numbers(w):
     """What the window shows of the ladder: predictors, log-likelihood and parent of every model."""
     return [(tuple(r.predictors), round(r.fit.llf, 9), w.parents.get(i)) for i, r in enumerate(w.ladder.rungs)]
@@ -197,11 +207,7 @@ def test_fits_put_off_by_quick_ticks_give_the_same_ladder_as_fitting_each_at_onc
     assert ws.ladder.pending == [1, 2, 3]
     assert [r.fitted for r in ws.ladder.rungs] == [True, False, False, True, True]
     assert ws.complete() == 3 and ws.ladder.pending == []
-    eager = Workspace()
-    eager.open(READMISSION)
-    eager.set_outcome(OUTCOME)
-    for predictors in steps:
-        eager.set_predictors(predictors)
+    eager = fitted_one_by_one(steps)
     assert ladder_numbers(ws) == ladder_numbers(eager)
     for late_rung, eager_rung in zip(ws.ladder.rungs[1:], eager.ladder.rungs[1:]):
         late_test, eager_test = late_rung.against_previous, eager_rung.against_previous
@@ -236,11 +242,7 @@ def test_a_tick_whose_parent_was_put_off_is_put_off_too_when_a_newer_one_came_me
     ws.set_predictors(steps[3], defer=lambda: False)
     assert [r.fitted for r in ws.ladder.rungs] == [True, True, True, True]
     ws.complete()
-    eager = Workspace()
-    eager.open(READMISSION)
-    eager.set_outcome(OUTCOME)
-    for predictors in steps:
-        eager.set_predictors(predictors)
+    eager = fitted_one_by_one(steps)
     assert ladder_numbers(ws) == ladder_numbers(eager)
     # Outside reference: statsmodels' formula interface, the likelihood-ratio test of the last step by hand.
     import statsmodels.formula.api as smf
@@ -261,12 +263,8 @@ def test_undo_past_fits_put_off_and_a_change_of_rows_keep_every_test_valid(ws):
     assert [r.fitted for r in ws.ladder.rungs] == [False, False, True, True]
     assert ws.complete() == 3 and ws.ladder.pending == []
     assert {len(r.fit.design.rows) for r in ws.ladder.rungs} == {len(ws.ladder.rows)}
-    eager = Workspace()
-    eager.open(READMISSION)
-    eager.set_outcome(OUTCOME)
-    for predictors in (["age"], ["age", "sex"], ["age", "sex", "discharge_destination"],
-                       ["age", "sex", "discharge_destination", "comorbidity_score"]):
-        eager.set_predictors(predictors)
+    eager = fitted_one_by_one([["age"], ["age", "sex"], ["age", "sex", "discharge_destination"],
+                               ["age", "sex", "discharge_destination", "comorbidity_score"]])
     assert ladder_numbers(ws) == ladder_numbers(eager)
     for late_rung, eager_rung in zip(ws.ladder.rungs[1:], eager.ladder.rungs[1:]):
         late_test, eager_test = late_rung.against_previous, eager_rung.against_previous

@@ -248,15 +248,18 @@ class LogisticFit:
         p = chi2_sf(g, df) if df > 0 else float("nan")
         return LikelihoodRatioTest(g, df, p, n_rows=self.n_used)
 
+    #: Why this kind of fit has no AIC or BIC (said wherever they would be printed); None: they are given.
+    AIC_NOTE: str | None = None
+
     @property
     def aic(self) -> float:
-        """AIC = -2 lnL + 2k."""
-        return self.deviance + 2 * self.n_params
+        """AIC = -2 lnL + 2k (NaN when :attr:`AIC_NOTE` says why it is not given)."""
+        return float("nan") if self.AIC_NOTE else self.deviance + 2 * self.n_params
 
     @property
     def bic(self) -> float:
-        """BIC = -2 lnL + k ln(n)."""
-        return self.deviance + self.n_params * math.log(self.n_used)
+        """BIC = -2 lnL + k ln(n) (NaN when :attr:`AIC_NOTE` says why it is not given)."""
+        return float("nan") if self.AIC_NOTE else self.deviance + self.n_params * math.log(self.n_used)
 
     @property
     def mcfadden_r2(self) -> float:

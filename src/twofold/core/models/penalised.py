@@ -51,16 +51,6 @@ class FirthFit(LogisticFit):
                 "likelihood, which Firth's estimates are not; compare penalised models by their penalised "
                 "likelihood-ratio tests.")
 
-    @property
-    def aic(self) -> float:
-        """Not given (NaN): see :attr:`AIC_NOTE`."""
-        return float("nan")
-
-    @property
-    def bic(self) -> float:
-        """Not given (NaN): see :attr:`AIC_NOTE`."""
-        return float("nan")
-
     @cached_property
     def fitted(self) -> np.ndarray:
         """Predicted risks with the intercept corrected (FLIC), so they average to the event rate."""

@@ -264,16 +264,6 @@ class PooledFit(LogisticFit):
                 "if it had been seen, so their average is not the AIC of the data and its differences between "
                 "models have no known scale; compare pooled models by the pooled tests instead.")
 
-    @property
-    def aic(self) -> float:
-        """Not defined for a pooled fit (see :attr:`AIC_NOTE`): NaN."""
-        return float("nan")
-
-    @property
-    def bic(self) -> float:
-        """Not defined for a pooled fit (see :attr:`AIC_NOTE`): NaN."""
-        return float("nan")
-
     # ---- coefficients -------------------------------------------------
     @cached_property
     def df(self) -> np.ndarray:

@@ -136,7 +136,7 @@ def fit_record(fit: LogisticFit, outcome: str, event, nested: LikelihoodRatioTes
     }
     if penalised:
         record["penalized_log_likelihood"] = clean_number(fit.penalized_llf)
-    if penalised or not math.isfinite(fit.aic):
+    if fit.AIC_NOTE:
         record["aic_note"] = fit.AIC_NOTE  # penalised or pooled: no AIC, and why
     if assessment is not None:
         record["assessment"] = assessment.as_record()
