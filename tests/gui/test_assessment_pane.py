@@ -89,6 +89,14 @@ def test_displayed_assessment_equals_outside_references(qtbot, readmission):
     assert len(sex) == 1
     assert sex[0][1].startswith(f"G = {fmt_num(g, 2)} on 1 degree of freedom")
     assert "likelihood-ratio test" in box.drop_one.text() and "Wald" in box.drop_one.text()
+    # The table the reader sees: one row per predictor, the likelihood-ratio test beside the Wald test.
+    table = box.drop_one_table
+    shown = {table.item(r, 0).text(): (table.item(r, 1).text(), table.item(r, 2).text())
+             for r in range(table.rowCount())}
+    assert set(shown) == set(PREDICTORS)
+    assert shown["sex"][0].startswith(f"G = {fmt_num(g, 2)} on 1 degree of freedom")
+    assert shown["sex"][1] == sex[0][2]
+    assert table.isVisibleTo(box) and table.height() >= table.rowCount() * table.rowHeight(0)
 
     # The most influential records are listed by file row number (1-based).
     assert len(view.influential) == 10
@@ -98,6 +106,11 @@ def test_displayed_assessment_equals_outside_references(qtbot, readmission):
         pm = box.plots[key].pixmap()
         assert pm is not None and not pm.isNull(), key
         assert pm.width() > 100
+    # ...and the reader sees them: laid out at a real size (once they were given no room at all, 0 pixels wide).
+    qtbot.waitUntil(lambda: all(box.plots[k].width() >= 160 for k in box.plots), timeout=WAIT_MS)
+    for key, lab in box.plots.items():
+        assert lab.isVisible() and lab.height() >= 0.6 * lab.width(), key
+        assert lab.pixmap().width() <= lab.width(), key  # shrunk to fit, never cut
 
 
 def test_threshold_box_updates_the_classification_table(qtbot, readmission):

@@ -83,6 +83,38 @@ def test_results_of_an_older_request_arriving_last_never_overwrite_newer(qtbot):
     s.shutdown()
 
 
+def test_a_follow_up_waits_until_the_window_has_shown_its_result(qtbot):
+    """The slower extras of a request (its assessment, say) start only once the window has shown its result, so
+    they never hold the interpreter lock while the window lays it out and paints it; without word from the
+    window they start anyway after a short wait, and stopping the worker releases a waiting follow-up."""
+    from twofold.gui.worker import CoreWorker, Job
+
+    worker = CoreWorker()
+    worker.SHOW_WAIT_S = 60.0  # no quiet fallback here: only the window's word may start the follow-up
+    sent, started = threading.Event(), threading.Event()
+    worker.jobDone.connect(lambda result: None if result.followup else sent.set(), Qt.ConnectionType.DirectConnection)
+    worker.start()
+    try:
+        worker.submit(Job(7, "fit", lambda: {"results": "shown"}, then=lambda: started.set() or {}))
+        assert sent.wait(10)
+        assert not started.wait(0.3)  # sent, but not yet shown: the follow-up waits
+        worker.result_shown(6)  # an older result shown says nothing of this one
+        assert not started.wait(0.3)
+        worker.result_shown(7)
+        assert started.wait(10)
+
+        quick = CoreWorker()
+        quick.SHOW_WAIT_S = 0.05  # the window never answers: the follow-up starts after the wait
+        later = threading.Event()
+        quick.start()
+        quick.submit(Job(1, "fit", lambda: {}, then=lambda: later.set() or {}))
+        assert later.wait(10)
+        quick.stop()
+    finally:
+        worker.stop()
+    assert not worker.isRunning()
+
+
 def test_a_non_binary_outcome_shows_the_core_message(qtbot, window):
     load(qtbot, window, READMISSION)
     with pytest.raises(TwofoldError) as expected:

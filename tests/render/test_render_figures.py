@@ -161,6 +161,27 @@ def test_window_figures_come_from_the_shared_module(result):
     assert out["roc"] == figures.roc_figure(a.roc.fpr, a.roc.tpr, float(a.auc.auc))
 
 
+def test_window_pixels_are_the_pictures_pixels(result):
+    """The window gets each figure as pixels, without a PNG; decoding the PNG of the same drawing with Pillow
+    (outside the project) gives the same pixels, and so does the PNG made from the pixels."""
+    from PIL import Image
+
+    from twofold.render.assessed import assessment_figures
+
+    a = result.assessment
+    raw = assessment_figures(a, raw=True)
+    png = assessment_figures(a)
+    assert set(raw) == set(png) == {"roc", "calibration", "influence"}
+    for key in raw:
+        decoded = Image.open(io.BytesIO(png[key])).convert("RGBA")
+        assert (raw[key].width, raw[key].height) == decoded.size, key
+        assert raw[key].rgba == decoded.tobytes(), key
+        assert Image.open(io.BytesIO(raw[key].png())).convert("RGBA").tobytes() == raw[key].rgba, key
+    # A different drawing gives different pixels: the comparison above can fail.
+    other = figures.roc_figure(a.roc.fpr[::-1], a.roc.tpr, float(a.auc.auc), raw=True)
+    assert other.rgba != raw["roc"].rgba
+
+
 def _imports(path: Path) -> set[str]:
     names = set()
     for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):

@@ -11,7 +11,7 @@ from __future__ import annotations
 from html import escape as esc
 
 from PySide6.QtCore import QSignalBlocker, Qt, Signal
-from PySide6.QtGui import QAction, QFontMetrics, QPixmap
+from PySide6.QtGui import QAction, QFontMetrics, QImage, QPixmap
 from PySide6.QtWidgets import (
     QAbstractItemView, QCheckBox, QComboBox, QDialog, QDoubleSpinBox, QFormLayout, QFrame, QGridLayout, QGroupBox, QHBoxLayout, QHeaderView, QLabel,
     QListWidget, QListWidgetItem, QMenu, QProgressBar, QPushButton, QScrollArea, QSizePolicy, QSpinBox, QSplitter,
@@ -104,7 +104,11 @@ class Picture(QLabel):
     def __init__(self, parent=None):
         super().__init__(parent)
         self._picture = QPixmap()
-        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        # Its own width when there is room, down to 160 pixels when there is not; never more than its own width.
+        # (An "ignored" width let the layout give it none at all: the figures were laid out 0 pixels wide.)
+        policy = QSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Preferred)
+        policy.setHeightForWidth(True)
+        self.setSizePolicy(policy)
 
     def set_picture(self, pixmap: QPixmap) -> None:
         self._picture = pixmap
@@ -140,6 +144,17 @@ class Picture(QLabel):
             width = pm.width()
         self.setPixmap(pm if width == pm.width() else
                        pm.scaledToWidth(width, Qt.TransformationMode.SmoothTransformation))
+
+
+def _pixmap(figure) -> QPixmap:
+    """A drawn figure on screen: from its pixels (a Raster, as the assessment sends them) or from PNG bytes."""
+    pm = QPixmap()
+    if isinstance(figure, (bytes, bytearray)):
+        pm.loadFromData(figure, "PNG")
+    elif figure is not None:
+        image = QImage(figure.rgba, figure.width, figure.height, 4 * figure.width, QImage.Format.Format_RGBA8888)
+        pm = QPixmap.fromImage(image)  # a copy: the image's buffer need not outlive it
+    return pm
 
 
 # ---------------------------------------------------------------------------
@@ -868,6 +883,9 @@ class ResultsPane(QWidget):
         scroll.setFrameShape(QFrame.Shape.NoFrame)
         # Sentences wrap to the pane's width: text never scrolls sideways (a wide table scrolls on its own).
         scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        # The vertical bar is always there, so the text's width never changes when results grow past the pane's
+        # height: otherwise every wrapped sentence was laid out twice, at two widths (up to 45 ms a change).
+        scroll.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOn)
         self.scroll = scroll
         body = QWidget()
         body.setMinimumWidth(0)
@@ -1201,8 +1219,8 @@ class ResultsPane(QWidget):
 class AssessmentSection(QFrame):
     """How good the model is: discrimination, calibration, fit, tests, influence and their figures.
 
-    The numbers and the figures (PNG bytes) are prepared on the worker
-    thread; here they are only set on labels.
+    The numbers and the figures (their pixels) are prepared elsewhere (the
+    assessment process); here they are only set on labels.
     """
 
     def __init__(self, session, parent=None):
@@ -1237,8 +1255,19 @@ class AssessmentSection(QFrame):
         self.more_measures = QCheckBox("More measures of fit (pseudo-R-squared)")
         self.more_measures.setAccessibleName("Show more measures of fit")
         self.more_measures.toggled.connect(self.pseudo.setVisible)
+        # The drop-one tests as a table of their own (laid out by Qt, not as rich text: several times quicker).
+        self.drop_one_table = QTableWidget(0, 4)
+        self.drop_one_table.setAccessibleName("Test of dropping each predictor, one row per predictor")
+        self.drop_one_table.setHorizontalHeaderLabels(("Predictor", "Likelihood-ratio test", "Wald test", ""))
+        self.drop_one_table.verticalHeader().hide()
+        self.drop_one_table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.drop_one_table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
+        self.drop_one_table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.drop_one_table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignLeft)
+        self.drop_one_table.horizontalHeader().setStretchLastSection(True)
+        _help(self.drop_one_table, "wald")
         for w in (self.auc, self.brier, self.calibration, self.hosmer, self.more_measures, self.pseudo,
-                  self.drop_one, self.vif, self.sample, self.influential):
+                  self.drop_one, self.drop_one_table, self.vif, self.sample, self.influential):
             if isinstance(w, QLabel):
                 w.setTextFormat(Qt.TextFormat.RichText)
             b.addWidget(w)
@@ -1300,6 +1329,33 @@ class AssessmentSection(QFrame):
     def _note(text: str) -> str:
         return f"<br><i>{esc(text)}</i>"
 
+    def _fill_drop_one(self, rows, penalised: bool) -> None:
+        """The drop-one tests, one row per predictor, the table as tall as its rows."""
+        table = self.drop_one_table
+        table.setHorizontalHeaderItem(1, QTableWidgetItem("Penalised likelihood-ratio test" if penalised
+                                                          else "Likelihood-ratio test"))
+        table.setRowCount(len(rows))
+        for r, (column, lr, wald, flag) in enumerate(rows):
+            cells = (column, lr, wald, "\u26a0 prefer the likelihood-ratio test here" if flag else "")
+            for c, text in enumerate(cells):
+                table.setItem(r, c, QTableWidgetItem(text))
+        table.resizeColumnsToContents()
+        table.resizeRowsToContents()
+        self._size_drop_one()
+
+    def _size_drop_one(self) -> None:
+        """As tall as its rows, and its scroll bar when the pane is narrower than the table (it then scrolls sideways)."""
+        table = self.drop_one_table
+        height = table.horizontalHeader().height() + table.verticalHeader().length() + 2 * table.frameWidth()
+        if table.horizontalHeader().length() > table.width() - 2 * table.frameWidth():
+            height += table.horizontalScrollBar().sizeHint().height()
+        table.setFixedHeight(height)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if self.drop_one_table.rowCount():
+            self._size_drop_one()
+
     def show_assessment(self, view) -> None:
         self.view = view
         if view is None:
@@ -1320,19 +1376,14 @@ class AssessmentSection(QFrame):
         self.hosmer.setText(f"{esc(view.hl_text)}" + self._note(view.hl_note) + link("hosmer_lemeshow"))
         self.pseudo.setText(esc(view.pseudo_r2_text))
         if view.drop_one:
-            rows = "".join(
-                f"<tr><td>{esc(c)}</td><td>{esc(lr)}</td><td>{esc(w)}</td>"
-                f"<td>{'&#9888; prefer the likelihood-ratio test here' if flag else ''}</td></tr>"
-                for c, lr, w, flag in view.drop_one)
             kind = "penalised likelihood-ratio test" if view.penalised else "likelihood-ratio test"
-            self.drop_one.setText(
-                f"<b>Dropping each predictor in turn</b> ({kind} on the same rows, beside the Wald "
-                "test):<table cellspacing='0' cellpadding='3'><tr><th align='left'>predictor</th>"
-                "<th align='left'>likelihood-ratio test</th><th align='left'>Wald test</th><th></th></tr>"
-                f"{rows}</table>")
+            self.drop_one.setText(f"<b>Dropping each predictor in turn</b> ({kind} on the same rows, beside the "
+                                  "Wald test):")
         else:
             self.drop_one.setText("")
+        self._fill_drop_one(view.drop_one, view.penalised)
         self.drop_one.setVisible(bool(view.drop_one))
+        self.drop_one_table.setVisible(bool(view.drop_one))
         if view.vif:
             parts = [f"{esc(c)} {esc(t)}" + (" &#9888; high" if flagged else "") for c, t, flagged in view.vif]
             self.vif.setText(f"<b>Variance inflation:</b> {'; '.join(parts)}." + self._note(view.vif_note))
@@ -1349,10 +1400,7 @@ class AssessmentSection(QFrame):
                 self.threshold.setValue(view.threshold)
         self.classification.setText(esc(view.classification_text) + "<br><i>" + esc(view.threshold_note) + "</i>")
         for key, lab in self.plots.items():
-            data = view.figures.get(key)
-            pm = QPixmap()
-            if data:
-                pm.loadFromData(data, "PNG")
+            pm = _pixmap(view.figures.get(key))
             lab.set_picture(pm)
             lab.setVisible(not pm.isNull())
         self.plot_note.setText(view.calibration_plot_note)

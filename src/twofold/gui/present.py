@@ -620,8 +620,8 @@ def _pooled_hl_text(hl: dict | None) -> str:
 
 def pooled_assessment_view(index: int, a: dict, fit, figures=None, curves=None) -> AssessmentView:
     """The pooled assessment (the core's record of it, ``Workspace.pooled_assessment``), worded, with the figures of
-    the pooled predictions (``curves``: :func:`twofold.core.models.pooling.pooled_curves`; ``figures``: their PNG
-    bytes) when given."""
+    the pooled predictions (``curves``: :func:`twofold.core.models.pooling.pooled_curves`; ``figures``: their pictures,
+    drawn) when given."""
     lo, hi = a["auc_ci"]
     plot_note = ""
     if curves is not None:

@@ -27,7 +27,7 @@ import dataclasses
 from collections import defaultdict
 from concurrent.futures import ThreadPoolExecutor
 
-from PySide6.QtCore import QObject, Signal
+from PySide6.QtCore import QObject, QTimer, Signal
 
 from twofold.gui.views import Failure, HistoryView
 from twofold.gui.worker import CoreWorker, Job, log_exception, where_logged
@@ -450,6 +450,8 @@ class Session(QObject):
         self._set_busy(bool(self._pending))
         if not result.followup:
             self.requestFinished.emit(result.id)
+            # Once laid out and painted (posted events come before timers), the worker may go on with its extras.
+            QTimer.singleShot(0, lambda job_id=result.id: self._worker.result_shown(job_id))
 
     def _on_assessed(self, job_id: int, view, failure) -> None:
         """The assessment that follows a result: shown only if no newer request has been made since."""
@@ -621,7 +623,7 @@ class Session(QObject):
         if self._floor["assessment"] > job_id:
             return
         try:
-            pictures = pooled_figures(curves)
+            pictures = pooled_figures(curves, raw=True)
         except Exception as exc:  # a drawing failure loses the pictures only: logged, the numbers still shown
             log_exception(exc)
             pictures = {}
@@ -673,7 +675,7 @@ class Session(QObject):
 
         result = assess_fit(study, fit, threshold=threshold, checkpoint=checkpoint)
         checkpoint()
-        return result, figures.assessment_figures(result)
+        return result, figures.assessment_figures(result, raw=True)
 
     def _process_pool(self):
         """The assessment process (started on first use; assessment thread only), or None."""

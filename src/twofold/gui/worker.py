@@ -6,6 +6,12 @@ they were submitted, except that a job with a ``coalesce`` key replaces any
 job with the same key still waiting: when the user ticks quickly only the
 latest fit request runs.  Every job carries an increasing id so the GUI can
 discard results of a request that a newer one has superseded.
+
+A job's follow-up (the slower extras) starts only once the window has shown
+the job's result, or after :attr:`CoreWorker.SHOW_WAIT_S` at most: work begun
+meanwhile would hold the interpreter lock while the window lays the result
+out and paints it, and on two cores that doubled the time the window did not
+answer.
 """
 
 from __future__ import annotations
@@ -87,8 +93,13 @@ class CoreWorker(QThread):
 
     jobDone = Signal(object)
 
+    #: Longest wait for the window to show a result before its follow-up starts anyway.
+    SHOW_WAIT_S = 0.25
+
     def __init__(self, parent=None):
         super().__init__(parent)
+        self._shown = threading.Condition()
+        self._shown_id = 0
         self._cond = threading.Condition()
         self._queue: deque[Job] = deque()
         self._stop = False
@@ -114,7 +125,14 @@ class CoreWorker(QThread):
         with self._cond:
             return len(self._queue) + (self.running_id is not None)
 
+    def result_shown(self, job_id: int) -> None:
+        """The window has shown (laid out and painted) the result of ``job_id``: its follow-up may start."""
+        with self._shown:
+            self._shown_id = max(self._shown_id, job_id)
+            self._shown.notify_all()
+
     def stop(self, wait_ms: int = 5000) -> None:
+        self.result_shown(1 << 62)
         with self._cond:
             self._stop = True
             self._queue.clear()
@@ -150,6 +168,8 @@ class CoreWorker(QThread):
                         self.running_id = None
             self.jobDone.emit(result)
             if job.then is not None:
+                with self._shown:
+                    self._shown.wait_for(lambda: self._shown_id >= job.id, self.SHOW_WAIT_S)
                 self._run_followup(job, TwofoldError)
 
     def _run_followup(self, job: Job, user_error) -> None:

@@ -5,8 +5,9 @@ The window works out how good the model shown is in a separate process
 drawing then never compete with the window's thread for the interpreter
 lock, which on a two-core machine was the cause of the window's stalls.  The
 process receives the read-only fit and returns the core
-:class:`~twofold.core.assessing.assessment.Assessment` with the PNG bytes of
-its figures.  Nothing here imports Qt.
+:class:`~twofold.core.assessing.assessment.Assessment` with its figures
+(their pixels, :class:`~twofold.render.figures.Raster`, for the window).
+Nothing here imports Qt.
 """
 
 from __future__ import annotations
@@ -14,28 +15,30 @@ from __future__ import annotations
 from twofold.render import figures as shared
 
 
-def assessment_figures(result) -> dict:
-    """PNG bytes of the ROC curve, the calibration plot and the influence plot of a core Assessment.
+def assessment_figures(result, raw: bool = False) -> dict:
+    """PNG bytes of the ROC curve, the calibration plot and the influence plot of a core Assessment (with
+    ``raw``, their pixels as :class:`~twofold.render.figures.Raster`).
 
     Keys ``roc`` and ``calibration``, and ``influence`` when influence was computed.
     """
-    out = curve_figures(result.roc, float(result.auc.auc), result.groups, result.smooth)
+    out = curve_figures(result.roc, float(result.auc.auc), result.groups, result.smooth, raw=raw)
     if result.influence is not None:
-        out["influence"] = shared.influence_figure(result.influence.cooks_distance, result.rows)
+        out["influence"] = shared.influence_figure(result.influence.cooks_distance, result.rows, raw=raw)
     return out
 
 
-def pooled_figures(curves) -> dict:
-    """PNG bytes of the ROC curve and calibration plot of a pooled fit's pooled predictions
+def pooled_figures(curves, raw: bool = False) -> dict:
+    """PNG bytes (or with ``raw`` pixels) of the ROC curve and calibration plot of a pooled fit's pooled predictions
     (:func:`twofold.core.models.pooling.pooled_curves`), each labelled as such; keys ``roc`` and ``calibration``."""
     from twofold.core.models.pooling import POOLED_LABEL
 
-    return curve_figures(curves.roc, curves.auc, curves.groups, curves.smooth, label=POOLED_LABEL)
+    return curve_figures(curves.roc, curves.auc, curves.groups, curves.smooth, label=POOLED_LABEL, raw=raw)
 
 
-def curve_figures(roc, auc: float, groups, smooth, label: str | None = None) -> dict:
-    """PNG bytes of an ROC curve and a calibration plot (risk groups, smoothed curve), keys ``roc``, ``calibration``."""
-    out = {"roc": shared.roc_figure(roc.fpr, roc.tpr, auc, label=label)}
+def curve_figures(roc, auc: float, groups, smooth, label: str | None = None, raw: bool = False) -> dict:
+    """PNG bytes (or with ``raw`` pixels) of an ROC curve and a calibration plot (risk groups, smoothed curve),
+    keys ``roc``, ``calibration``."""
+    out = {"roc": shared.roc_figure(roc.fpr, roc.tpr, auc, label=label, raw=raw)}
     cal = {}
     if groups is not None and len(groups.n):
         cal = {"mean_predicted": groups.mean_predicted, "observed": groups.observed,
@@ -43,7 +46,7 @@ def curve_figures(roc, auc: float, groups, smooth, label: str | None = None) -> 
     if smooth is not None:
         cal.update(smooth_predicted=smooth.predicted, smooth_observed=smooth.observed,
                    smooth_unsteady=bool(smooth.unreliable))
-    out["calibration"] = shared.calibration_figure(**cal, label=label)
+    out["calibration"] = shared.calibration_figure(**cal, label=label, raw=raw)
     return out
 
 
@@ -56,7 +59,8 @@ class Abandoned(Exception):
 
 
 def assess_and_draw(fit, threshold=None, ticket=None):
-    """``(Assessment, figures)`` of a read-only fit: everything the window's assessment section shows.
+    """``(Assessment, figures)`` of a read-only fit: everything the window's assessment section shows, the
+    figures as pixels (:class:`~twofold.render.figures.Raster`).
 
     In an assessment process, work on ``ticket`` stops between its steps
     (raising :class:`Abandoned`) once a newer ticket is wanted.
@@ -69,7 +73,7 @@ def assess_and_draw(fit, threshold=None, ticket=None):
 
     result = assess_fit(None, fit, threshold=threshold, checkpoint=checkpoint)
     checkpoint()
-    return result, assessment_figures(result)
+    return result, assessment_figures(result, raw=True)
 
 
 #: Arrays at least this large (bytes) go to the assessment process through shared memory, not the pipe.
