@@ -222,26 +222,33 @@ def test_fits_put_off_by_quick_ticks_give_the_same_ladder_as_fitting_each_at_onc
     assert ws.ladder.rungs[2].fit.llf == pytest.approx(late.llf, rel=1e-9)
 
 
-def test_a_tick_whose_parent_was_put_off_is_put_off_too_when_a_newer_one_came_meanwhile(ws):
-    # The burst: tick 2 put off; tick 3 starts fitting (its parent, tick 2, first); a newer tick (4) arrives while
-    # tick 2 is fitted, so tick 3 is put off as well and tick 4 is the one fitted and shown.
+def test_a_tick_whose_parent_was_put_off_is_fitted_with_it_at_once_or_given_up_for_a_newer_one(ws):
+    # The burst: tick 2 put off; tick 3 needs tick 2's fit for its nested test, so the two are fitted at once (on
+    # two threads), asking between Newton steps whether a newer tick came.
     steps = [["age"], ["age", "sex"], ["age", "sex", "prior_admissions"],
-             ["age", "sex", "prior_admissions", "discharge_destination"]]
+             ["age", "sex", "prior_admissions", "discharge_destination"],
+             ["age", "sex", "prior_admissions", "discharge_destination", "followup_call"]]
     ws.set_predictors(steps[0])
     ws.set_predictors(steps[1], defer=True)
     asked = []
 
     def newer():
-        asked.append([r.fitted for r in ws.ladder.rungs])
-        return True
+        asked.append(1)
+        return len(asked) > 2  # a newer tick comes while they are being fitted
 
     ws.set_predictors(steps[2], defer=newer)
-    # Asked once, after the parent's fit was made and before its own.
-    assert asked == [[True, True]]
-    assert [r.fitted for r in ws.ladder.rungs] == [True, True, False]
+    # Both fits were given up as soon as it came: tick 3 joins the ladder put off, as tick 2 stays.
+    assert 3 <= len(asked) <= 4
+    assert [r.fitted for r in ws.ladder.rungs] == [True, False, False]
+    # The next tick finds its parent put off too: both fitted at once, and nobody newer came.
     ws.set_predictors(steps[3], defer=lambda: False)
-    assert [r.fitted for r in ws.ladder.rungs] == [True, True, True, True]
+    assert [r.fitted for r in ws.ladder.rungs] == [True, False, True, True]
+    assert ws.ladder.pending == [1, 2]  # tick 3's nested test (against tick 2) and tick 2 are still to come
+    # A tick whose parent is fitted: its own fit asks too, and is given up the same way.
+    ws.set_predictors(steps[4], defer=lambda: True)
+    assert [r.fitted for r in ws.ladder.rungs] == [True, False, True, True, False]
     ws.complete()
+    assert ws.ladder.pending == []
     eager = fitted_one_by_one(steps)
     assert ladder_numbers(ws) == ladder_numbers(eager)
     # Outside reference: statsmodels' formula interface, the likelihood-ratio test of the last step by hand.
@@ -251,6 +258,41 @@ def test_a_tick_whose_parent_was_put_off_is_put_off_too_when_a_newer_one_came_me
     small = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions", frame).fit(disp=0)
     large = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions + discharge_destination", frame).fit(disp=0)
     assert ws.ladder.rungs[3].against_previous.g == pytest.approx(2 * (large.llf - small.llf), rel=1e-7)
+    largest = smf.logit(f"{OUTCOME} ~ age + sex + prior_admissions + discharge_destination + followup_call",
+                        pd.read_csv(READMISSION)).fit(disp=0)
+    assert ws.ladder.rungs[4].fit.llf == pytest.approx(largest.llf, rel=1e-9)
+
+
+def test_two_fits_at_once_give_each_its_own_warnings_and_numbers(tmp_path):
+    """Fitted at once on two threads, a model that separates the outcome still gets its own separation notice
+    (warnings are watched around both; when any come, both are fitted again one after the other), and both
+    fits equal fits made one at a time; statsmodels' formula interface is the outside reference."""
+    import statsmodels.formula.api as smf
+
+    from twofold.core.models.ladder import Deferred
+
+    rng = np.random.default_rng(7)
+    n = 400
+    frame = pd.DataFrame({"x": rng.normal(size=n), "z": rng.normal(size=n)})
+    frame["y"] = (frame["x"] + 0.8 * rng.normal(size=n) > 0).astype(int)
+    frame["marker"] = np.where(frame["y"] == 1, "a", "b")  # separates the outcome completely
+    path = tmp_path / "sep.csv"
+    frame.to_csv(path, index=False)
+    w = Workspace()
+    w.open(path)
+    w.set_outcome("y")
+    study = w.study
+    for parent_names, own_names in ((["x", "marker"], ["x", "z"]), (["x"], ["x", "z"])):
+        parent = Deferred(lambda watch=True, stop=None, names=parent_names:
+                          study.fit(names, watch_warnings=watch, stop=stop))
+        own = parent.fit_beside(lambda watch, stop, names=own_names: study.fit(names, watch_warnings=watch, stop=stop))
+        alone_parent, alone_own = study.fit(parent_names), study.fit(own_names)
+        assert [n.code for n in parent.fit.notices] == [n.code for n in alone_parent.notices]
+        assert [n.code for n in own.notices] == [n.code for n in alone_own.notices]
+        assert own.llf == pytest.approx(alone_own.llf, rel=1e-10)
+        assert own.llf == pytest.approx(smf.logit("y ~ x + z", frame).fit(disp=0).llf, rel=1e-8)
+        assert np.allclose(parent.fit.params, alone_parent.params, rtol=1e-8, atol=1e-8)
+    assert "separation" in [n.code for n in study.fit(["x", "marker"]).notices]  # the case above did separate
 
 
 def test_undo_past_fits_put_off_and_a_change_of_rows_keep_every_test_valid(ws):

@@ -199,8 +199,8 @@ class Session(QObject):
             # Asked again once the model this one is built from is fitted, if it was put off.
             self.workspace.set_predictors(predictors, defer=newer)
             rung = self.workspace.current_rung
-            if rung is not None and not rung.fitted:
-                return self._views(())
+            if (rung is not None and not rung.fitted) or newer():
+                return self._views(())  # a newer tick came meanwhile: its display is the one shown
             return self._views(("results",))
 
         job_id = self._submit("fit", job, facets=("results",), on_error=self._snapshot_results)

@@ -76,6 +76,20 @@ def one_blas_thread():
     return _OneBlasThread()
 
 
+class FitStopped(Exception):
+    """A fit given up between two Newton steps because its ``stop()`` said so (a newer request made it pointless).
+
+    Never shown to a user: whoever passes ``stop`` catches it (:meth:`twofold.core.models.ladder.Ladder.add`).
+    """
+
+
+def _stopper(stop):
+    def callback(_params):
+        if stop():
+            raise FitStopped
+    return callback
+
+
 def null_log_likelihood(y: np.ndarray) -> float:
     """Log-likelihood of the constant-only model: n1 ln(n1/n) + n0 ln(n0/n)."""
     n = len(y)
@@ -546,7 +560,7 @@ def from_working(a: np.ndarray, cov_a: np.ndarray, centre: np.ndarray, spread: n
 
 
 def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None,
-                 watch_warnings: bool = True) -> LogisticFit:
+                 watch_warnings: bool = True, stop=None) -> LogisticFit:
     """Fit a logistic model by maximum likelihood (statsmodels ``Logit``, Newton).
 
     Parameters
@@ -568,6 +582,8 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
         several threads at once, whose caller watches the warnings around
         all of them (the warning filters are one per process, so entries
         and exits on two threads would restore each other's).
+    stop : callable, optional
+        Asked after each Newton step; true gives the fit up (:class:`FitStopped`).
 
     Returns
     -------
@@ -628,7 +644,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
         model = Logit(y, Xw, check_rank=False, hasconst=False)
         try:
             res = model.fit(method="newton", start_params=start_w, maxiter=maxiter, disp=0,
-                            warn_convergence=False)
+                            warn_convergence=False, callback=None if stop is None else _stopper(stop))
             params = np.asarray(res.params, dtype=float)
             cov = np.asarray(res.normalized_cov_params, dtype=float)
             converged = bool(res.mle_retvals.get("converged", False))

@@ -16,14 +16,15 @@ import numpy as np
 
 from twofold.core.errors import ModelError, Notice
 from twofold.core.events import Event
-from twofold.core.models.fit import LikelihoodRatioTest, LogisticFit, nested_test
+from twofold.core.models.fit import FitStopped, LikelihoodRatioTest, LogisticFit, nested_test
 
 
 class Deferred:
     """A rung's fit and nested test, put off until first read (shared by the copies undo keeps: made once).
 
-    ``make()`` returns the fit; ``test(fit)`` the nested test against the rung it was built from (which reads
-    that rung's fit, but not its test: reading one fit never makes a chain of them).
+    ``make(watch=True, stop=None)`` returns the fit (``watch=False`` when fits run on two threads at once, and
+    ``stop`` to give it up, see :func:`~twofold.core.models.fit.fit_logistic`); ``test(fit)`` the nested test against the rung it was built
+    from (which reads that rung's fit, but not its test: reading one fit never makes a chain of them).
     """
 
     _UNKNOWN = object()
@@ -41,6 +42,36 @@ class Deferred:
         if self.fit is None:
             self.fit = self._make()
         return self.fit
+
+    def fit_beside(self, make_other, stop=None):
+        """Make this fit and another at once, on two threads; returns the other's fit (``make_other(watch, stop)``).
+
+        statsmodels' Newton steps are numpy's linear algebra, which lets go of the interpreter lock, so the two
+        take little longer than one.  Warnings are watched around both; should any come (statsmodels' word on
+        separation, which must reach the fit it belongs to), both are made again, one after the other.  A fit
+        already made is not made again.  Should ``stop()`` become true, both are given up
+        (:class:`~twofold.core.models.fit.FitStopped`) and this one stays put off.
+        """
+        import warnings
+        from concurrent.futures import ThreadPoolExecutor
+
+        from twofold.core.models.fit import one_blas_thread
+
+        if self.fit is not None:
+            return make_other(True, stop)
+        with one_blas_thread():
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                with ThreadPoolExecutor(max_workers=1, thread_name_prefix="twofold-fit") as pool:
+                    mine = pool.submit(self._make, False, stop)
+                    try:
+                        other = make_other(False, stop)
+                    finally:
+                        fit = mine.result()  # waits for it either way; its failure is the ladder's to report
+            if caught:
+                fit, other = self._make(True, stop), make_other(True, stop)
+        self.fit = fit
+        return other
 
     def test_now(self):
         if self._against is self._UNKNOWN:
@@ -206,8 +237,10 @@ class Ladder:
         stay as they are): a quick succession of ticks then shows the newest
         model first, and the ones in between are fitted afterwards
         (:meth:`complete`) or whenever something reads them.  ``defer`` may
-        be a callable, asked after the fit of the model this one is built
-        from is made (when that was put off): true puts this fit off too.
+        be a callable, asked between the Newton steps of this fit (and of the
+        fit of the model it is built from, when that was put off: the two are
+        then made at once): true gives them up and puts this one off too, so
+        the newer tick never waits for a fit it no longer needs.
         """
         predictors = tuple(self.study.column(p) for p in predictors)
         union = list(dict.fromkeys(self.used_predictors + list(predictors)))
@@ -218,18 +251,32 @@ class Ladder:
         notices = []
         previous = self.rungs[self.current] if self.current is not None else None
         changed = self.rows is not None and not np.array_equal(rows, self.rows)
+        made = None
         if callable(defer):
-            # Asked once the model this one is built from is fitted (its nested test needs that fit either way):
-            # a newer tick that came meanwhile puts this one off rather than wait behind its fit.
-            if not changed and previous is not None and not previous.fitted:
-                previous.fit  # noqa: B018  (makes the put-off fit)
-            defer = bool(defer())
+            newer, defer = defer, False
+            if not changed and previous is not None:
+                names = self.study.check_predictors(predictors)
+                try:
+                    if not previous.fitted:
+                        # That fit was put off: it and this one are made at once, on two threads, so the tick
+                        # shows after about one fit's time rather than two (from the newest fit made, as the
+                        # put-off one would be); its nested test needs that fit either way.
+                        start = self._start_near(previous)
+                        made = previous.deferred.fit_beside(
+                            lambda watch, stop: self.study.fit(names, rows=rows, start=start, watch_warnings=watch,
+                                                               stop=stop), stop=newer)
+                    else:
+                        made = self.study.fit(names, rows=rows, start=previous.fit, stop=newer)
+                except FitStopped:
+                    # A newer tick came meanwhile: it would wait behind fits it no longer needs.
+                    defer = True
         if defer and not changed and previous is not None:
             import copy
 
             names, before = self.study.check_predictors(predictors), copy.copy(previous)  # (as it stands now)
             rung = Rung(predictors, previous=self.current, deferred=Deferred(
-                lambda: self.study.fit(names, rows=rows, start=self._start_near(before)),
+                lambda watch=True, stop=None: self.study.fit(names, rows=rows, start=self._start_near(before),
+                                                             watch_warnings=watch, stop=stop),
                 lambda fit: self._test(before, Rung(predictors, fit))))
             rung.added = tuple(p for p in predictors if p not in previous.predictors)
             rung.removed = tuple(p for p in previous.predictors if p not in predictors)
@@ -240,7 +287,7 @@ class Ladder:
             return rung
         # Fit the new model first: if it fails, the ladder is left exactly as it was.
         start = previous.fit if previous is not None and not changed else None
-        fit = self.study.fit(list(predictors), rows=rows, start=start)
+        fit = made if made is not None else self.study.fit(list(predictors), rows=rows, start=start)
         if changed:
             notices.append(Notice(
                 "rows_dropped",
@@ -290,8 +337,8 @@ class Ladder:
 
             for r in self.rungs:
                 start = r.fit if r.fitted else None
-                r.put_off(Deferred(lambda names=list(r.predictors), start=start:
-                                   self.study.fit(names, rows=rows, start=start)))
+                r.put_off(Deferred(lambda watch=True, stop=None, names=list(r.predictors), start=start:
+                                   self.study.fit(names, rows=rows, start=start, watch_warnings=watch, stop=stop)))
             for r in self.rungs:
                 if r.previous is not None:
                     before = copy.copy(self.rungs[r.previous])

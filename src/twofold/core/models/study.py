@@ -336,7 +336,7 @@ class Study:
         return assemble([self.block(p, linear=p in linear) for p in predictors], self._require_outcome(), rows)
 
     def fit(self, predictors, rows: np.ndarray | None = None, start=None, firth: bool = False,
-            linear=(), watch_warnings: bool = True) -> LogisticFit:
+            linear=(), watch_warnings: bool = True, stop=None) -> LogisticFit:
         """Fit the logistic model of the outcome on the named predictors.
 
         Parameters
@@ -352,6 +352,9 @@ class Study:
             Predictors to enter as straight lines even if a spline is set.
         watch_warnings : bool
             See :func:`~twofold.core.models.fit.fit_logistic` (False only for fits on several threads at once).
+        stop : callable, optional
+            Asked between Newton steps; true gives the fit up (:class:`~twofold.core.models.fit.FitStopped`).
+            Not for Firth fits.
         """
         predictors = [self.column(p) for p in predictors]
         if self.outcome in predictors:
@@ -373,7 +376,7 @@ class Study:
         else:
             if isinstance(start, LogisticFit):
                 start = start.start_for(design)
-            fit = fit_logistic(design, start=start, dropped=dropped, watch_warnings=watch_warnings)
+            fit = fit_logistic(design, start=start, dropped=dropped, watch_warnings=watch_warnings, stop=stop)
         account = self.account([p for p in predictors if ":" not in p], design.rows)
         fit.account = account
         lost = self.n_rows - account.rows_used
