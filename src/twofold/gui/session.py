@@ -24,6 +24,7 @@ under the results of the same request.
 from __future__ import annotations
 
 import dataclasses
+import threading
 from collections import defaultdict
 from concurrent.futures import ThreadPoolExecutor
 
@@ -643,7 +644,7 @@ class Session(QObject):
         from concurrent.futures import TimeoutError as StillRunning
         from concurrent.futures.process import BrokenProcessPool
 
-        from twofold.render.assessed import Abandoned, assess_and_draw_packed, pack, release
+        from twofold.render.assessed import Abandoned, assess_and_draw_packed, discard, pack, release, unpack_answer
 
         pool = self._process_pool()
         if pool is not None:
@@ -655,9 +656,17 @@ class Session(QObject):
                     release(blocks)
                     raise
                 future.add_done_callback(lambda _: release(blocks))  # done, failed or withdrawn
+                gave_up = threading.Event()
+
+                def tidy(f):
+                    # An answer nobody will read: its arrays' shared memory is freed (an answer read frees its own).
+                    if gave_up.is_set() and not f.cancelled() and f.exception() is None:
+                        discard(f.result()[1])
+
+                future.add_done_callback(tidy)
                 while True:
                     try:
-                        return future.result(timeout=0.05)
+                        return unpack_answer(future.result(timeout=0.05))
                     except Abandoned:
                         raise _Superseded from None
                     except StillRunning:
@@ -666,6 +675,9 @@ class Session(QObject):
                         except _Superseded:
                             future.cancel()
                             self._wanted_from.value = self._floor["assessment"]  # the process stops too
+                            gave_up.set()
+                            if future.done():
+                                tidy(future)
                             raise
             except (BrokenProcessPool, OSError, RuntimeError) as exc:
                 log_exception(exc)

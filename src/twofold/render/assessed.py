@@ -80,14 +80,16 @@ def assess_and_draw(fit, threshold=None, ticket=None):
 SHARED_FROM = 1 << 20
 
 
-def pack(obj) -> tuple:
+def pack(obj, take: bool = False) -> tuple:
     """``(bytes, blocks)``: ``obj`` pickled with its large arrays placed in shared memory.
 
     Pickling a fit of 200,000 rows copies about 40 MB while holding the
     interpreter lock (about 50 ms, and five times that at a million rows), so
     the window could not answer meanwhile; a copy into shared memory is made
     by numpy without the lock.  The caller keeps ``blocks`` until the work is
-    done or withdrawn, then gives them to :func:`release`.
+    done or withdrawn, then gives them to :func:`release`.  With ``take``,
+    whoever unpickles the bytes frees each block once its array is copied out
+    (the assessment's answer to the window: :func:`assess_and_draw_packed`).
     """
     import io
     import pickle
@@ -105,7 +107,7 @@ def pack(obj) -> tuple:
             block = shared_memory.SharedMemory(create=True, size=o.nbytes)
             blocks.append(block)
             np.copyto(np.ndarray(o.shape, o.dtype, buffer=block.buf, order=order), o)
-            return _unpack_array, (block.name, o.shape, o.dtype.str, order)
+            return _unpack_array, (block.name, o.shape, o.dtype.str, order, take)
 
     out = io.BytesIO()
     try:
@@ -126,8 +128,8 @@ def release(blocks) -> None:
             pass
 
 
-def _unpack_array(name, shape, dtype, order):
-    """In the assessment process: an array of :func:`pack`, copied out of its shared memory."""
+def _unpack_array(name, shape, dtype, order, take=False):
+    """An array of :func:`pack`, copied out of its shared memory (freed then, with ``take``)."""
     from multiprocessing import shared_memory
 
     import numpy as np
@@ -137,13 +139,53 @@ def _unpack_array(name, shape, dtype, order):
         return np.ndarray(shape, np.dtype(dtype), buffer=block.buf, order=order).copy(order="K")
     finally:
         block.close()
+        if take:
+            block.unlink()
 
 
 def assess_and_draw_packed(packed: bytes, threshold=None, ticket=None):
-    """:func:`assess_and_draw` of a fit sent by :func:`pack`."""
+    """:func:`assess_and_draw` of a fit sent by :func:`pack`, answered the same way: ``(bytes, names)``.
+
+    The answer's large arrays (per-record influence, the ROC curve's points:
+    about 50 MB at a million rows) wait in shared memory, so that receiving
+    them never holds the window's interpreter lock for long;
+    :func:`unpack_answer` reads them and frees their memory, :func:`discard`
+    frees the memory of an answer no longer wanted.
+    """
     import pickle
 
-    return assess_and_draw(pickle.loads(packed), threshold, ticket)
+    answer = assess_and_draw(pickle.loads(packed), threshold, ticket)
+    data, blocks = pack(answer, take=True)
+    for block in blocks:
+        block.close()  # closed here, freed by whoever reads them
+    return data, [block.name for block in blocks]
+
+
+def unpack_answer(answer):
+    """In the window's process: ``(Assessment, figures)`` from :func:`assess_and_draw_packed`, its memory freed."""
+    import pickle
+
+    data, names = answer
+    try:
+        return pickle.loads(data)
+    finally:
+        discard(names)  # any block a failed read left behind
+
+
+def discard(names) -> None:
+    """Free the shared memory of an answer (blocks already read and freed are passed over)."""
+    from multiprocessing import shared_memory
+
+    for name in names:
+        try:
+            block = shared_memory.SharedMemory(name=name)
+        except (FileNotFoundError, OSError):
+            continue
+        try:
+            block.close()
+            block.unlink()
+        except (FileNotFoundError, OSError):
+            pass
 
 
 def start_quietly(wanted_from=None) -> None:
