@@ -97,13 +97,13 @@ def _hat_and_cov(X: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     from scipy.linalg import cho_factor, cho_solve
 
     A = X * np.sqrt(w)[:, None]
-    info = A.T @ A
+    info = np.dot(A.T, A)
     try:
         factor = cho_factor(info, lower=True)
         cov = cho_solve(factor, np.eye(info.shape[0]))
     except np.linalg.LinAlgError:
         cov = np.linalg.pinv(info)
-    h = np.einsum("ij,ij->i", A @ cov, A)
+    h = np.einsum("ij,ij->i", np.dot(A, cov), A)
     return h, cov
 
 
@@ -147,7 +147,7 @@ def influence_measures(X, y, params, cov=None) -> InfluenceMeasures:
             "pass the estimates of the fit being checked."
         )
     k = X.shape[1]
-    eta = X @ params
+    eta = np.dot(X, params)
     p = expit(eta)
     w = p * expit(-eta)  # p(1 - p) without cancellation near 0 or 1
     if cov is not None:
@@ -158,7 +158,7 @@ def influence_measures(X, y, params, cov=None) -> InfluenceMeasures:
         if cov is None:
             h, _ = _hat_and_cov(X, w)
         else:
-            h = np.einsum("ij,ij->i", X @ cov, X) * w
+            h = np.einsum("ij,ij->i", np.dot(X, cov), X) * w
         resid = y - p
         pearson = resid / np.sqrt(w)
         # -log of the probability of what happened: log(1 + e^-eta) for events, log(1 + e^eta) otherwise.

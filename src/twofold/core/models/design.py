@@ -275,7 +275,7 @@ def centred_gram(X: np.ndarray) -> np.ndarray:
     sums = np.zeros(k)
     for start in range(0, n, GRAM_CHUNK):
         chunk = X[start:start + GRAM_CHUNK, 1:] - shift
-        total += chunk.T @ chunk
+        total += np.dot(chunk.T, chunk)
         sums += chunk.sum(axis=0)
     mean = sums / n
     return total / n - np.outer(mean, mean)
@@ -316,7 +316,7 @@ def _aliased(X: np.ndarray, tol: float):
     n, p = X.shape
     # One cross-product of the raw columns serves whenever no column's mean dwarfs its spread; otherwise
     # E[x^2] - E[x]^2 would lose the variance to cancellation, and the centred pass is made instead.
-    gram = X.T @ X / max(n, 1)
+    gram = np.dot(X.T, X) / max(n, 1)
     mean = gram[0, 1:]
     cov = gram[1:, 1:] - np.outer(mean, mean)
     if not np.isfinite(gram).all():
@@ -339,7 +339,7 @@ def _aliased(X: np.ndarray, tol: float):
                 coef = np.linalg.solve(sub, cross)
             except np.linalg.LinAlgError:
                 coef = np.linalg.lstsq(sub, cross, rcond=None)[0]
-            resid = var_c - cross @ coef
+            resid = var_c - np.dot(cross, coef)
         else:
             resid = var_c
         if resid <= tol * var_c:

@@ -197,7 +197,7 @@ class _Point:
     __slots__ = ("beta", "p", "llf", "logdet", "pl", "h", "R", "score")
 
     def __init__(self, X: np.ndarray, y: np.ndarray, offset: np.ndarray, beta: np.ndarray):
-        eta = X @ beta + offset
+        eta = np.dot(X, beta) + offset
         p = expit(eta)
         w = p * expit(-eta)  # p(1 - p) without cancellation near 0 or 1
         A = X * np.sqrt(w)[:, None]
@@ -212,7 +212,7 @@ class _Point:
         self.pl = self.llf + 0.5 * logdet
         self.h = h
         self.R = R
-        self.score = X.T @ (y - p + self.h * (0.5 - p))
+        self.score = np.dot(X.T, y - p + self.h * (0.5 - p))
 
 
 def _factor_and_hat(A: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -227,7 +227,7 @@ def _factor_and_hat(A: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     from scipy.linalg import solve_triangular
 
     try:
-        L = np.linalg.cholesky(A.T @ A)
+        L = np.linalg.cholesky(np.dot(A.T, A))
     except np.linalg.LinAlgError:
         Q, R = np.linalg.qr(A)
         return R, np.einsum("ij,ij->i", Q, Q)
@@ -238,7 +238,7 @@ def _factor_and_hat(A: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 def _free_information(R: np.ndarray, free: np.ndarray) -> np.ndarray:
     """The free-coefficient block of X'WX = R'R."""
     Rf = R[:, free]
-    return Rf.T @ Rf
+    return np.dot(Rf.T, Rf)
 
 
 def _solve_spd(A: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -641,7 +641,7 @@ def flic(X, y, maxiter: int = 100, tol: float = 1e-8) -> FlicResult:
             "would be infinite; the correction needs both outcomes to occur."
         )
     firth = _firth_core(X, y, offset, {}, None, maxiter, tol)
-    slopes_lp = X[:, 1:] @ firth.params[1:]
+    slopes_lp = np.dot(X[:, 1:], firth.params[1:])
     base = math.log(events / (n - events))  # logit of the event rate
 
     # The intercept score is increasing in b0; these two values bracket the

@@ -298,7 +298,7 @@ class LogisticFit:
     @cached_property
     def linear_predictor(self) -> np.ndarray:
         """X b on the used rows."""
-        return self.used_X @ self._params
+        return np.dot(self.used_X, self._params)
 
     @cached_property
     def fitted(self) -> np.ndarray:
@@ -336,7 +336,7 @@ class LogisticFit:
         b = self._params[idx]
         v = self._cov[np.ix_(idx, idx)]
         try:
-            return float(b @ np.linalg.solve(v, b))
+            return float(np.dot(b, np.linalg.solve(v, b)))
         except np.linalg.LinAlgError:
             return float("nan")
 
@@ -451,10 +451,10 @@ def _separation_suspects(design: Design, X: np.ndarray, y: np.ndarray, params, k
         from scipy.special import expit
 
         for _ in range(8):
-            p = expit(X @ b)
+            p = expit(np.dot(X, b))
             w = p * (1 - p)
-            h = (X * w[:, None]).T @ X
-            g = X.T @ (y - p)
+            h = np.dot((X * w[:, None]).T, X)
+            g = np.dot(X.T, y - p)
             try:
                 step = np.linalg.lstsq(h, g, rcond=None)[0]
             except np.linalg.LinAlgError:
@@ -541,7 +541,7 @@ def to_working(b: np.ndarray, centre: np.ndarray, spread: np.ndarray) -> np.ndar
     b = np.asarray(b, dtype=float)
     a = np.empty_like(b)
     a[1:] = b[1:] * spread
-    a[0] = b[0] + float(b[1:] @ centre)
+    a[0] = b[0] + float(np.dot(b[1:], centre))
     return a
 
 
@@ -556,7 +556,7 @@ def from_working(a: np.ndarray, cov_a: np.ndarray, centre: np.ndarray, spread: n
     T[0, 0] = 1.0
     T[0, 1:] = -centre / spread
     T[np.arange(1, k), np.arange(1, k)] = 1.0 / spread
-    return T @ a, T @ cov_a @ T.T
+    return np.dot(T, a), np.linalg.multi_dot([T, cov_a, T.T])
 
 
 def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[int] | None = None,
@@ -655,9 +655,9 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
             params, converged, iterations = start_w, False, 0
             from scipy.special import expit
 
-            p = expit(Xw @ params)
+            p = expit(np.dot(Xw, params))
             llf = float(np.sum(y * np.log(np.clip(p, 1e-300, 1)) + (1 - y) * np.log(np.clip(1 - p, 1e-300, 1))))
-            h = (Xw * (p * (1 - p))[:, None]).T @ Xw
+            h = np.dot((Xw * (p * (1 - p))[:, None]).T, Xw)
             cov = np.linalg.pinv(h)
     if scaling is not None:
         params, cov = from_working(params, cov, *scaling)
@@ -668,7 +668,7 @@ def fit_logistic(design: Design, start=None, maxiter: int = 35, dropped: list[in
 
     from scipy.special import expit
 
-    fitted = expit(X @ params)
+    fitted = expit(np.dot(X, params))
     empty, diverging = _separation_suspects(design, X, y, params, [names[j] for j in kept], converged, fitted)
     suspects = list(dict.fromkeys(empty + diverging))
     complete_sep = (warned_sep or bool(suspects)) and separates_completely(X, y, fitted)
@@ -739,7 +739,7 @@ def log_likelihood(y: np.ndarray, eta: np.ndarray) -> float:
     log(1 + e^eta) as max(eta, 0) + log1p(e^-|eta|): the same to rounding, and about twice as fast as
     ``np.logaddexp`` on 100,000 values (which every pooled likelihood-ratio test calls on each copy).
     """
-    return float(y @ eta - np.sum(np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))))
+    return float(np.dot(y, eta) - np.sum(np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))))
 
 
 def _newton_refit(X, y, start, maxiter, tol) -> RefitLikelihood:
@@ -766,7 +766,7 @@ def _newton_refit(X, y, start, maxiter, tol) -> RefitLikelihood:
             # ValueError covers statsmodels' PerfectSeparationError in older releases.
             return RefitLikelihood(float("nan"), False, 0, "failed")
         params = np.asarray(res.params, dtype=float)
-        llf = log_likelihood(y, X @ params) if np.all(np.isfinite(params)) else float("nan")
+        llf = log_likelihood(y, np.dot(X, params)) if np.all(np.isfinite(params)) else float("nan")
     converged = bool(res.mle_retvals.get("converged", False))
     if not math.isfinite(llf):
         return RefitLikelihood(float("nan"), False, int(res.mle_retvals.get("iterations", 0)), "failed")
@@ -810,16 +810,16 @@ def _chord_refits(X: np.ndarray, y: np.ndarray, info: np.ndarray, drops: list, s
         if not active:
             break
         # (a x k) @ (k x n): each sub-model's linear predictor is one contiguous row.
-        E = B[active] @ XT
+        E = np.dot(B[active], XT)
         R = expit(E)
         np.subtract(y, R, out=R)
-        G = R @ X  # (a x n) @ (n x k): every gradient in one pass
+        G = np.dot(R, X)  # (a x n) @ (n x k): every gradient in one pass
         still = []
         for row, j in enumerate(active):
             keep = keeps[j]
             g = G[row, keep]
             step = cho_solve(factors[j], g, check_finite=False)
-            dec = float(g @ step)
+            dec = float(np.dot(g, step))
             if not math.isfinite(dec):
                 continue  # left as None: full Newton takes over
             if dec <= REFIT_DECREMENT_TOL:
@@ -944,7 +944,7 @@ def reduced_start(fit: "LogisticFit", drop: np.ndarray, info: np.ndarray | None 
     if info is None or not np.all(np.isfinite(b)):
         return np.where(np.isfinite(b[keep]), b[keep], 0.0)
     try:
-        return b[keep] + np.linalg.solve(info[np.ix_(keep, keep)], info[np.ix_(keep, drop)] @ b[drop])
+        return b[keep] + np.linalg.solve(info[np.ix_(keep, keep)], np.dot(info[np.ix_(keep, drop)], b[drop]))
     except np.linalg.LinAlgError:
         return b[keep].copy()
 

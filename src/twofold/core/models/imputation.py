@@ -224,17 +224,17 @@ def _scaled(col: _Column) -> np.ndarray:
 def _draw_pmm(X, y, miss, rng) -> np.ndarray:
     """Predictive mean matching, type 1 (van Buuren 2018, algorithm 3.3 with a Bayesian linear draw, 3.1)."""
     Xo, yo, Xm = X[~miss], y[~miss], X[miss]
-    xtx = Xo.T @ Xo
+    xtx = np.dot(Xo.T, Xo)
     xtx += RIDGE * np.diag(np.diag(xtx))
     inv = np.linalg.inv(xtx)
-    beta = inv @ (Xo.T @ yo)
-    resid = yo - Xo @ beta
+    beta = inv @ np.dot(Xo.T, yo)
+    resid = yo - np.dot(Xo, beta)
     dof = max(len(yo) - X.shape[1], 1)
     sigma = math.sqrt(float(resid @ resid) / rng.chisquare(dof))
     chol = np.linalg.cholesky(0.5 * (inv + inv.T))
     beta_star = beta + sigma * (chol @ rng.standard_normal(len(beta)))
-    fitted = Xo @ beta
-    target = Xm @ beta_star
+    fitted = np.dot(Xo, beta)
+    target = np.dot(Xm, beta_star)
     order = np.argsort(fitted, kind="stable")
     sorted_fit = fitted[order]
     n = len(sorted_fit)
@@ -288,9 +288,9 @@ def _draw_logistic(name, X, codes, miss, levels, rng, start=None) -> tuple[np.nd
         raise _fit_failed(name) from None
     draw = (flat + chol @ rng.standard_normal(len(flat))).reshape(params.shape, order="F")
     if len(levels) == 2:
-        p1 = 1.0 / (1.0 + np.exp(-(Xm @ draw)))
+        p1 = 1.0 / (1.0 + np.exp(-np.dot(Xm, draw)))
         return (rng.random(len(p1)) < p1).astype(float), flat
-    eta = np.column_stack([np.zeros(len(Xm)), Xm @ draw])
+    eta = np.column_stack([np.zeros(len(Xm)), np.dot(Xm, draw)])
     prob = softmax(eta, axis=1)
     u = rng.random(len(Xm))[:, None]
     return np.minimum((np.cumsum(prob, axis=1) < u).sum(axis=1), len(levels) - 1).astype(float), flat

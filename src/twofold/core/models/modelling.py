@@ -362,9 +362,9 @@ def _performance(y, lp):
     b = np.array([0.0, 1.0])
     Z = np.column_stack([np.ones_like(lp), lp])
     for _ in range(25):
-        q = expit(Z @ b)
+        q = expit(np.dot(Z, b))
         # lstsq: a resample that separates gives a near-singular information matrix.
-        step = np.linalg.lstsq((Z * (q * (1 - q))[:, None]).T @ Z, Z.T @ (y - q), rcond=None)[0]
+        step = np.linalg.lstsq(np.dot((Z * (q * (1 - q))[:, None]).T, Z), np.dot(Z.T, y - q), rcond=None)[0]
         b += np.clip(step, -5, 5)
         if np.max(np.abs(step)) < 1e-10:
             break
@@ -451,7 +451,7 @@ def bootstrap_validation(fit: LogisticFit, repetitions: int = 200, seed: int | N
             if not np.all(np.isfinite(b)):
                 return "failed"
             try:
-                lp_boot, lp_test = Xb @ b, X @ b
+                lp_boot, lp_test = np.dot(Xb, b), np.dot(X, b)
                 boot = _performance(yb, lp_boot)
                 test = _performance(y, lp_test)
             except np.linalg.LinAlgError:

@@ -59,7 +59,7 @@ class FirthFit(LogisticFit):
     @cached_property
     def linear_predictor(self) -> np.ndarray:
         """The FLIC linear predictor (Firth slopes, corrected intercept)."""
-        return self.X @ np.asarray(self._flic.params, dtype=float)
+        return np.dot(self.X, np.asarray(self._flic.params, dtype=float))
 
     def lr_test_of(self, columns) -> LikelihoodRatioTest:
         """Penalised likelihood-ratio test that the coefficients of these predictor columns are zero."""

@@ -261,15 +261,15 @@ def _logit_ml(
     Returns ``(params, llf, converged)``.
     """
     beta = np.array(start, dtype=float, copy=True)
-    eta = offset + X @ beta if X.shape[1] else offset.copy()
+    eta = offset + np.dot(X, beta) if X.shape[1] else offset.copy()
     llf = profile_loglik(y, eta)
     if X.shape[1] == 0:
         return beta, llf, True
     for _ in range(maxiter):
         p = expit(eta)
         w = p * expit(-eta)  # p(1 - p) without cancellation
-        grad = X.T @ (y - p)
-        hess = (X * w[:, None]).T @ X
+        grad = np.dot(X.T, y - p)
+        hess = np.dot((X * w[:, None]).T, X)
         delta = _solve_sym(hess, grad)
         size = float(np.max(np.abs(delta))) if np.all(np.isfinite(delta)) else math.inf
         steep = float(np.max(np.abs(grad)))
@@ -287,7 +287,7 @@ def _logit_ml(
         t = 1.0
         for _half in range(40):
             cand = beta + t * delta
-            cand_eta = offset + X @ cand
+            cand_eta = offset + np.dot(X, cand)
             cand_llf = profile_loglik(y, cand_eta)
             if cand_llf >= llf - slack:
                 break
@@ -421,10 +421,10 @@ def interval_notices(
 
 def _wald_se(X: np.ndarray, params: np.ndarray, column: int) -> float:
     """Wald standard error from the information at ``params`` (nan if singular)."""
-    eta = X @ params
+    eta = np.dot(X, params)
     p = expit(eta)
     w = p * expit(-eta)
-    info = (X * w[:, None]).T @ X
+    info = np.dot((X * w[:, None]).T, X)
     try:
         var = float(np.linalg.inv(info)[column, column])
     except np.linalg.LinAlgError:

@@ -168,7 +168,7 @@ def adapt_model(model, X: np.ndarray, y: np.ndarray, alpha: float = ALPHA, sourc
     if not np.all(np.isfinite(b)):
         raise ModelError("The saved model has a coefficient without a finite estimate, so it cannot be adapted; "
                          "refit it (a Firth fit keeps estimates finite).")
-    lp = X @ b
+    lp = np.dot(X, b)
     k = X.shape[1]
     absent = [name for name, col in zip(model.names[1:], X[:, 1:].T) if not np.any(col)]
     if absent:
@@ -320,7 +320,7 @@ def shrink_model(model, X: np.ndarray, y: np.ndarray, factor: float, source: str
     if not np.all(np.isfinite(b)):
         raise ModelError("The model has a coefficient without a finite estimate, so it cannot be shrunk; "
                          "refit it (a Firth fit keeps estimates finite).")
-    offset = s * (X @ b)
+    offset = s * np.dot(X, b)
     res = _logit(y, np.ones((len(y), 1)), offset=offset, source=source)
     a = float(res.params[0])
     coef = s * b

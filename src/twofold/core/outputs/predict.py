@@ -541,7 +541,7 @@ def _pseudo_fit(model: FrozenModel, X: np.ndarray, y: np.ndarray, rows: np.ndarr
     kept = [names.index(n) for n in model.names]
     full[:, kept] = X
     design = Design(np.ascontiguousarray(full), y, rows, tuple(blocks), tuple(slices))
-    eta = X @ model.coefficients
+    eta = np.dot(X, model.coefficients)
     # log L = sum y eta - log(1 + exp(eta)), written stably.
     llf = float(np.sum(y * eta - np.logaddexp(0.0, eta)))
     dropped = [n for n in names[1:] if n not in model.names]
@@ -582,7 +582,7 @@ class ScoredRows:
         """The saved model's risks on the usable rows."""
         from scipy.special import expit
 
-        return expit(self.X @ self.coefficients)
+        return expit(np.dot(self.X, self.coefficients))
 
 
 def score_file(model: FrozenModel, path, sheet: str | None = None) -> ScoredRows:
