@@ -189,7 +189,8 @@ def discard(names) -> None:
 
 
 def start_quietly(wanted_from=None) -> None:
-    """At the start of an assessment process: yield to the window, keep the shared ticket, load the libraries."""
+    """At the start of an assessment process: yield to the window (a lower priority, one linear-algebra thread), keep
+    the shared ticket, load the libraries."""
     import os
 
     global _WANTED_FROM
@@ -199,6 +200,10 @@ def start_quietly(wanted_from=None) -> None:
         os.nice(5)
     except (AttributeError, OSError):
         pass
+    # One linear-algebra thread: a second one took the window's core whenever the assessment's products ran.
+    from twofold.core.models.fit import keep_one_blas_thread
+
+    keep_one_blas_thread()
     import twofold.core.workspace  # noqa: F401
 
     shared.png_bytes(shared.new_figure())

@@ -39,6 +39,20 @@ _limit_depth = 0
 _limit_ctx = None
 
 
+def _limit_to_one():
+    """BLAS limited to one thread now (caller holds ``_limit_lock``): threadpoolctl's limit, or None when it
+    cannot inspect the libraries (then everything runs as is)."""
+    global _controller
+    try:
+        if _controller is None:
+            from threadpoolctl import ThreadpoolController
+
+            _controller = ThreadpoolController()
+        return _controller.limit(limits=1, user_api="blas")
+    except Exception:
+        return None
+
+
 class _OneBlasThread:
     """Limit BLAS to one thread while any fit runs: two threads made small fits several times slower.
 
@@ -48,17 +62,10 @@ class _OneBlasThread:
     """
 
     def __enter__(self):
-        global _controller, _limit_depth, _limit_ctx
+        global _limit_depth, _limit_ctx
         with _limit_lock:
             if _limit_depth == 0:
-                try:
-                    if _controller is None:
-                        from threadpoolctl import ThreadpoolController
-
-                        _controller = ThreadpoolController()
-                    _limit_ctx = _controller.limit(limits=1, user_api="blas")
-                except Exception:  # threadpoolctl missing or unable to inspect: run as is
-                    _limit_ctx = None
+                _limit_ctx = _limit_to_one()
             _limit_depth += 1
         return self
 
@@ -74,6 +81,21 @@ class _OneBlasThread:
 
 def one_blas_thread():
     return _OneBlasThread()
+
+
+_kept_limit = None
+
+
+def keep_one_blas_thread() -> None:
+    """Limit BLAS to one thread for the rest of the process.
+
+    For the window's process and its assessment process: their fits run one per thread already, and a second
+    BLAS thread (which spins a while after each product) only took the core the window needed.
+    """
+    global _kept_limit
+    with _limit_lock:
+        if _kept_limit is None:
+            _kept_limit = _limit_to_one() or False
 
 
 class FitStopped(Exception):
