@@ -487,6 +487,10 @@ class Session(QObject):
         # The window's fits run one per thread; a second linear-algebra thread only took the window's core (at
         # 200,000 rows the longest stall went from about 60 to about 40 ms, and ticks and assessments were quicker).
         keep_one_blas_thread()
+        # The libraries' objects live as long as the window: the collector need not walk them again.
+        from twofold.core.models.fit import settle_collector
+
+        settle_collector()
         self._assessor.submit(self._start_assessment_process)
         return {}
 

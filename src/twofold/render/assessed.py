@@ -207,6 +207,9 @@ def start_quietly(wanted_from=None) -> None:
     import twofold.core.workspace  # noqa: F401
 
     shared.png_bytes(shared.new_figure())
+    from twofold.core.models.fit import settle_collector
+
+    settle_collector()
 
 
 def _leave_with_parent() -> None:

@@ -98,6 +98,19 @@ def keep_one_blas_thread() -> None:
             _kept_limit = _limit_to_one() or False
 
 
+def settle_collector() -> None:
+    """Leave the objects made so far (the loaded libraries' modules, classes and functions, there for the life of
+    the process) out of the garbage collector's full passes.
+
+    A full pass walked them all, about 120,000 objects, in 50 ms or more while holding the interpreter lock, so the
+    window could not answer meanwhile; objects made later are collected as before.
+    """
+    import gc
+
+    gc.collect()
+    gc.freeze()
+
+
 class FitStopped(Exception):
     """A fit given up between two Newton steps because its ``stop()`` said so (a newer request made it pointless).
 
