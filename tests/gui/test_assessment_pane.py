@@ -97,6 +97,10 @@ def test_displayed_assessment_equals_outside_references(qtbot, readmission):
     assert shown["sex"][0].startswith(f"G = {fmt_num(g, 2)} on 1 degree of freedom")
     assert shown["sex"][1] == sex[0][2]
     assert table.isVisibleTo(box) and table.height() >= table.rowCount() * table.rowHeight(0)
+    # Within the pane's width (the tests wrap rather than run off its side), every row in sight.
+    qtbot.waitUntil(lambda: table.width() > 0, timeout=WAIT_MS)
+    assert table.horizontalHeader().length() <= table.viewport().width()
+    assert table.height() >= table.horizontalHeader().height() + sum(table.rowHeight(r) for r in range(table.rowCount()))
 
     # The most influential records are listed by file row number (1-based).
     assert len(view.influential) == 10

@@ -1263,8 +1263,13 @@ class AssessmentSection(QFrame):
         self.drop_one_table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.drop_one_table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
         self.drop_one_table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        self.drop_one_table.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignLeft)
-        self.drop_one_table.horizontalHeader().setStretchLastSection(True)
+        header = self.drop_one_table.horizontalHeader()
+        header.setDefaultAlignment(Qt.AlignmentFlag.AlignLeft)
+        # The tests share the pane's width and wrap within it, so the table never runs off the pane's side.
+        for c, mode in enumerate((QHeaderView.ResizeMode.ResizeToContents, QHeaderView.ResizeMode.Stretch,
+                                  QHeaderView.ResizeMode.Stretch, QHeaderView.ResizeMode.Stretch)):
+            header.setSectionResizeMode(c, mode)
+        self.drop_one_table.setWordWrap(True)
         _help(self.drop_one_table, "wald")
         for w in (self.auc, self.brier, self.calibration, self.hosmer, self.more_measures, self.pseudo,
                   self.drop_one, self.drop_one_table, self.vif, self.sample, self.influential):
@@ -1339,13 +1344,13 @@ class AssessmentSection(QFrame):
             cells = (column, lr, wald, "\u26a0 prefer the likelihood-ratio test here" if flag else "")
             for c, text in enumerate(cells):
                 table.setItem(r, c, QTableWidgetItem(text))
-        table.resizeColumnsToContents()
-        table.resizeRowsToContents()
+        table.setColumnHidden(3, not any(flag for *_, flag in rows))  # the warnings' column, when there are any
         self._size_drop_one()
 
     def _size_drop_one(self) -> None:
-        """As tall as its rows, and its scroll bar when the pane is narrower than the table (it then scrolls sideways)."""
+        """As tall as its rows (wrapped to the width the pane gives), and its scroll bar when even that is too narrow."""
         table = self.drop_one_table
+        table.resizeRowsToContents()
         height = table.horizontalHeader().height() + table.verticalHeader().length() + 2 * table.frameWidth()
         if table.horizontalHeader().length() > table.width() - 2 * table.frameWidth():
             height += table.horizontalScrollBar().sizeHint().height()
