@@ -100,7 +100,8 @@ def test_displayed_assessment_equals_outside_references(qtbot, readmission):
     # Within the pane's width (the tests wrap rather than run off its side), every row in sight.
     qtbot.waitUntil(lambda: table.width() > 0, timeout=WAIT_MS)
     assert table.horizontalHeader().length() <= table.viewport().width()
-    assert table.height() >= table.horizontalHeader().height() + sum(table.rowHeight(r) for r in range(table.rowCount()))
+    rows_height = sum(table.rowHeight(r) for r in range(table.rowCount()))
+    assert table.height() >= table.horizontalHeader().height() + rows_height
 
     # The most influential records are listed by file row number (1-based).
     assert len(view.influential) == 10

@@ -1348,7 +1348,7 @@ class AssessmentSection(QFrame):
         self._size_drop_one()
 
     def _size_drop_one(self) -> None:
-        """As tall as its rows (wrapped to the width the pane gives), and its scroll bar when even that is too narrow."""
+        """As tall as its rows (wrapped to the pane's width), and its scroll bar when even that is too narrow."""
         table = self.drop_one_table
         table.resizeRowsToContents()
         height = table.horizontalHeader().height() + table.verticalHeader().length() + 2 * table.frameWidth()

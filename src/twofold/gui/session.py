@@ -479,7 +479,7 @@ class Session(QObject):
     # ---- worker thread --------------------------------------------------------
     def _job_warmup(self):
         # Import the heavy libraries now, off the GUI thread, so the first fit is quick.
-        from twofold.core.models.fit import keep_one_blas_thread, warm_up
+        from twofold.core.models.fit import keep_one_blas_thread, settle_collector, warm_up
 
         import twofold.gui.present  # noqa: F401
 
@@ -488,8 +488,6 @@ class Session(QObject):
         # 200,000 rows the longest stall went from about 60 to about 40 ms, and ticks and assessments were quicker).
         keep_one_blas_thread()
         # The libraries' objects live as long as the window: the collector need not walk them again.
-        from twofold.core.models.fit import settle_collector
-
         settle_collector()
         self._assessor.submit(self._start_assessment_process)
         return {}

@@ -88,7 +88,7 @@ def png_bytes(fig, dpi: float | None = None) -> bytes:
 
 @dataclass(frozen=True)
 class Raster:
-    """A drawn figure as pixels: ``rgba`` holds 4 bytes per pixel (red, green, blue, opacity), row by row from the top."""
+    """A drawn figure as pixels: ``rgba`` holds 4 bytes per pixel (red, green, blue, opacity), rows from the top."""
 
     width: int
     height: int

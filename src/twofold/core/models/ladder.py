@@ -23,8 +23,9 @@ class Deferred:
     """A rung's fit and nested test, put off until first read (shared by the copies undo keeps: made once).
 
     ``make(watch=True, stop=None)`` returns the fit (``watch=False`` when fits run on two threads at once, and
-    ``stop`` to give it up, see :func:`~twofold.core.models.fit.fit_logistic`); ``test(fit)`` the nested test against the rung it was built
-    from (which reads that rung's fit, but not its test: reading one fit never makes a chain of them).
+    ``stop`` to give it up, see :func:`~twofold.core.models.fit.fit_logistic`); ``test(fit)`` the nested test
+    against the rung it was built from (which reads that rung's fit, but not its test: reading one fit never
+    makes a chain of them).
     """
 
     _UNKNOWN = object()
