@@ -147,14 +147,11 @@ class Picture(QLabel):
 
 
 def _pixmap(figure) -> QPixmap:
-    """A drawn figure on screen: from its pixels (a Raster, as the assessment sends them) or from PNG bytes."""
-    pm = QPixmap()
-    if isinstance(figure, (bytes, bytearray)):
-        pm.loadFromData(figure, "PNG")
-    elif figure is not None:
-        image = QImage(figure.rgba, figure.width, figure.height, 4 * figure.width, QImage.Format.Format_RGBA8888)
-        pm = QPixmap.fromImage(image)  # a copy: the image's buffer need not outlive it
-    return pm
+    """A drawn figure on screen, from its pixels (a Raster, as the assessment sends them); empty for None."""
+    if figure is None:
+        return QPixmap()
+    image = QImage(figure.rgba, figure.width, figure.height, 4 * figure.width, QImage.Format.Format_RGBA8888)
+    return QPixmap.fromImage(image)  # a copy: the image's buffer need not outlive it
 
 
 # ---------------------------------------------------------------------------
